@@ -1,0 +1,31 @@
+//! aftercast-core: the data model (dated series, panels, unit tables), CSV and Parquet readers
+//! whose errors name file, line, column and the offending text, the missing-value and gap
+//! policies, and the shared result types every estimator ends in.
+//!
+//! ```
+//! use aftercast_core::table::RawTable;
+//! use aftercast_core::series::{Series, SeriesSpec};
+//! let csv = b"date,orders\n2024-01-01,10\n2024-01-02,12\n2024-01-03,11\n";
+//! let table = RawTable::from_csv_bytes(std::path::Path::new("orders.csv"), csv)?;
+//! let spec = SeriesSpec { time: "date".into(), outcome: "orders".into(), ..Default::default() };
+//! let series = Series::from_table(&table, &spec)?;
+//! assert_eq!(series.len(), 3);
+//! # Ok::<(), aftercast_core::error::DataError>(())
+//! ```
+
+pub mod error;
+pub mod panel;
+#[cfg(feature = "parquet")]
+mod parquet_read;
+pub mod policy;
+pub mod result;
+pub mod series;
+pub mod table;
+pub mod time;
+pub mod units;
+
+pub use error::{DataError, DataResult, Location};
+pub use policy::{GapPolicy, MissingPolicy};
+pub use result::{AnalysisResult, EffectBlock, EffectDraws, Rope, RopeUnits, Summary, Verdict};
+pub use table::{InputInfo, RawTable};
+pub use time::{Frequency, TimeAxis, TimePoint};

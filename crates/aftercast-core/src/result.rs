@@ -1,0 +1,321 @@
+//! The shared result: effect draws, their summaries, the ROPE verdict and the JSON document
+//! every verb writes. Summaries are computed in `aftercast-resample`; this module only holds
+//! the types so that every crate (and the tests) can read and write them.
+
+use crate::table::InputInfo;
+use crate::time::TimePoint;
+use serde::{Deserialize, Serialize};
+
+/// Draws of an effect: the common end of every estimator.
+#[derive(Debug, Clone)]
+pub enum EffectDraws {
+    /// A series method: for each draw a whole counterfactual path over the post-period.
+    /// `counterfactual[d][t]`; `observed[t]`. Effects are `observed - counterfactual` per draw.
+    Path {
+        /// Post-period times.
+        times: Vec<TimePoint>,
+        /// Observed outcome in the post-period.
+        observed: Vec<f64>,
+        /// Counterfactual draws, one path per draw.
+        counterfactual: Vec<Vec<f64>>,
+    },
+    /// A unit-level estimand (e.g. ATT): one effect per draw, and per draw the counterfactual
+    /// mean it is relative to.
+    Scalar {
+        /// Effect draws.
+        effect: Vec<f64>,
+        /// Counterfactual level per draw (for the relative effect), if meaningful.
+        baseline: Option<Vec<f64>>,
+    },
+}
+
+/// Summary of one set of draws (the `S` object of the JSON result).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Summary {
+    /// Mean of the draws.
+    pub mean: f64,
+    /// Median of the draws.
+    pub median: f64,
+    /// Standard deviation of the draws.
+    pub sd: f64,
+    /// Lower end of the equal-tailed interval.
+    pub lower: f64,
+    /// Upper end of the equal-tailed interval.
+    pub upper: f64,
+    /// Lower end of the highest-density interval.
+    pub hdi_lower: f64,
+    /// Upper end of the highest-density interval.
+    pub hdi_upper: f64,
+    /// Share of draws above zero.
+    pub prob_positive: f64,
+    /// Share of draws above the user's threshold, when one is given.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub prob_above_threshold: Option<f64>,
+}
+
+/// Units of the region of practical equivalence.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum RopeUnits {
+    /// Percent of the counterfactual (judged on the relative effect).
+    Percent,
+    /// The outcome's own units (judged on the average effect).
+    Outcome,
+}
+
+/// The ROPE as given: `--rope 1%` (relative) or `--rope 25` (outcome units).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Rope {
+    /// Lower bound (in `units`; percent values are stored as fractions, 1% = 0.01).
+    pub low: f64,
+    /// Upper bound.
+    pub high: f64,
+    /// Units of the bounds.
+    pub units: RopeUnits,
+}
+
+impl Default for Rope {
+    fn default() -> Self {
+        Rope { low: -0.01, high: 0.01, units: RopeUnits::Percent }
+    }
+}
+
+impl std::str::FromStr for Rope {
+    type Err = String;
+    /// `1%` gives [-1%, +1%] relative; `25` gives [-25, +25] in outcome units;
+    /// `-2%:1%` or `-10:30` give asymmetric bounds.
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        let t = s.trim();
+        let parse_one = |x: &str| -> Result<(f64, bool), String> {
+            let x = x.trim();
+            let (num, pct) = match x.strip_suffix('%') {
+                Some(n) => (n, true),
+                None => (x, false),
+            };
+            let v: f64 = num.trim().parse().map_err(|_| format!("'{s}' is not a ROPE (examples: 1%, 25, -2%:1%)"))?;
+            if !v.is_finite() {
+                return Err(format!("'{s}': ROPE bounds must be finite"));
+            }
+            Ok((if pct { v / 100.0 } else { v }, pct))
+        };
+        let (low, high, pct) = if let Some((a, b)) = t.split_once(':') {
+            let (a, pa) = parse_one(a)?;
+            let (b, pb) = parse_one(b)?;
+            if pa != pb {
+                return Err(format!("'{s}': both ROPE bounds must be in percent or both in outcome units"));
+            }
+            (a, b, pa)
+        } else {
+            let (v, p) = parse_one(t)?;
+            (-v.abs(), v.abs(), p)
+        };
+        if low > high || (low == high) {
+            return Err(format!("'{s}': the ROPE needs low < high"));
+        }
+        Ok(Rope { low, high, units: if pct { RopeUnits::Percent } else { RopeUnits::Outcome } })
+    }
+}
+
+/// The verdict words of the product.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Verdict {
+    /// The interval lies wholly above the ROPE.
+    Gain,
+    /// The interval lies above zero but reaches into the ROPE.
+    GainButSmall,
+    /// The interval lies wholly inside the ROPE.
+    Negligible,
+    /// The interval lies below zero but reaches into the ROPE.
+    LossButSmall,
+    /// The interval lies wholly below the ROPE.
+    Loss,
+    /// The interval spans zero and leaves the ROPE.
+    Inconclusive,
+}
+
+impl Verdict {
+    /// The word as printed.
+    pub fn word(self) -> &'static str {
+        match self {
+            Verdict::Gain => "gain",
+            Verdict::GainButSmall => "gain-but-small",
+            Verdict::Negligible => "negligible",
+            Verdict::LossButSmall => "loss-but-small",
+            Verdict::Loss => "loss",
+            Verdict::Inconclusive => "inconclusive",
+        }
+    }
+
+    /// One plain sentence for a manager.
+    pub fn sentence(self) -> &'static str {
+        match self {
+            Verdict::Gain => "The change raised the metric by more than the smallest effect that matters.",
+            Verdict::GainButSmall => "The change raised the metric, but the rise may be too small to matter.",
+            Verdict::Negligible => "Any effect of the change is too small to matter.",
+            Verdict::LossButSmall => "The change lowered the metric, but the fall may be too small to matter.",
+            Verdict::Loss => "The change lowered the metric by more than the smallest effect that matters.",
+            Verdict::Inconclusive => "The data cannot tell whether the change helped, hurt or did nothing that matters.",
+        }
+    }
+}
+
+/// Effect summaries: average per period (or per unit), cumulative over the post-period, relative.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct EffectBlock {
+    /// Average effect per post-period (series) or per unit (unit-level estimand).
+    pub average: Summary,
+    /// Total effect over the post-period (series) or over the treated units (unit-level).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cumulative: Option<Summary>,
+    /// Relative effect: sum of effect / sum of counterfactual, per draw.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub relative: Option<Summary>,
+}
+
+/// One post- (or pre-) period row of a series result.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PathPoint {
+    /// The period.
+    pub time: TimePoint,
+    /// Observed value (`null` when missing).
+    pub observed: Option<f64>,
+    /// Counterfactual median.
+    pub counterfactual: f64,
+    /// Lower end of the counterfactual interval.
+    pub lower: f64,
+    /// Upper end of the counterfactual interval.
+    pub upper: f64,
+    /// Whether the period is after the change.
+    #[serde(default)]
+    pub post: bool,
+    /// Pointwise effect summary (post-periods only).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub effect: Option<Summary>,
+    /// Cumulative effect summary up to this period (post-periods only).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cumulative: Option<Summary>,
+}
+
+/// One donor weight of a synthetic control.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct UnitWeight {
+    /// Donor unit.
+    pub unit: String,
+    /// Its weight.
+    pub weight: f64,
+}
+
+/// Placebo-in-space inference of a synthetic control.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PlaceboSummary {
+    /// rank / number of units.
+    pub p_value: f64,
+    /// Rank of the treated unit's post/pre RMSPE ratio (1 = largest).
+    pub rank: usize,
+    /// Number of units in the ranking (treated included).
+    pub units: usize,
+}
+
+/// One covariate's balance before and after adjustment.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct BalanceRow {
+    /// Covariate (or derived term) name.
+    pub covariate: String,
+    /// Standardised mean difference before adjustment.
+    pub smd_before: f64,
+    /// Standardised mean difference after adjustment.
+    pub smd_after: f64,
+    /// Variance ratio before adjustment (treated / control).
+    #[serde(default)]
+    pub var_ratio_before: f64,
+    /// Variance ratio after adjustment.
+    pub var_ratio_after: f64,
+}
+
+/// Counts of a unit-level analysis.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SampleCounts {
+    /// Treated units in the data.
+    pub treated: usize,
+    /// Control units that received weight or a match.
+    pub controls_used: usize,
+    /// Treated units left out (no match within the caliper, trimmed).
+    pub treated_dropped: usize,
+}
+
+/// One row of a comparison against a randomized experiment.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct EstimateRow {
+    /// Method name.
+    pub method: String,
+    /// Its summary.
+    pub summary: Summary,
+    /// Estimate minus truth.
+    pub bias: f64,
+    /// Whether its interval covers the experimental estimate.
+    pub covers_truth: bool,
+    /// Further per-method fields.
+    #[serde(flatten)]
+    pub extra: serde_json::Map<String, serde_json::Value>,
+}
+
+/// The JSON document every verb writes (`--json FILE`, `DIR/result.json`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct AnalysisResult {
+    /// Version of aftercast that wrote it.
+    pub tool_version: String,
+    /// The verb (forecast, synthetic, match, compare, backtest).
+    pub verb: String,
+    /// The method within the verb.
+    pub method: String,
+    /// Interval level, e.g. 0.9.
+    pub level: f64,
+    /// The seed that reproduces the run.
+    pub seed: u64,
+    /// Input files with hashes and row counts.
+    pub inputs: Vec<InputInfo>,
+    /// ATT, ATE, or the series estimand.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub estimand: Option<String>,
+    /// Effect summaries.
+    pub effect: EffectBlock,
+    /// The verdict word.
+    pub verdict: Verdict,
+    /// The ROPE used.
+    pub rope: Rope,
+    /// Method-specific diagnostics.
+    pub diagnostics: serde_json::Map<String, serde_json::Value>,
+    /// Plain-language warnings.
+    pub warnings: Vec<String>,
+    /// Series verbs: counterfactual path.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub path: Option<Vec<PathPoint>>,
+    /// `synthetic`: donor weights.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub weights: Option<Vec<UnitWeight>>,
+    /// `synthetic`: placebo-in-space inference.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub placebo: Option<PlaceboSummary>,
+    /// `match`: balance table.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub balance: Option<Vec<BalanceRow>>,
+    /// `match`: counts.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sample: Option<SampleCounts>,
+    /// `compare`: the experimental truth.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub truth: Option<Summary>,
+    /// `compare`: one row per observational method.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub estimates: Option<Vec<EstimateRow>>,
+    /// The assumptions the estimate rests on, in plain words.
+    #[serde(default)]
+    pub assumptions: Vec<String>,
+    /// Further verb-specific sections (e.g. the backtest table).
+    #[serde(flatten)]
+    pub extra: serde_json::Map<String, serde_json::Value>,
+}
+
+/// The version string written into results.
+pub const TOOL_VERSION: &str = env!("CARGO_PKG_VERSION");
