@@ -1,1 +1,61 @@
-fn main() {}
+//! `aftercast`: estimate what a change did when nobody kept a randomized control group.
+//!
+//! This binary is glue: it parses flags, loads inputs, calls the libraries and writes outputs.
+//! Exit codes: 0 success, 2 bad input or usage, 1 internal failure.
+
+mod common;
+mod failure;
+mod verbs;
+
+use clap::{Parser, Subcommand};
+
+/// Estimate what a change did when nobody kept a randomized control group.
+#[derive(Debug, Parser)]
+#[command(name = "aftercast", version, about, long_about = None, propagate_version = true)]
+struct Cli {
+    #[command(subcommand)]
+    verb: Verb,
+}
+
+#[derive(Debug, Subcommand)]
+enum Verb {
+    /// Read and validate an input file the way the analyses do, and describe it.
+    Inspect(verbs::inspect::Args),
+}
+
+fn threads_of(verb: &Verb) -> Option<u64> {
+    match verb {
+        Verb::Inspect(_) => None,
+    }
+}
+
+fn dispatch(verb: &Verb) -> anyhow::Result<()> {
+    match verb {
+        Verb::Inspect(a) => verbs::inspect::run(a),
+    }
+}
+
+fn main() {
+    let cli = Cli::parse();
+    let code = match std::panic::catch_unwind(|| {
+        if let Some(n) = threads_of(&cli.verb) {
+            // A second initialisation can only fail if a pool exists already; results never
+            // depend on the thread count, so that is harmless.
+            let _ = rayon::ThreadPoolBuilder::new().num_threads(n as usize).build_global();
+        }
+        dispatch(&cli.verb)
+    }) {
+        Ok(Ok(())) => 0,
+        Ok(Err(e)) => {
+            let code = failure::exit_code(&e);
+            let kind = if code == 2 { "error" } else { "internal error" };
+            eprintln!("aftercast: {kind}: {e:#}");
+            code
+        }
+        Err(_) => {
+            eprintln!("aftercast: internal error: the program stopped unexpectedly (a bug; please report it with the command line)");
+            1
+        }
+    };
+    std::process::exit(code);
+}

@@ -58,7 +58,7 @@ impl std::fmt::Display for Location {
 #[non_exhaustive]
 pub enum DataError {
     /// The file could not be opened or read.
-    #[error("{}: cannot read file: {source}", path.display())]
+    #[error("{}: cannot read file", path.display())]
     Io {
         /// The file.
         path: PathBuf,

@@ -155,7 +155,9 @@ pub fn step_forward(freq: Frequency, a: TimePoint, n: i64) -> Option<TimePoint> 
     }
 }
 
-/// Guess the frequency from the smallest step between consecutive, strictly increasing points.
+/// Guess the frequency from the median step between consecutive, strictly increasing points:
+/// 1 day daily, 7 days weekly, a calendar month (same day of month) monthly, three months
+/// quarterly. Gaps and off-grid points are then found by the caller against that grid.
 pub fn detect_frequency(points: &[TimePoint]) -> Option<Frequency> {
     let first = *points.first()?;
     match first {
@@ -164,17 +166,26 @@ pub fn detect_frequency(points: &[TimePoint]) -> Option<Frequency> {
             if points.len() < 2 {
                 return Some(Frequency::Daily);
             }
-            let mut min_days = i64::MAX;
-            for w in points.windows(2) {
-                if let (TimePoint::Date(a), TimePoint::Date(b)) = (w[0], w[1]) {
-                    min_days = min_days.min((b - a).num_days());
-                }
+            let mut diffs: Vec<i64> = points
+                .windows(2)
+                .filter_map(|w| match (w[0], w[1]) {
+                    (TimePoint::Date(a), TimePoint::Date(b)) => Some((b - a).num_days()),
+                    _ => None,
+                })
+                .collect();
+            if diffs.iter().any(|d| *d <= 0) {
+                return None;
             }
-            match min_days {
+            diffs.sort_unstable();
+            let median = diffs[diffs.len() / 2];
+            let same_day = points
+                .iter()
+                .all(|p| matches!((p, first), (TimePoint::Date(a), TimePoint::Date(b)) if a.day() == b.day()));
+            match median {
                 1 => Some(Frequency::Daily),
                 7 => Some(Frequency::Weekly),
-                28..=31 => Some(Frequency::Monthly),
-                89..=92 => Some(Frequency::Quarterly),
+                28..=31 if same_day => Some(Frequency::Monthly),
+                89..=92 if same_day => Some(Frequency::Quarterly),
                 _ => None,
             }
         }

@@ -1,0 +1,135 @@
+//! Flags shared by every analysis verb, and the code that writes a verb's outputs.
+
+use crate::failure::{bad_input, bad_input_msg};
+use aftercast_core::policy::{GapPolicy, MissingPolicy};
+use aftercast_core::result::{AnalysisResult, Rope};
+use aftercast_core::time::DateFormat;
+use aftercast_core::{DataError, RawTable};
+use std::path::{Path, PathBuf};
+
+/// Flags every analysis verb takes.
+#[derive(Debug, Clone, clap::Args)]
+pub struct Common {
+    /// Interval level (0 < level < 1).
+    #[arg(long, default_value_t = 0.9, value_parser = parse_level)]
+    pub level: f64,
+    /// Region of practical equivalence: `1%` (of the counterfactual), `25` (outcome units),
+    /// or asymmetric `-2%:1%`.
+    #[arg(long, default_value = "1%")]
+    pub rope: Rope,
+    /// Report also the chance that the average effect exceeds this value (outcome units).
+    #[arg(long)]
+    pub threshold: Option<f64>,
+    /// Number of draws (posterior, bootstrap or simulation).
+    #[arg(long, default_value_t = 1000, value_parser = clap::value_parser!(u64).range(10..=10_000_000))]
+    pub draws: u64,
+    /// Seed; the same seed reproduces the run exactly, for any number of threads.
+    #[arg(long, default_value_t = 20_240_601)]
+    pub seed: u64,
+    /// Write the full result as JSON to this file.
+    #[arg(long)]
+    pub json: Option<PathBuf>,
+    /// Write result.json (and, where available, charts and report.html) into this folder.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Allow --out to write into a folder that is not empty.
+    #[arg(long)]
+    pub force: bool,
+    /// Worker threads (default: all cores). Results do not depend on it.
+    #[arg(long, value_parser = clap::value_parser!(u64).range(1..=1024))]
+    pub threads: Option<u64>,
+    /// Print nothing on success.
+    #[arg(long)]
+    pub quiet: bool,
+}
+
+/// How input files are read.
+#[derive(Debug, Clone, clap::Args)]
+pub struct DataOptions {
+    /// Date format of the time column as a strftime pattern (default ISO 8601 YYYY-MM-DD).
+    #[arg(long)]
+    pub date_format: Option<String>,
+    /// Empty cells: error (default), keep (as missing, where the method allows), drop-row.
+    #[arg(long, default_value = "error")]
+    pub missing: MissingPolicy,
+    /// Skipped periods in a dated series: error (default) or fill (as missing).
+    #[arg(long, default_value = "error")]
+    pub gaps: GapPolicy,
+}
+
+impl DataOptions {
+    /// The date format.
+    pub fn date_format(&self) -> DateFormat {
+        match &self.date_format {
+            Some(p) => DateFormat::Pattern(p.clone()),
+            None => DateFormat::Iso,
+        }
+    }
+}
+
+fn parse_level(s: &str) -> Result<f64, String> {
+    let v: f64 = s.parse().map_err(|_| format!("'{s}' is not a number"))?;
+    if v > 0.0 && v < 1.0 { Ok(v) } else { Err(format!("level must lie strictly between 0 and 1, got {v}")) }
+}
+
+/// Split a comma list (`a,b,c`), dropping empty entries.
+pub fn comma_list(s: &str) -> Vec<String> {
+    s.split(',').map(|x| x.trim().to_string()).filter(|x| !x.is_empty()).collect()
+}
+
+/// Read an input table; errors are bad input.
+///
+/// # Errors
+/// The reader's [`DataError`].
+pub fn read_table(path: &Path) -> anyhow::Result<RawTable> {
+    RawTable::read(path).map_err(anyhow::Error::new)
+}
+
+/// Refuse to write into a non-empty folder unless forced.
+///
+/// # Errors
+/// Bad input when the folder exists and is not empty.
+pub fn check_out_dir(dir: &Path, force: bool) -> anyhow::Result<()> {
+    if dir.exists() {
+        if !dir.is_dir() {
+            return Err(bad_input_msg(format!("--out {}: exists and is not a folder", dir.display())));
+        }
+        let non_empty = std::fs::read_dir(dir).map(|mut d| d.next().is_some()).unwrap_or(false);
+        if non_empty && !force {
+            return Err(bad_input_msg(format!(
+                "--out {}: the folder is not empty; pass --force to write into it",
+                dir.display()
+            )));
+        }
+    }
+    std::fs::create_dir_all(dir).map_err(|source| DataError::Io { path: dir.to_path_buf(), source })?;
+    Ok(())
+}
+
+/// Write a verb's outputs: `--json FILE` and `--out DIR/result.json`.
+///
+/// # Errors
+/// Write failures (internal) and a non-empty `--out` without `--force` (bad input).
+pub fn write_outputs(common: &Common, result: &AnalysisResult) -> anyhow::Result<()> {
+    if let Some(p) = &common.json {
+        aftercast_report::write_json(p, result)?;
+    }
+    if let Some(dir) = &common.out {
+        check_out_dir(dir, common.force)?;
+        aftercast_report::write_json(&dir.join("result.json"), result)?;
+    }
+    Ok(())
+}
+
+/// Parse a value or report it as bad input.
+///
+/// # Errors
+/// Bad input naming the flag.
+pub fn parse_arg<T: std::str::FromStr>(flag: &str, text: &str) -> anyhow::Result<T>
+where
+    T::Err: std::fmt::Display,
+{
+    text.parse::<T>().map_err(|e| {
+        bad_input(DataError::BadArgument { what: flag.to_string(), text: text.to_string(), detail: e.to_string() })
+    })
+}
