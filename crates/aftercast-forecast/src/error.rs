@@ -1,0 +1,116 @@
+//! The error type of the forecasting crate. Every variant says what was wrong and where.
+
+use aftercast_core::error::DataError;
+
+/// Everything that can go wrong while building, fitting or simulating a forecasting model.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum ForecastError {
+    /// A data-layer error (file, line, column are in the inner error).
+    #[error(transparent)]
+    Data(#[from] DataError),
+    /// A model parameter is out of its allowed range.
+    #[error("invalid forecast parameter {name} = {value}: {detail}")]
+    BadParameter {
+        /// The parameter name as documented (e.g. `season`, `level`, `draws`).
+        name: &'static str,
+        /// The offending value, as text.
+        value: String,
+        /// The allowed range or the reason.
+        detail: String,
+    },
+    /// A season specification such as `7` or `365.25:4` could not be read.
+    #[error("invalid season '{text}': {detail}")]
+    BadSeason {
+        /// The text as given.
+        text: String,
+        /// Why it is not accepted.
+        detail: String,
+    },
+    /// The pre-period is too short for the chosen model.
+    #[error(
+        "the {model} model needs at least {needed} observed pre-period values; the series has {found} (pre-period ends before {at})"
+    )]
+    TooShort {
+        /// Which model.
+        model: &'static str,
+        /// How many it needs.
+        needed: usize,
+        /// How many there are.
+        found: usize,
+        /// The first time of the post-period (or washout), as text.
+        at: String,
+    },
+    /// A control series or event indicator has a non-finite value.
+    #[error("control '{name}' has a non-finite value {value} at {at}")]
+    NonFiniteControl {
+        /// The control name.
+        name: String,
+        /// The value.
+        value: f64,
+        /// The time, as text.
+        at: String,
+    },
+    /// The outcome cannot be put on the log scale.
+    #[error("--log needs positive outcome values; the value at {at} is {value}")]
+    NonPositiveForLog {
+        /// The time, as text.
+        at: String,
+        /// The value.
+        value: f64,
+    },
+    /// Multiplicative seasonality needs positive values.
+    #[error("multiplicative Holt-Winters needs positive values; the value at {at} is {value}")]
+    NonPositiveForMultiplicative {
+        /// The time, as text.
+        at: String,
+        /// The value.
+        value: f64,
+    },
+    /// The diffuse part of the Kalman filter did not end in the pre-period: some state (e.g. a
+    /// regression coefficient whose control never varies) is not identified by the data.
+    #[error(
+        "the {model} model is not identified by the pre-period data: the diffuse initial state did not resolve in {periods} periods (is a control constant, or an event absent from the pre-period?)"
+    )]
+    NotIdentified {
+        /// Which model.
+        model: &'static str,
+        /// Pre-period length.
+        periods: usize,
+    },
+    /// The likelihood or the sum of squares was not finite at the starting values.
+    #[error("the {model} model's objective is not finite at the starting values ({detail})")]
+    NonFiniteObjective {
+        /// Which model.
+        model: &'static str,
+        /// Details.
+        detail: String,
+    },
+    /// The optimiser failed (as opposed to stopping early, which is a warning).
+    #[error("the optimiser failed while fitting the {model} model: {detail}")]
+    Optimiser {
+        /// Which model.
+        model: &'static str,
+        /// What argmin said.
+        detail: String,
+    },
+    /// A linear-algebra step failed (singular system).
+    #[error("{what} is numerically singular")]
+    Singular {
+        /// Which matrix.
+        what: String,
+    },
+    /// An events calendar row names a date that is not a date.
+    #[error("{at}: event '{name}' has date '{text}', which is not on the series' time axis kind")]
+    BadEventDate {
+        /// Where in the calendar file.
+        at: aftercast_core::error::Location,
+        /// The event name.
+        name: String,
+        /// The offending text.
+        text: String,
+    },
+}
+
+/// Result alias of this crate.
+pub type ForecastResult<T> = Result<T, ForecastError>;
