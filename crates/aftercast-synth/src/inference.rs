@@ -1,0 +1,1 @@
+//! Inference beyond placebo in space (filled in below).

@@ -1,0 +1,28 @@
+//! aftercast-synth: the synthetic control family.
+//!
+//! For a change that hit some units and not others, the counterfactual of a treated unit is a
+//! weighted mix of untouched units (donors). Methods: simplex `weights`, ADH `predictors`,
+//! demeaned `intercept`, ridge-augmented `ridge`, and synthetic difference-in-differences
+//! `sdid`. Inference: placebo in space (always), placebo in time, leave-one-out and conformal
+//! inference ([`inference`]).
+//!
+//! Parameters are built with [`SynthParams`], checked into [`ValidParams`], and
+//! [`ValidParams::fit`] returns a [`Fitted`]. [`result::to_analysis_result`] turns a fit into
+//! the shared JSON document.
+//!
+//! The numerical core is the exact simplex QP solver in [`simplex`].
+
+pub mod error;
+pub mod params;
+pub mod simplex;
+pub mod fit;
+pub mod sdid;
+pub mod inference;
+pub mod result;
+mod data;
+mod engine;
+mod predictors;
+
+pub use error::{SynthError, SynthResult};
+pub use fit::{Fitted, Placebo, PlaceboRun, PredictorBalance, UnitFit};
+pub use params::{Aggregation, Method, SynthParams, ValidParams};

@@ -1,0 +1,1 @@
+//! From a fit to the shared result document.
