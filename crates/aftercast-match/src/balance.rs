@@ -1,0 +1,211 @@
+//! Balance diagnostics: standardised mean differences, variance ratios, effective sample sizes,
+//! binned propensity distributions, and common-support trimming rules.
+
+use crate::design::Design;
+use aftercast_core::result::BalanceRow;
+use serde::{Deserialize, Serialize};
+
+/// Flag threshold on |SMD| (common practice; Austin 2009, Stat. Med. 28:3083-3107).
+pub const SMD_FLAG: f64 = 0.1;
+/// Acceptable variance-ratio range (common practice; Rubin 2001, Health Serv. Outcomes Res.
+/// Methodol. 2:169-188).
+pub const VAR_RATIO_RANGE: (f64, f64) = (0.5, 2.0);
+
+/// One design column's balance before and after adjustment.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct BalanceEntry {
+    /// Column name (covariate, level `name=value`, or term).
+    pub covariate: String,
+    /// Treated mean before adjustment (original units).
+    pub mean_treated_before: f64,
+    /// Control mean before adjustment.
+    pub mean_control_before: f64,
+    /// Treated mean after adjustment.
+    pub mean_treated_after: f64,
+    /// Control mean after adjustment.
+    pub mean_control_after: f64,
+    /// SMD before (pooled SD of the unadjusted groups in the denominator).
+    pub smd_before: f64,
+    /// SMD after (same denominator as before).
+    pub smd_after: f64,
+    /// Variance ratio treated / control before.
+    pub var_ratio_before: f64,
+    /// Variance ratio after (weighted variances).
+    pub var_ratio_after: f64,
+    /// |SMD after| above 0.1.
+    pub smd_flag: bool,
+    /// Variance ratio after outside [0.5, 2].
+    pub var_ratio_flag: bool,
+}
+
+impl BalanceEntry {
+    /// The shared result row.
+    pub fn row(&self) -> BalanceRow {
+        BalanceRow {
+            covariate: self.covariate.clone(),
+            smd_before: self.smd_before,
+            smd_after: self.smd_after,
+            var_ratio_before: self.var_ratio_before,
+            var_ratio_after: self.var_ratio_after,
+        }
+    }
+}
+
+/// Weighted mean and (reliability-weighted, unbiased for equal weights) variance.
+fn wmv(vals: impl Iterator<Item = (f64, f64)> + Clone) -> (f64, f64) {
+    let (mut sw, mut sx, mut sw2) = (0.0, 0.0, 0.0);
+    for (x, w) in vals.clone() {
+        sw += w;
+        sx += w * x;
+        sw2 += w * w;
+    }
+    if sw <= 0.0 {
+        return (f64::NAN, f64::NAN);
+    }
+    let m = sx / sw;
+    let ss: f64 = vals.map(|(x, w)| w * (x - m) * (x - m)).sum();
+    let denom = sw - sw2 / sw;
+    (m, if denom > 0.0 { ss / denom } else { f64::NAN })
+}
+
+/// Balance of every design column. `after[i]` is unit i's weight after adjustment (0 = unused).
+pub fn balance(design: &Design, treated: &[bool], after: &[f64]) -> Vec<BalanceEntry> {
+    let n = design.n;
+    (0..design.names.len())
+        .map(|j| {
+            let raw = |i: usize| design.at(i, j) * design.sd[j] + design.mean[j];
+            let grp = |g: bool, wt: bool| {
+                wmv((0..n).filter(move |&i| treated[i] == g).map(move |i| (raw(i), if wt { after[i] } else { 1.0 })))
+            };
+            let (m1, v1) = grp(true, false);
+            let (m0, v0) = grp(false, false);
+            let (a1, w1) = grp(true, true);
+            let (a0, w0) = grp(false, true);
+            let pooled = ((v1 + v0) / 2.0).sqrt();
+            let smd = |a: f64, b: f64| if pooled > 0.0 { (a - b) / pooled } else { 0.0 };
+            let smd_after = smd(a1, a0);
+            let vr_after = w1 / w0;
+            BalanceEntry {
+                covariate: design.names[j].clone(),
+                mean_treated_before: m1,
+                mean_control_before: m0,
+                mean_treated_after: a1,
+                mean_control_after: a0,
+                smd_before: smd(m1, m0),
+                smd_after,
+                var_ratio_before: v1 / v0,
+                var_ratio_after: vr_after,
+                smd_flag: !(smd_after.abs() <= SMD_FLAG),
+                var_ratio_flag: !(vr_after >= VAR_RATIO_RANGE.0 && vr_after <= VAR_RATIO_RANGE.1),
+            }
+        })
+        .collect()
+}
+
+/// Kish effective sample size (sum w)^2 / sum w^2 of the positive weights.
+pub fn ess(weights: impl Iterator<Item = f64>) -> f64 {
+    let (mut s, mut s2) = (0.0, 0.0);
+    for w in weights {
+        s += w;
+        s2 += w * w;
+    }
+    if s2 > 0.0 { s * s / s2 } else { 0.0 }
+}
+
+/// Propensity-score distributions by group, before and after adjustment, as shares per bin.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PropensityBins {
+    /// Bin edges on the propensity scale (length bins + 1).
+    pub edges: Vec<f64>,
+    /// Share of treated units per bin, before.
+    pub treated_before: Vec<f64>,
+    /// Share of control units per bin, before.
+    pub control_before: Vec<f64>,
+    /// Share of treated weight per bin, after.
+    pub treated_after: Vec<f64>,
+    /// Share of control weight per bin, after.
+    pub control_after: Vec<f64>,
+}
+
+/// Bin the propensity scores into `bins` equal-width bins on [0, 1].
+pub fn propensity_bins(e: &[f64], treated: &[bool], after: &[f64], bins: usize) -> PropensityBins {
+    let bins = bins.max(1);
+    let mut h = [vec![0.0; bins], vec![0.0; bins], vec![0.0; bins], vec![0.0; bins]];
+    for i in 0..e.len() {
+        let b = ((e[i] * bins as f64) as usize).min(bins - 1);
+        let g = if treated[i] { 0 } else { 1 };
+        h[g][b] += 1.0;
+        h[g + 2][b] += after[i];
+    }
+    for v in h.iter_mut() {
+        let s: f64 = v.iter().sum();
+        if s > 0.0 {
+            v.iter_mut().for_each(|x| *x /= s);
+        }
+    }
+    let [tb, cb, ta, ca] = h;
+    PropensityBins {
+        edges: (0..=bins).map(|b| b as f64 / bins as f64).collect(),
+        treated_before: tb,
+        control_before: cb,
+        treated_after: ta,
+        control_after: ca,
+    }
+}
+
+/// Overlap of the propensity scores of the two groups.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Support {
+    /// Smallest and largest treated propensity.
+    pub treated_range: (f64, f64),
+    /// Smallest and largest control propensity.
+    pub control_range: (f64, f64),
+    /// Treated units outside the control range.
+    pub treated_outside: usize,
+    /// Control units outside the treated range.
+    pub control_outside: usize,
+}
+
+/// Ranges and out-of-range counts.
+pub fn support(e: &[f64], treated: &[bool]) -> Support {
+    let range = |g: bool| {
+        e.iter().zip(treated).filter(|(_, t)| **t == g).fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), (x, _)| (a.min(*x), b.max(*x)))
+    };
+    let tr = range(true);
+    let cr = range(false);
+    let out = |g: bool, r: (f64, f64)| e.iter().zip(treated).filter(|(x, t)| **t == g && (**x < r.0 || **x > r.1)).count();
+    Support { treated_range: tr, control_range: cr, treated_outside: out(true, cr), control_outside: out(false, tr) }
+}
+
+/// The Crump, Hotz, Imbens & Mitnik (2009, Biometrika 96:187-199) trimming limit alpha: keep
+/// units with alpha <= e <= 1 - alpha. With g = 1 / (e (1 - e)): alpha = 0 when
+/// max g <= 2 mean g; otherwise 1/(alpha (1 - alpha)) = gamma where gamma solves
+/// gamma = 2 * mean(g | g <= gamma).
+pub fn crump_alpha(e: &[f64]) -> f64 {
+    let mut g: Vec<f64> = e.iter().map(|&p| 1.0 / (p * (1.0 - p))).filter(|v| v.is_finite()).collect();
+    if g.is_empty() {
+        return 0.0;
+    }
+    g.sort_by(f64::total_cmp);
+    let n = g.len();
+    let mean = g.iter().sum::<f64>() / n as f64;
+    if g[n - 1] <= 2.0 * mean {
+        return 0.0;
+    }
+    // find the largest m such that g[m-1] <= 2 * mean(g[..m]) via prefix sums
+    let mut prefix = 0.0;
+    let mut gamma = g[0] * 2.0;
+    for (m, &v) in g.iter().enumerate() {
+        prefix += v;
+        let cand = 2.0 * prefix / (m + 1) as f64;
+        if v <= cand {
+            gamma = cand;
+        }
+    }
+    // alpha (1 - alpha) = 1 / gamma, alpha in (0, 0.5]
+    let q = 1.0 / gamma;
+    if q >= 0.25 {
+        return 0.5;
+    }
+    0.5 - (0.25 - q).sqrt()
+}
