@@ -8,6 +8,7 @@
 //! among them ([`backtest`]).
 
 pub mod error;
+pub mod holt_winters;
 pub mod linalg;
 pub mod optim;
 pub mod structural;

@@ -10,6 +10,7 @@ import json, os
 import numpy as np, pandas as pd, statsmodels, statsmodels.api as sm
 from statsmodels.stats.diagnostic import acorr_ljungbox
 from statsmodels.tsa.holtwinters import ExponentialSmoothing
+from statsmodels.tsa.exponential_smoothing.ets import ETSModel
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 DATA = os.path.join(HERE, '..', 'data')
@@ -112,11 +113,22 @@ for name, seasonal, damped, init_s in [('add-damped', 'add', True, init_add), ('
     if damped:
         kw['damping_trend'] = 0.95
     r = mod.fit(**kw)
+    # ExponentialSmoothing 0.15.0 forecasts at horizons h = m, 2m, ... use the seasonal state of
+    # one season earlier (its _predict overwrites s[nobs+m-1] with s[nobs-1]); ETSModel with
+    # additive error is the same recursion for additive seasonality (beta_ets = alpha * beta)
+    # and forecasts every horizon from the latest seasonal state, so it is stored as well.
+    ets_fc = None
+    if seasonal == 'add':
+        em = ETSModel(hw, error='add', trend='add', damped_trend=damped, seasonal='add', seasonal_periods=12,
+                      initialization_method='known', initial_level=init_level, initial_trend=init_trend,
+                      initial_seasonal=init_s)
+        ep = [0.3, 0.3 * 0.1, 0.2] + ([0.95] if damped else [])
+        ets_fc = em.smooth(ep).forecast(24).tolist()
     hwout['cases'].append({'name': name, 'seasonal': seasonal, 'damped': damped, 'alpha': 0.3, 'beta': 0.1,
                            'gamma': 0.2, 'phi': 0.95 if damped else 1.0, 'initial_level': init_level,
                            'initial_trend': init_trend, 'initial_seasonal': list(init_s),
                            'fitted': r.fittedvalues.tolist(), 'forecast': r.forecast(24).tolist(),
-                           'sse': float(r.sse)})
+                           'sse': float(r.sse), 'ets_forecast': ets_fc})
 with open(os.path.join(DATA, 'hw_reference.json'), 'w') as f:
     json.dump(hwout, f)
 print('ok', versions, out['a']['mle_params'], out['a']['mle_llf'], out['b']['mle_params'])

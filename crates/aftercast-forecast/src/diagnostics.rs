@@ -1,0 +1,194 @@
+//! Pre-period diagnostics: fit (MAPE, R^2), residual autocorrelation (Ljung-Box), and the
+//! check that a control series did not itself break at the intervention.
+
+use serde::{Deserialize, Serialize};
+
+/// Ljung-Box portmanteau test.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct LjungBox {
+    /// Number of lags `h`.
+    pub lags: usize,
+    /// `Q = n (n + 2) sum_{k=1..h} r_k^2 / (n - k)`.
+    pub statistic: f64,
+    /// `P(chi2_h > Q)`.
+    pub p_value: f64,
+}
+
+/// Sample autocorrelations `r_1..r_h` of the finite values of `x` (demeaned, denominator the
+/// total sum of squares, as in Box & Jenkins).
+pub fn autocorrelations(x: &[f64], h: usize) -> Vec<f64> {
+    let v: Vec<f64> = x.iter().copied().filter(|v| v.is_finite()).collect();
+    let n = v.len();
+    let mean = v.iter().sum::<f64>() / n.max(1) as f64;
+    let d: Vec<f64> = v.iter().map(|x| x - mean).collect();
+    let ss: f64 = d.iter().map(|x| x * x).sum();
+    (1..=h)
+        .map(|k| if k >= n || ss == 0.0 { 0.0 } else { (k..n).map(|t| d[t] * d[t - k]).sum::<f64>() / ss })
+        .collect()
+}
+
+/// Ljung & Box (1978, Biometrika 65:297-303) statistic over `lags` lags (finite values only).
+pub fn ljung_box(x: &[f64], lags: usize) -> LjungBox {
+    let n = x.iter().filter(|v| v.is_finite()).count() as f64;
+    let r = autocorrelations(x, lags);
+    let q = n * (n + 2.0) * r.iter().enumerate().map(|(i, rk)| rk * rk / (n - (i + 1) as f64)).sum::<f64>();
+    LjungBox { lags, statistic: q, p_value: chi2_sf(q, lags as f64) }
+}
+
+/// Survival function of the chi-square distribution, `P(X > x)` with `k` degrees of freedom.
+pub fn chi2_sf(x: f64, k: f64) -> f64 {
+    if !(x > 0.0) {
+        return 1.0;
+    }
+    gamma_q(k / 2.0, x / 2.0)
+}
+
+fn ln_gamma(x: f64) -> f64 {
+    // Lanczos approximation (g = 7, n = 9), relative error below 1e-13 for x > 0
+    const C: [f64; 9] = [
+        0.999_999_999_999_809_9,
+        676.520_368_121_885_1,
+        -1_259.139_216_722_402_8,
+        771.323_428_777_653_1,
+        -176.615_029_162_140_6,
+        12.507_343_278_686_905,
+        -0.138_571_095_265_720_12,
+        9.984_369_578_019_572e-6,
+        1.505_632_735_149_311_6e-7,
+    ];
+    if x < 0.5 {
+        return (std::f64::consts::PI / (std::f64::consts::PI * x).sin()).ln() - ln_gamma(1.0 - x);
+    }
+    let x = x - 1.0;
+    let mut a = C[0];
+    let t = x + 7.5;
+    for (i, c) in C.iter().enumerate().skip(1) {
+        a += c / (x + i as f64);
+    }
+    0.5 * (2.0 * std::f64::consts::PI).ln() + (x + 0.5) * t.ln() - t + a.ln()
+}
+
+/// Regularised upper incomplete gamma `Q(a, x)` (series below `a + 1`, continued fraction above).
+fn gamma_q(a: f64, x: f64) -> f64 {
+    let gln = ln_gamma(a);
+    if x < a + 1.0 {
+        let mut sum = 1.0 / a;
+        let mut del = sum;
+        let mut ap = a;
+        for _ in 0..1000 {
+            ap += 1.0;
+            del *= x / ap;
+            sum += del;
+            if del.abs() < sum.abs() * 1e-15 {
+                break;
+            }
+        }
+        1.0 - sum * (-x + a * x.ln() - gln).exp()
+    } else {
+        let tiny = 1e-300;
+        let mut b = x + 1.0 - a;
+        let mut c = 1.0 / tiny;
+        let mut d = 1.0 / b;
+        let mut h = d;
+        for i in 1..1000 {
+            let an = -(i as f64) * (i as f64 - a);
+            b += 2.0;
+            d = an * d + b;
+            if d.abs() < tiny {
+                d = tiny;
+            }
+            c = b + an / c;
+            if c.abs() < tiny {
+                c = tiny;
+            }
+            d = 1.0 / d;
+            let del = d * c;
+            h *= del;
+            if (del - 1.0).abs() < 1e-15 {
+                break;
+            }
+        }
+        (-x + a * x.ln() - gln).exp() * h
+    }
+}
+
+/// Fit of one-step predictions to observations over the pre-period.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct FitStats {
+    /// Mean absolute percentage error (percent), over observations that are not zero.
+    pub mape: f64,
+    /// `1 - SSE / SST` of the predictions.
+    pub r_squared: f64,
+    /// Root mean squared error.
+    pub rmse: f64,
+    /// Number of periods used.
+    pub n: usize,
+}
+
+/// Fit statistics of `pred` against `obs` (pairs where both are finite).
+pub fn fit_stats(obs: &[f64], pred: &[f64]) -> FitStats {
+    let pairs: Vec<(f64, f64)> =
+        obs.iter().zip(pred).filter(|(o, p)| o.is_finite() && p.is_finite()).map(|(o, p)| (*o, *p)).collect();
+    let n = pairs.len();
+    let mean = pairs.iter().map(|p| p.0).sum::<f64>() / n.max(1) as f64;
+    let sse: f64 = pairs.iter().map(|(o, p)| (o - p).powi(2)).sum();
+    let sst: f64 = pairs.iter().map(|(o, _)| (o - mean).powi(2)).sum();
+    let nz: Vec<f64> = pairs.iter().filter(|(o, _)| *o != 0.0).map(|(o, p)| ((o - p) / o).abs()).collect();
+    FitStats {
+        mape: 100.0 * nz.iter().sum::<f64>() / nz.len().max(1) as f64,
+        r_squared: if sst > 0.0 { 1.0 - sse / sst } else { f64::NAN },
+        rmse: (sse / n.max(1) as f64).sqrt(),
+        n,
+    }
+}
+
+/// Result of the break check of one control series at the intervention.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ControlBreak {
+    /// Control name.
+    pub control: String,
+    /// Mean of (post value - pre-trend projection).
+    pub shift: f64,
+    /// `shift / (s / sqrt(n_eff))`, `s` the pre-window residual sd and `n_eff` the post length
+    /// corrected for lag-1 autocorrelation of the residuals.
+    pub z: f64,
+    /// Whether `|z|` exceeds [`BREAK_Z`].
+    pub flagged: bool,
+}
+
+/// Threshold of the break check (a common-practice 3-sigma rule, not a calibrated test).
+pub const BREAK_Z: f64 = 3.0;
+
+/// Check a control for a level break at the intervention: fit a straight line to the last
+/// `w = min(pre, max(3 post, 28))` pre-period values, project it over the post-period, and
+/// compare the mean post-period departure with its standard error: the pre-window residual sd
+/// times `sqrt(1/post + 1/w + (t_post - t_pre)^2 / S_tt)` (projection error of the line),
+/// inflated for lag-1 autocorrelation `rho` by `sqrt((1 + rho) / (1 - rho))` (a Chow-type
+/// comparison of the post-period mean against the pre-period fit).
+pub fn control_break(name: &str, x: &[f64], pre_end: usize, post_start: usize, post_end: usize) -> ControlBreak {
+    let post = post_end - post_start;
+    let w = pre_end.min((3 * post).max(28)).max(3.min(pre_end));
+    let start = pre_end - w;
+    let ts: Vec<f64> = (start..pre_end).map(|t| t as f64).collect();
+    let ys = &x[start..pre_end];
+    let tm = ts.iter().sum::<f64>() / w as f64;
+    let ym = ys.iter().sum::<f64>() / w as f64;
+    let stt: f64 = ts.iter().map(|t| (t - tm).powi(2)).sum();
+    let slope = if stt > 0.0 { ts.iter().zip(ys).map(|(t, y)| (t - tm) * (y - ym)).sum::<f64>() / stt } else { 0.0 };
+    let resid: Vec<f64> = ts.iter().zip(ys).map(|(t, y)| y - ym - slope * (t - tm)).collect();
+    let s = (resid.iter().map(|r| r * r).sum::<f64>() / (w.saturating_sub(2).max(1)) as f64).sqrt();
+    let rho = autocorrelations(&resid, 1)[0].clamp(-0.9, 0.95);
+    let shift =
+        (post_start..post_end).map(|t| x[t] - (ym + slope * (t as f64 - tm))).sum::<f64>() / post.max(1) as f64;
+    let tp = (post_start + post_end - 1) as f64 / 2.0;
+    let spread = 1.0 / post.max(1) as f64 + 1.0 / w as f64 + if stt > 0.0 { (tp - tm).powi(2) / stt } else { 0.0 };
+    let se = s * ((1.0 + rho) / (1.0 - rho)).sqrt() * spread.sqrt();
+    let z = if se > 0.0 {
+        shift / se
+    } else if shift.abs() > 0.0 {
+        f64::INFINITY
+    } else {
+        0.0
+    };
+    ControlBreak { control: name.to_string(), shift, z, flagged: z.abs() > BREAK_Z }
+}

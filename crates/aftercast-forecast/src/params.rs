@@ -1,0 +1,327 @@
+//! Parameters of a forecasting analysis: a builder ([`ForecastParams`]) that checking turns into
+//! validated parameters ([`ValidParams`]), which fit data.
+//!
+//! | name | default | meaning | allowed |
+//! | --- | --- | --- | --- |
+//! | `model` | `structural` | model family | `structural`, `holt-winters`, `harmonic`, `auto` |
+//! | `seasons` | from the data's frequency | seasonal components (`7`, `365.25:4`) | period > 1; `K <= period / 2` |
+//! | `trend` | `linear-trend` | structural trend | `level`, `linear-trend`, `damped-trend` |
+//! | `log` | `false` | model the log of the outcome (multiplicative effects) | outcome > 0 |
+//! | `level` | `0.9` | interval level | (0, 1) |
+//! | `draws` | `1000` | counterfactual path draws | >= 10 |
+//! | `seed` | `1` | seed of all random streams | any |
+//! | `parameter_uncertainty` | `true` | draw structural variances from the MLE's asymptotic normal | |
+//! | `parameter_sets` | `100` | distinct parameter draws (one filter pass each) | >= 1 |
+//! | `hw_seasonality` | `additive` | Holt-Winters seasonality | `none`, `additive`, `multiplicative` |
+//! | `hw_damped` | `false` | damped Holt-Winters trend | |
+//! | `ridge` | GCV | harmonic-regression ridge penalty (on standardised columns) | >= 0 |
+//! | `backtest_folds` | `3` | rolling origins in the pre-period | 0 ..= 20 |
+//! | `backtest_draws` | `200` | path draws per backtest forecast | >= 10 |
+//! | `rope` | +-1% | region of practical equivalence | low < high |
+//! | `threshold` | none | report P(average effect > threshold) | finite |
+
+use crate::error::{ForecastError, ForecastResult};
+use crate::holt_winters::Seasonality;
+use crate::structural::{SeasonKind, Trend};
+use aftercast_core::result::Rope;
+use aftercast_core::time::Frequency;
+use serde::{Deserialize, Serialize};
+
+/// Model family.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "kebab-case")]
+pub enum ModelKind {
+    /// Structural time-series model (state space, exact diffuse Kalman filter).
+    #[default]
+    Structural,
+    /// Holt-Winters exponential smoothing.
+    HoltWinters,
+    /// Ridge-penalised harmonic regression with stationary-bootstrap residuals.
+    Harmonic,
+    /// Choose by rolling-origin backtest (lowest CRPS).
+    Auto,
+}
+
+impl ModelKind {
+    /// The name as written on the command line and in results.
+    pub fn name(self) -> &'static str {
+        match self {
+            ModelKind::Structural => "structural",
+            ModelKind::HoltWinters => "holt-winters",
+            ModelKind::Harmonic => "harmonic",
+            ModelKind::Auto => "auto",
+        }
+    }
+}
+
+impl std::str::FromStr for ModelKind {
+    type Err = ForecastError;
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        match s.trim().to_ascii_lowercase().as_str() {
+            "structural" => Ok(ModelKind::Structural),
+            "holt-winters" | "holtwinters" => Ok(ModelKind::HoltWinters),
+            "harmonic" => Ok(ModelKind::Harmonic),
+            "auto" => Ok(ModelKind::Auto),
+            _ => Err(ForecastError::BadParameter {
+                name: "model",
+                value: s.to_string(),
+                detail: "use structural, holt-winters, harmonic or auto".into(),
+            }),
+        }
+    }
+}
+
+/// A seasonal component as the user gives it: `P` (an integer period is a dummy seasonal, a
+/// fractional one trigonometric with `min(4, P/2)` harmonics) or `P:K` (trigonometric, K harmonics).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Season {
+    /// The period in time steps.
+    pub period: f64,
+    /// Harmonics, for a trigonometric seasonal.
+    pub harmonics: Option<usize>,
+}
+
+impl std::str::FromStr for Season {
+    type Err = ForecastError;
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        let bad = |d: &str| ForecastError::BadSeason { text: s.to_string(), detail: d.to_string() };
+        let (p, k) = match s.trim().split_once(':') {
+            Some((p, k)) => (p, Some(k)),
+            None => (s.trim(), None),
+        };
+        let period: f64 = p.trim().parse().map_err(|_| bad("the period is not a number (examples: 7, 365.25:4)"))?;
+        if !period.is_finite() || period < 2.0 {
+            return Err(bad("the period must be at least 2"));
+        }
+        let harmonics = match k {
+            Some(k) => {
+                let k: usize = k.trim().parse().map_err(|_| bad("the number of harmonics is not a whole number"))?;
+                if k == 0 || 2.0 * k as f64 > period + 1e-12 {
+                    return Err(bad("the number of harmonics must be between 1 and period / 2"));
+                }
+                Some(k)
+            }
+            None => None,
+        };
+        Ok(Season { period, harmonics })
+    }
+}
+
+impl Season {
+    /// The structural component this season becomes.
+    pub fn kind(&self) -> SeasonKind {
+        let is_int = (self.period - self.period.round()).abs() < 1e-9;
+        match self.harmonics {
+            None if is_int => SeasonKind::Dummy { period: self.period.round() as usize },
+            None => SeasonKind::Trig { period: self.period, harmonics: ((self.period / 2.0).floor() as usize).clamp(1, 4) },
+            Some(k) => SeasonKind::Trig { period: self.period, harmonics: k },
+        }
+    }
+
+    /// Number of Fourier harmonics used by the harmonic regression for this season.
+    pub fn fourier_harmonics(&self) -> usize {
+        match self.kind() {
+            SeasonKind::Dummy { period } => period / 2,
+            SeasonKind::Trig { harmonics, .. } => harmonics,
+        }
+    }
+
+    /// The seasons that follow a frequency (daily: 7 and 365.25:4; weekly: 52.18:4; monthly:
+    /// 12; quarterly: 4; integer periods: none).
+    pub fn defaults(freq: Frequency) -> Vec<Season> {
+        freq.default_seasons()
+            .into_iter()
+            .map(|p| {
+                let is_int = (p - p.round()).abs() < 1e-9;
+                Season { period: p, harmonics: (!is_int).then_some(4) }
+            })
+            .collect()
+    }
+
+    /// Text form (`7` or `365.25:4`).
+    pub fn label(&self) -> String {
+        match self.kind() {
+            SeasonKind::Dummy { period } => format!("{period}"),
+            SeasonKind::Trig { period, harmonics } => format!("{period}:{harmonics}"),
+        }
+    }
+}
+
+/// Unchecked parameters (builder). See the module table for defaults and ranges.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ForecastParams {
+    /// Model family.
+    pub model: ModelKind,
+    /// Seasonal components; `None` follows the data's frequency.
+    pub seasons: Option<Vec<Season>>,
+    /// Structural trend.
+    pub trend: Trend,
+    /// Model the log of the outcome.
+    pub log: bool,
+    /// Interval level.
+    pub level: f64,
+    /// Counterfactual path draws.
+    pub draws: usize,
+    /// Seed.
+    pub seed: u64,
+    /// Structural parameter uncertainty.
+    pub parameter_uncertainty: bool,
+    /// Distinct structural parameter draws.
+    pub parameter_sets: usize,
+    /// Holt-Winters seasonality.
+    pub hw_seasonality: Seasonality,
+    /// Holt-Winters damped trend.
+    pub hw_damped: bool,
+    /// Harmonic-regression ridge penalty; `None` chooses it by generalised cross-validation.
+    pub ridge: Option<f64>,
+    /// Rolling origins of the pre-period backtest.
+    pub backtest_folds: usize,
+    /// Draws per backtest forecast.
+    pub backtest_draws: usize,
+    /// ROPE.
+    pub rope: Rope,
+    /// Threshold for P(average effect > threshold).
+    pub threshold: Option<f64>,
+}
+
+impl Default for ForecastParams {
+    fn default() -> Self {
+        ForecastParams {
+            model: ModelKind::Structural,
+            seasons: None,
+            trend: Trend::LinearTrend,
+            log: false,
+            level: 0.9,
+            draws: 1000,
+            seed: 1,
+            parameter_uncertainty: true,
+            parameter_sets: 100,
+            hw_seasonality: Seasonality::Additive,
+            hw_damped: false,
+            ridge: None,
+            backtest_folds: 3,
+            backtest_draws: 200,
+            rope: Rope::default(),
+            threshold: None,
+        }
+    }
+}
+
+/// Checked parameters; obtained only through [`ForecastParams::check`].
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ValidParams(pub(crate) ForecastParams);
+
+impl ForecastParams {
+    /// Start from the defaults.
+    pub fn builder() -> Self {
+        Self::default()
+    }
+    /// Set the model family.
+    pub fn model(mut self, m: ModelKind) -> Self {
+        self.model = m;
+        self
+    }
+    /// Add a seasonal component (the first call replaces the frequency defaults).
+    pub fn season(mut self, s: Season) -> Self {
+        self.seasons.get_or_insert_with(Vec::new).push(s);
+        self
+    }
+    /// Use no seasonal component at all.
+    pub fn no_seasons(mut self) -> Self {
+        self.seasons = Some(Vec::new());
+        self
+    }
+    /// Set the structural trend.
+    pub fn trend(mut self, t: Trend) -> Self {
+        self.trend = t;
+        self
+    }
+    /// Model the log of the outcome.
+    pub fn log(mut self, on: bool) -> Self {
+        self.log = on;
+        self
+    }
+    /// Interval level.
+    pub fn level(mut self, l: f64) -> Self {
+        self.level = l;
+        self
+    }
+    /// Number of draws.
+    pub fn draws(mut self, n: usize) -> Self {
+        self.draws = n;
+        self
+    }
+    /// Seed.
+    pub fn seed(mut self, s: u64) -> Self {
+        self.seed = s;
+        self
+    }
+    /// Rolling origins of the backtest (0 = none).
+    pub fn backtest_folds(mut self, n: usize) -> Self {
+        self.backtest_folds = n;
+        self
+    }
+    /// ROPE.
+    pub fn rope(mut self, r: Rope) -> Self {
+        self.rope = r;
+        self
+    }
+
+    /// Check every parameter against its allowed range.
+    ///
+    /// # Errors
+    /// [`ForecastError::BadParameter`] naming the first offending parameter.
+    pub fn check(self) -> ForecastResult<ValidParams> {
+        let bad = |name: &'static str, value: String, detail: &str| {
+            Err(ForecastError::BadParameter { name, value, detail: detail.to_string() })
+        };
+        if !(self.level > 0.0 && self.level < 1.0) {
+            return bad("level", self.level.to_string(), "must lie strictly between 0 and 1");
+        }
+        if self.draws < 10 {
+            return bad("draws", self.draws.to_string(), "at least 10 draws are needed");
+        }
+        if self.parameter_sets == 0 {
+            return bad("parameter_sets", "0".into(), "at least 1");
+        }
+        if self.backtest_folds > 20 {
+            return bad("backtest_folds", self.backtest_folds.to_string(), "at most 20");
+        }
+        if self.backtest_draws < 10 {
+            return bad("backtest_draws", self.backtest_draws.to_string(), "at least 10 draws are needed");
+        }
+        if let Some(r) = self.ridge
+            && !(r.is_finite() && r >= 0.0)
+        {
+            return bad("ridge", r.to_string(), "must be a finite number >= 0");
+        }
+        if let Some(t) = self.threshold
+            && !t.is_finite()
+        {
+            return bad("threshold", t.to_string(), "must be finite");
+        }
+        if !(self.rope.low < self.rope.high && self.rope.low.is_finite() && self.rope.high.is_finite()) {
+            return bad("rope", format!("{}:{}", self.rope.low, self.rope.high), "needs finite low < high");
+        }
+        if let Some(ss) = &self.seasons {
+            for s in ss {
+                if !(s.period.is_finite() && s.period >= 2.0) {
+                    return bad("season", s.period.to_string(), "the period must be at least 2");
+                }
+                if let Some(k) = s.harmonics
+                    && (k == 0 || 2.0 * k as f64 > s.period + 1e-12)
+                {
+                    return bad("season", s.label(), "harmonics must be between 1 and period / 2");
+                }
+            }
+        }
+        Ok(ValidParams(self))
+    }
+}
+
+impl ValidParams {
+    /// The checked values.
+    pub fn get(&self) -> &ForecastParams {
+        &self.0
+    }
+}
