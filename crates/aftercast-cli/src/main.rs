@@ -4,7 +4,9 @@
 //! Exit codes: 0 success, 2 bad input or usage, 1 internal failure.
 
 mod common;
+mod demo;
 mod failure;
+mod study;
 mod verbs;
 
 use clap::{Parser, Subcommand};
@@ -12,26 +14,37 @@ use clap::{Parser, Subcommand};
 /// Estimate what a change did when nobody kept a randomized control group.
 #[derive(Debug, Parser)]
 #[command(name = "aftercast", version, about, long_about = None, propagate_version = true)]
-struct Cli {
+pub(crate) struct Cli {
     #[command(subcommand)]
-    verb: Verb,
+    pub(crate) verb: Verb,
 }
 
 #[derive(Debug, Subcommand)]
-enum Verb {
+pub(crate) enum Verb {
     /// Read and validate an input file the way the analyses do, and describe it.
     Inspect(verbs::inspect::Args),
+    /// Run every analysis a study file lists; write result.json, charts and report.html.
+    Run(verbs::run::Args),
 }
 
 fn threads_of(verb: &Verb) -> Option<u64> {
     match verb {
         Verb::Inspect(_) => None,
+        Verb::Run(a) => a.threads,
+    }
+}
+
+/// Run an analysis verb and hand back its result (None for verbs that are not analyses).
+pub(crate) fn analyze(verb: &Verb) -> Option<anyhow::Result<verbs::Outcome>> {
+    match verb {
+        Verb::Inspect(_) | Verb::Run(_) => None,
     }
 }
 
 fn dispatch(verb: &Verb) -> anyhow::Result<()> {
     match verb {
         Verb::Inspect(a) => verbs::inspect::run(a),
+        Verb::Run(a) => verbs::run::run(a),
     }
 }
 
@@ -53,7 +66,9 @@ fn main() {
             code
         }
         Err(_) => {
-            eprintln!("aftercast: internal error: the program stopped unexpectedly (a bug; please report it with the command line)");
+            eprintln!(
+                "aftercast: internal error: the program stopped unexpectedly (a bug; please report it with the command line)"
+            );
             1
         }
     };

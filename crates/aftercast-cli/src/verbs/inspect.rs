@@ -92,7 +92,8 @@ fn need<'a>(v: &'a Option<String>, flag: &str, shape: &str) -> anyhow::Result<&'
 pub fn run(a: &Args) -> anyhow::Result<()> {
     let table = read_table(&a.data)?;
     let info = table.info();
-    let mut lines = vec![format!("{}: {} rows, {} columns ({:?})", info.path, info.rows, table.header().len(), table.format())];
+    let mut lines =
+        vec![format!("{}: {} rows, {} columns ({:?})", info.path, info.rows, table.header().len(), table.format())];
     let mut doc = json!({ "input": info, "columns": table.header() });
     match a.shape {
         Shape::Table => {
@@ -154,7 +155,13 @@ pub fn run(a: &Args) -> anyhow::Result<()> {
                 Panel::from_long(&table, &spec)?
             } else {
                 let time = need(&a.time, "--time", "wide-panel")?;
-                Panel::from_wide(&table, time, None, &a.data_options.date_format(), a.outcome.as_deref().unwrap_or("outcome"))?
+                Panel::from_wide(
+                    &table,
+                    time,
+                    None,
+                    &a.data_options.date_format(),
+                    a.outcome.as_deref().unwrap_or("outcome"),
+                )?
             };
             lines.push(format!("  panel: {} units x {} {:?} periods", p.units.len(), p.periods(), p.axis.frequency()));
             if let Some(t) = &a.treated {
@@ -163,7 +170,8 @@ pub fn run(a: &Args) -> anyhow::Result<()> {
                 }
             }
             if let Some(start) = &a.start {
-                let sp = aftercast_core::series::split_axis(&p.axis, &p.input.path, start, a.end.as_deref(), 0, a.min_pre)?;
+                let sp =
+                    aftercast_core::series::split_axis(&p.axis, &p.input.path, start, a.end.as_deref(), 0, a.min_pre)?;
                 lines.push(format!("  {} pre-periods and {} post-periods", sp.pre_end, sp.post_len()));
                 doc["split"] = json!({"pre": sp.pre_end, "post": sp.post_len()});
             }

@@ -1,6 +1,7 @@
 //! One module per verb. See README.md in this folder for the pattern a verb follows.
 
 pub mod inspect;
+pub mod run;
 
 use crate::common::{Common, write_outputs};
 use aftercast_core::result::AnalysisResult;

@@ -1,0 +1,183 @@
+//! Study files: a TOML file that lists any number of analyses, each written with the same flags
+//! as the verb it runs, so every analysis of a study is also one reproducible command line.
+//!
+//! ```toml
+//! title = "What did the spring changes do?"
+//!
+//! [defaults]          # flags given to every analysis unless it sets them itself
+//! level = 0.9
+//! seed = 7
+//!
+//! [[analysis]]
+//! name = "app-launch"                 # file-name-safe, unique
+//! question = "app-orders"             # analyses with the same question are compared side by side
+//! verb = "forecast"
+//! describe = "Daily app orders after the 2 March launch"
+//! [analysis.flags]
+//! data = "data/app_daily.csv"         # paths are relative to the study file
+//! time = "date"
+//! outcome = "app_orders"
+//! start = "2026-03-02"
+//! ```
+//!
+//! A flag's value is a string, number or boolean (`true` passes a bare switch such as `replace`),
+//! or an array (repeated flag, e.g. `season = ["7", "365.25:4"]`).
+
+use crate::failure::bad_input_msg;
+use serde::Deserialize;
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+/// A parsed study file.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Study {
+    /// Title of the report.
+    pub title: String,
+    /// A paragraph saying what the study asks.
+    #[serde(default)]
+    pub summary: Option<String>,
+    /// Flags given to every analysis.
+    #[serde(default)]
+    pub defaults: BTreeMap<String, toml::Value>,
+    /// The analyses, run in order.
+    #[serde(rename = "analysis", default)]
+    pub analyses: Vec<AnalysisSpec>,
+    /// Plain-language answers to each question key, for the triangulation section.
+    #[serde(default)]
+    pub questions: BTreeMap<String, String>,
+}
+
+/// One analysis of a study.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct AnalysisSpec {
+    /// Unique, file-name-safe name.
+    pub name: String,
+    /// Question key: analyses sharing it answer the same question.
+    #[serde(default)]
+    pub question: Option<String>,
+    /// The verb to run (an analysis verb).
+    pub verb: String,
+    /// One line for the report.
+    #[serde(default)]
+    pub describe: Option<String>,
+    /// The true effect, when known (demo, simulations): shown next to the estimate.
+    #[serde(default)]
+    pub truth: Option<f64>,
+    /// Which summary the truth refers to: "average", "cumulative" or "relative".
+    #[serde(default)]
+    pub truth_of: Option<String>,
+    /// The verb's flags, without the leading `--`.
+    #[serde(default)]
+    pub flags: BTreeMap<String, toml::Value>,
+}
+
+/// Flags a study may not set: outputs belong to the study run.
+const RESERVED: &[&str] = &["json", "out", "force", "quiet", "threads"];
+
+/// Flags whose values are file paths, resolved against the study file's folder.
+const PATH_FLAGS: &[&str] = &["data", "events", "experiment", "pool", "history", "exposures", "calendar"];
+
+impl Study {
+    /// Read and check a study file.
+    ///
+    /// # Errors
+    /// Bad input for unreadable or malformed files, duplicate or unsafe names, reserved flags.
+    pub fn read(path: &Path) -> anyhow::Result<Study> {
+        let text = std::fs::read_to_string(path)
+            .map_err(|source| aftercast_core::DataError::Io { path: path.to_path_buf(), source })?;
+        let study: Study = toml::from_str(&text)
+            .map_err(|e| bad_input_msg(format!("{}: not a valid study file: {e}", path.display())))?;
+        let mut seen = std::collections::HashSet::new();
+        if study.analyses.is_empty() {
+            return Err(bad_input_msg(format!("{}: the study lists no [[analysis]]", path.display())));
+        }
+        for a in &study.analyses {
+            if a.name.is_empty() || !a.name.chars().all(|c| c.is_ascii_alphanumeric() || c == '-' || c == '_') {
+                return Err(bad_input_msg(format!(
+                    "{}: analysis name '{}' must be letters, digits, '-' or '_'",
+                    path.display(),
+                    a.name
+                )));
+            }
+            if !seen.insert(a.name.clone()) {
+                return Err(bad_input_msg(format!("{}: analysis name '{}' appears twice", path.display(), a.name)));
+            }
+            for k in a.flags.keys().chain(study.defaults.keys()) {
+                if RESERVED.contains(&k.as_str()) {
+                    return Err(bad_input_msg(format!(
+                        "{}: analysis '{}': flag '{k}' is set by the study run and may not be given",
+                        path.display(),
+                        a.name
+                    )));
+                }
+            }
+        }
+        Ok(study)
+    }
+
+    /// The argument vector of one analysis (`aftercast <verb> --flag value ...`), with paths
+    /// resolved against `base` (the study file's folder).
+    ///
+    /// # Errors
+    /// Bad input for flag values of an unsupported type.
+    pub fn argv(&self, a: &AnalysisSpec, base: &Path) -> anyhow::Result<Vec<String>> {
+        let mut argv = vec!["aftercast".to_string(), a.verb.clone()];
+        let mut merged: BTreeMap<&str, &toml::Value> = BTreeMap::new();
+        for (k, v) in &self.defaults {
+            merged.insert(k, v);
+        }
+        for (k, v) in &a.flags {
+            merged.insert(k, v);
+        }
+        for (k, v) in merged {
+            let values: Vec<&toml::Value> = match v {
+                toml::Value::Array(items) => items.iter().collect(),
+                other => vec![other],
+            };
+            for v in values {
+                let text = match v {
+                    toml::Value::String(s) => s.clone(),
+                    toml::Value::Integer(i) => i.to_string(),
+                    toml::Value::Float(f) => f.to_string(),
+                    toml::Value::Boolean(true) => {
+                        argv.push(format!("--{k}"));
+                        continue;
+                    }
+                    toml::Value::Boolean(false) => continue,
+                    other => {
+                        return Err(bad_input_msg(format!(
+                            "analysis '{}': flag '{k}' has a value of type {} (use a string, number, boolean or array)",
+                            a.name,
+                            other.type_str()
+                        )));
+                    }
+                };
+                let text = if PATH_FLAGS.contains(&k) { resolve(base, &text) } else { text };
+                argv.push(format!("--{k}"));
+                argv.push(text);
+            }
+        }
+        Ok(argv)
+    }
+}
+
+fn resolve(base: &Path, p: &str) -> String {
+    let path = PathBuf::from(p);
+    if path.is_absolute() { p.to_string() } else { base.join(path).to_string_lossy().into_owned() }
+}
+
+/// Quote an argument vector as a shell command a user can paste.
+pub fn shell_line(argv: &[String]) -> String {
+    argv.iter()
+        .map(|a| {
+            if !a.is_empty() && a.chars().all(|c| c.is_ascii_alphanumeric() || "-_./:=,%".contains(c)) {
+                a.clone()
+            } else {
+                format!("'{}'", a.replace('\'', "'\\''"))
+            }
+        })
+        .collect::<Vec<_>>()
+        .join(" ")
+}

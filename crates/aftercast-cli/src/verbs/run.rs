@@ -1,0 +1,139 @@
+//! `aftercast run STUDY.toml --out DIR`: run every analysis a study file lists and write
+//! DIR/result.json (all results), DIR/analyses/<name>.json, and the report.
+
+use crate::common::check_out_dir;
+use crate::failure::bad_input_msg;
+use crate::study::{Study, shell_line};
+use aftercast_core::result::{AnalysisResult, TOOL_VERSION};
+use clap::Parser;
+use serde::{Deserialize, Serialize};
+use std::path::{Path, PathBuf};
+
+/// Arguments of `run`.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// The study file (TOML; schema in docs/study.md).
+    pub study: PathBuf,
+    /// Folder for result.json, the per-analysis results, charts and report.html.
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Allow writing into a folder that is not empty.
+    #[arg(long)]
+    pub force: bool,
+    /// Worker threads (default: all cores). Results do not depend on it.
+    #[arg(long, value_parser = clap::value_parser!(u64).range(1..=1024))]
+    pub threads: Option<u64>,
+    /// Print nothing on success.
+    #[arg(long)]
+    pub quiet: bool,
+}
+
+/// One analysis as recorded in a study's result.json.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct StudyEntry {
+    /// Analysis name.
+    pub name: String,
+    /// Question key (analyses sharing it are compared).
+    pub question: Option<String>,
+    /// One-line description.
+    pub describe: Option<String>,
+    /// The command that reproduces this analysis alone.
+    pub command: String,
+    /// The true effect, when the study states one.
+    pub truth: Option<f64>,
+    /// Which summary the truth refers to.
+    pub truth_of: Option<String>,
+    /// Headline printed with the terminal summary.
+    pub headline: String,
+    /// The analysis result.
+    pub result: AnalysisResult,
+}
+
+/// The whole study result (DIR/result.json).
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct StudyResult {
+    /// Version of aftercast.
+    pub tool_version: String,
+    /// Study title.
+    pub title: String,
+    /// Study summary paragraph.
+    pub summary: Option<String>,
+    /// The study file as run (its text), so the report can reproduce it.
+    pub study_file: String,
+    /// The command that reproduces the whole run.
+    pub command: String,
+    /// The analyses in order.
+    pub analyses: Vec<StudyEntry>,
+}
+
+/// Run a study file into `out`; returns the result document.
+///
+/// # Errors
+/// Bad input for a malformed study or any analysis whose inputs are bad; internal errors
+/// otherwise. The first failing analysis stops the run, naming it.
+pub fn run_study(study_path: &Path, out: &Path, force: bool, quiet: bool) -> anyhow::Result<StudyResult> {
+    let study = Study::read(study_path)?;
+    check_out_dir(out, force)?;
+    let base = study_path.parent().map(Path::to_path_buf).unwrap_or_else(|| PathBuf::from("."));
+    let mut entries = Vec::new();
+    for a in &study.analyses {
+        let argv = study.argv(a, &base)?;
+        let cli = crate::Cli::try_parse_from(&argv).map_err(|e| {
+            bad_input_msg(format!("{}: analysis '{}': {}", study_path.display(), a.name, e.render().to_string().trim()))
+        })?;
+        let outcome = match crate::analyze(&cli.verb) {
+            Some(r) => r.map_err(|e| e.context(format!("analysis '{}' of {}", a.name, study_path.display())))?,
+            None => {
+                return Err(bad_input_msg(format!(
+                    "{}: analysis '{}': '{}' is not an analysis verb",
+                    study_path.display(),
+                    a.name,
+                    a.verb
+                )));
+            }
+        };
+        if !quiet {
+            println!("== {} ==", a.name);
+            print!("{}", aftercast_report::terminal_summary(&outcome.result, &outcome.headline));
+        }
+        aftercast_report::write_json(&out.join("analyses").join(format!("{}.json", a.name)), &outcome.result)?;
+        entries.push(StudyEntry {
+            name: a.name.clone(),
+            question: a.question.clone(),
+            describe: a.describe.clone(),
+            command: shell_line(&argv),
+            truth: a.truth,
+            truth_of: a.truth_of.clone(),
+            headline: outcome.headline,
+            result: outcome.result,
+        });
+    }
+    let doc = StudyResult {
+        tool_version: TOOL_VERSION.to_string(),
+        title: study.title.clone(),
+        summary: study.summary.clone(),
+        study_file: std::fs::read_to_string(study_path).unwrap_or_default(),
+        command: shell_line(&[
+            "aftercast".into(),
+            "run".into(),
+            study_path.display().to_string(),
+            "--out".into(),
+            out.display().to_string(),
+        ]),
+        analyses: entries,
+    };
+    aftercast_report::write_json(&out.join("result.json"), &doc)?;
+    Ok(doc)
+}
+
+/// Run `run`.
+///
+/// # Errors
+/// As [`run_study`].
+pub fn run(a: &Args) -> anyhow::Result<()> {
+    let doc = run_study(&a.study, &a.out, a.force, a.quiet)?;
+    if !a.quiet {
+        println!("wrote {} analyses to {}", doc.analyses.len(), a.out.display());
+    }
+    Ok(())
+}
