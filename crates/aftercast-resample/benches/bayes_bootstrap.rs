@@ -65,7 +65,11 @@ fn main() {
     let rng_s = time("RNG only: Exp(1) ziggurat, 2 x 500,000 x 2,000 variates", 2, || {
         par_draws(42, DRAWS, |_, rng| (0..2 * UNITS).map(|_| exp1(rng)).sum::<f64>())
     });
-    println!("  => {:.3e} Exp(1) variates/s ({:.2} ns each per core)", n_exp / rng_s, rng_s * threads as f64 / n_exp * 1e9);
+    println!(
+        "  => {:.3e} Exp(1) variates/s ({:.2} ns each per core)",
+        n_exp / rng_s,
+        rng_s * threads as f64 / n_exp * 1e9
+    );
     let inv_s = time("RNG only: Exp(1) by inversion -ln(1-U), 1/4 of the variates", 1, || {
         par_draws(42, DRAWS / 4, |_, rng| (0..2 * UNITS).map(|_| rng.exp1()).sum::<f64>())
     });
@@ -77,7 +81,8 @@ fn main() {
     let t_exp = time("single thread: 20M Exp(1)", 1, || (0..m).map(|_| exp1(&mut rng)).sum::<f64>());
     for k in [2.0, 50.0] {
         let g = Gamma::new(k, 1.0).expect("gamma");
-        let t_g = time(&format!("single thread: 20M Gamma({k})"), 1, || (0..m).map(|_| g.sample(&mut rng)).sum::<f64>());
+        let t_g =
+            time(&format!("single thread: 20M Gamma({k})"), 1, || (0..m).map(|_| g.sample(&mut rng)).sum::<f64>());
         println!("  => Gamma({k}) / Exp(1) cost ratio {:.2}", t_g / t_exp);
     }
 

@@ -165,8 +165,8 @@ pub fn draw_blocks<R: Rng + ?Sized>(
     match *scheme {
         BlockScheme::Stationary { mean_length } => {
             // Geometric counts failures before the first success; a block has 1 + that periods.
-            let geo = Geometric::new(1.0 / mean_length)
-                .map_err(|_| BlockError::InvalidMeanLength { value: mean_length })?;
+            let geo =
+                Geometric::new(1.0 / mean_length).map_err(|_| BlockError::InvalidMeanLength { value: mean_length })?;
             while filled < out_len {
                 let start = rng.random_range(0..n);
                 let drawn = geo.sample(rng).saturating_add(1);
@@ -224,11 +224,7 @@ pub fn resample_indices<R: Rng + ?Sized>(
 /// # Errors
 /// [`BlockError::EmptySeries`], [`BlockError::NonFinite`], and the scheme errors of
 /// [`draw_blocks`].
-pub fn resample_series<R: Rng + ?Sized>(
-    x: &[f64],
-    scheme: &BlockScheme,
-    rng: &mut R,
-) -> Result<Vec<f64>, BlockError> {
+pub fn resample_series<R: Rng + ?Sized>(x: &[f64], scheme: &BlockScheme, rng: &mut R) -> Result<Vec<f64>, BlockError> {
     check_series(x)?;
     Ok(resample_indices(scheme, x.len(), rng)?.into_iter().map(|i| x[i]).collect())
 }
@@ -331,9 +327,8 @@ pub fn optimal_block_length(x: &[f64]) -> Result<BlockLength, BlockError> {
     }
     let mean = x.iter().sum::<f64>() / nf;
     let eps: Vec<f64> = x.iter().map(|v| v - mean).collect();
-    let acv: Vec<f64> = (0..=m_max)
-        .map(|k| eps[k..].iter().zip(&eps[..n - k]).map(|(a, b)| a * b).sum::<f64>() / nf)
-        .collect();
+    let acv: Vec<f64> =
+        (0..=m_max).map(|k| eps[k..].iter().zip(&eps[..n - k]).map(|(a, b)| a * b).sum::<f64>() / nf).collect();
     if acv[0] <= 0.0 {
         return Err(BlockError::ConstantSeries { value: x[0] });
     }

@@ -2,7 +2,7 @@
 
 mod tol;
 
-use aftercast_resample::bayes::{BayesBootstrap, BayesError, Sample, TieAggregation};
+use aftercast_resample::bayes::{BayesBootstrap, BayesError, PairSample, Sample, TieAggregation};
 use aftercast_resample::rng::Stream;
 use rand::RngExt;
 
@@ -85,7 +85,8 @@ fn rubin_1981_general_formula_on_random_data() {
 fn two_group_difference_is_stratified() {
     let mut rng = Stream::new(5, 5);
     let t: Vec<f64> = (0..30).map(|_| rng.random::<f64>() * 10.0 + 2.0).collect();
-    let c: Vec<f64> = (0..50).map(|_| if rng.random::<f64>() < 0.6 { 0.0 } else { rng.random::<f64>() * 8.0 }).collect();
+    let c: Vec<f64> =
+        (0..50).map(|_| if rng.random::<f64>() < 0.6 { 0.0 } else { rng.random::<f64>() * 8.0 }).collect();
     let d = BayesBootstrap::new(tol::RUBIN_DRAWS, 11).two_groups(&t, &c).expect("draws");
     let want_v = rubin_variance(&t) + rubin_variance(&c);
     assert!(((var(&d.difference) - want_v) / want_v).abs() < tol::RUBIN_VARIANCE_REL);
@@ -193,6 +194,17 @@ fn ratio_with_unit_denominator_is_the_mean() {
     let per_unit: Vec<f64> = x.iter().zip(&den).map(|(a, b)| a / b).collect();
     let (lo, hi) = per_unit.iter().fold((f64::MAX, f64::MIN), |(l, h), v| (l.min(*v), h.max(*v)));
     assert!(rr.iter().all(|v| *v >= lo - 1e-12 && *v <= hi + 1e-12));
+    // stratified ratios with unit denominators are the stratified means, draw for draw
+    let y = [2.0, 0.0, 0.0, 4.0];
+    let pa = PairSample::for_group(&x, &ones, TieAggregation::Auto, 0).expect("pairs");
+    let pb = PairSample::for_group(&y, &[1.0; 4], TieAggregation::Auto, 1).expect("pairs");
+    let sa = Sample::for_group(&x, TieAggregation::Auto, 0).expect("sample");
+    let sb = Sample::for_group(&y, TieAggregation::Auto, 1).expect("sample");
+    let by_ratio = boot.stratified_ratios(&[pa, pb], |r| r[0] - r[1]).expect("ratios");
+    let by_mean = boot.stratified_samples(&[sa, sb], |m| m[0] - m[1]).expect("means");
+    for (a, b) in by_ratio.iter().zip(&by_mean) {
+        assert!((a - b).abs() <= 1e-12 * b.abs().max(1.0));
+    }
 }
 
 #[test]

@@ -57,7 +57,8 @@ fn automatic_block_length_matches_arch() {
         let want = &reference.series[name];
         assert_eq!(x.len(), want.n, "{name}: series length");
         let got = optimal_block_length(&x).expect("block length");
-        for (what, g, w) in [("stationary", got.stationary, want.stationary), ("circular", got.circular, want.circular)] {
+        for (what, g, w) in [("stationary", got.stationary, want.stationary), ("circular", got.circular, want.circular)]
+        {
             let w = w.max(1.0);
             let rel = ((g - w) / w).abs();
             assert!(rel <= tol::ARCH_BLOCK_LENGTH_REL, "{name} {what}: ours {g}, arch {w} (rel {rel:e}); {got:?}");
@@ -82,7 +83,8 @@ fn block_length_cap_is_published_formula() {
 fn stationary_mean_block_length_matches_parameter() {
     for b in [1.0, 2.5, 7.5, 20.0] {
         let mut rng = Stream::new(2024, b as u64);
-        let blocks = draw_blocks(&BlockScheme::Stationary { mean_length: b }, 1000, 1_000_000, &mut rng).expect("blocks");
+        let blocks =
+            draw_blocks(&BlockScheme::Stationary { mean_length: b }, 1000, 1_000_000, &mut rng).expect("blocks");
         let complete = &blocks[..blocks.len() - 1];
         let mean = complete.iter().map(|bl| bl.len as f64).sum::<f64>() / complete.len() as f64;
         // tolerance scales with the geometric sd, sqrt(1-p)/p <= b
@@ -101,7 +103,8 @@ fn stationary_break_rate_in_indices() {
     let mut breaks = 0usize;
     let mut steps = 0usize;
     for r in 0..400u64 {
-        let idx = resample_indices(&BlockScheme::Stationary { mean_length: b }, n, &mut Stream::new(77, r)).expect("indices");
+        let idx =
+            resample_indices(&BlockScheme::Stationary { mean_length: b }, n, &mut Stream::new(77, r)).expect("indices");
         assert_eq!(idx.len(), n);
         breaks += idx.windows(2).filter(|w| w[1] != (w[0] + 1) % n).count();
         steps += n - 1;
@@ -120,8 +123,12 @@ fn moving_blocks_fixed_length_and_start_ranges() {
     let mut seen_clipped = vec![false; n];
     let mut seen_circular = vec![false; n];
     for r in 0..2000u64 {
-        let clipped = draw_blocks(&BlockScheme::Moving { length: l, wrap: Wrap::Clipped }, n, n, &mut Stream::new(5, r)).expect("blocks");
-        let circular = draw_blocks(&BlockScheme::Moving { length: l, wrap: Wrap::Circular }, n, n, &mut Stream::new(6, r)).expect("blocks");
+        let clipped =
+            draw_blocks(&BlockScheme::Moving { length: l, wrap: Wrap::Clipped }, n, n, &mut Stream::new(5, r))
+                .expect("blocks");
+        let circular =
+            draw_blocks(&BlockScheme::Moving { length: l, wrap: Wrap::Circular }, n, n, &mut Stream::new(6, r))
+                .expect("blocks");
         for blocks in [&clipped, &circular] {
             assert_eq!(blocks.len(), n.div_ceil(l));
             assert!(blocks[..blocks.len() - 1].iter().all(|b| b.len == l));
@@ -147,8 +154,9 @@ fn stationary_bootstrap_variance_of_mean_has_long_run_scale() {
     let x = read_column("ar1_phi06.csv", "value");
     let n = x.len() as f64;
     let b = optimal_block_length(&x).expect("block length");
-    let means = replicates(&x, &BlockScheme::Stationary { mean_length: b.stationary }, 2000, 3, |s| s.iter().sum::<f64>() / n)
-        .expect("replicates");
+    let means =
+        replicates(&x, &BlockScheme::Stationary { mean_length: b.stationary }, 2000, 3, |s| s.iter().sum::<f64>() / n)
+            .expect("replicates");
     let m = means.iter().sum::<f64>() / means.len() as f64;
     let var = means.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (means.len() as f64 - 1.0);
     let want = 1.0 / ((1.0f64 - 0.6).powi(2) * n);

@@ -8,7 +8,8 @@ use rand::RngExt;
 
 fn run_all() -> Vec<Vec<u64>> {
     let mut rng = Stream::new(2, 2);
-    let t: Vec<f64> = (0..3000).map(|_| if rng.random::<f64>() < 0.9 { 0.0 } else { rng.random::<f64>() * 80.0 }).collect();
+    let t: Vec<f64> =
+        (0..3000).map(|_| if rng.random::<f64>() < 0.9 { 0.0 } else { rng.random::<f64>() * 80.0 }).collect();
     let c: Vec<f64> = (0..2500).map(|_| rng.random::<f64>() * 60.0).collect();
     let series: Vec<f64> = (0..300).map(|k| (k as f64 * 0.2).sin() + rng.random::<f64>()).collect();
     let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<u64>>();
@@ -18,10 +19,15 @@ fn run_all() -> Vec<Vec<u64>> {
         let d = boot.two_groups(&t, &c).expect("two groups");
         out.push(bits(&d.difference));
         out.push(bits(&d.relative().expect("relative")));
-        out.push(bits(&boot.ratio(&t, &c[..3000.min(c.len())].iter().chain(&c[..500]).copied().collect::<Vec<_>>()).expect("ratio")));
+        out.push(bits(
+            &boot
+                .ratio(&t, &c[..3000.min(c.len())].iter().chain(&c[..500]).copied().collect::<Vec<_>>())
+                .expect("ratio"),
+        ));
         out.push(bits(&boot.quantiles(&t, &[0.5, 0.95]).expect("quantiles").concat()));
     }
-    for scheme in [BlockScheme::Stationary { mean_length: 6.3 }, BlockScheme::Moving { length: 9, wrap: Wrap::Clipped }] {
+    for scheme in [BlockScheme::Stationary { mean_length: 6.3 }, BlockScheme::Moving { length: 9, wrap: Wrap::Clipped }]
+    {
         out.push(bits(&replicates(&series, &scheme, 400, 5, |s| s.iter().sum::<f64>()).expect("replicates")));
     }
     out

@@ -33,8 +33,20 @@ fn equal_tailed_interval_matches_numpy_quantile() {
     // the input order must not matter: feed the stored (unsorted) draws
     for iv in &r.intervals {
         let s = summarize(&r.draws, iv.level, None);
-        assert!((s.lower - iv.lower).abs() < tol::NUMPY_QUANTILE_ABS, "level {}: lower {} vs numpy {}", iv.level, s.lower, iv.lower);
-        assert!((s.upper - iv.upper).abs() < tol::NUMPY_QUANTILE_ABS, "level {}: upper {} vs numpy {}", iv.level, s.upper, iv.upper);
+        assert!(
+            (s.lower - iv.lower).abs() < tol::NUMPY_QUANTILE_ABS,
+            "level {}: lower {} vs numpy {}",
+            iv.level,
+            s.lower,
+            iv.lower
+        );
+        assert!(
+            (s.upper - iv.upper).abs() < tol::NUMPY_QUANTILE_ABS,
+            "level {}: upper {} vs numpy {}",
+            iv.level,
+            s.upper,
+            iv.upper
+        );
     }
     let s = summarize(&r.draws, 0.9, None);
     assert!((s.median - r.median).abs() < tol::NUMPY_QUANTILE_ABS, "median vs numpy.median");
