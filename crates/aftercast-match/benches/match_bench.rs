@@ -18,7 +18,7 @@ use std::time::Instant;
 fn synthetic(n: usize, seed: u64) -> UnitTable {
     let p = 10;
     let mut s = Stream::new(seed, 0);
-    let mut cols = vec![Vec::with_capacity(n); p];
+    let mut cols: Vec<Vec<f64>> = (0..p).map(|_| Vec::with_capacity(n)).collect();
     let mut treated = Vec::with_capacity(n);
     let mut y = Vec::with_capacity(n);
     let b = [0.4, -0.3, 0.2, 0.25, -0.15, 0.1, 0.3, -0.2, 0.05, 0.15];

@@ -95,8 +95,8 @@ pub fn balance(design: &Design, treated: &[bool], after: &[f64]) -> Vec<BalanceE
                 smd_after,
                 var_ratio_before: v1 / v0,
                 var_ratio_after: vr_after,
-                smd_flag: !(smd_after.abs() <= SMD_FLAG),
-                var_ratio_flag: !(vr_after >= VAR_RATIO_RANGE.0 && vr_after <= VAR_RATIO_RANGE.1),
+                smd_flag: smd_after.is_nan() || smd_after.abs() > SMD_FLAG,
+                var_ratio_flag: !(VAR_RATIO_RANGE.0..=VAR_RATIO_RANGE.1).contains(&vr_after),
             }
         })
         .collect()
@@ -169,11 +169,15 @@ pub struct Support {
 /// Ranges and out-of-range counts.
 pub fn support(e: &[f64], treated: &[bool]) -> Support {
     let range = |g: bool| {
-        e.iter().zip(treated).filter(|(_, t)| **t == g).fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), (x, _)| (a.min(*x), b.max(*x)))
+        e.iter()
+            .zip(treated)
+            .filter(|(_, t)| **t == g)
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), (x, _)| (a.min(*x), b.max(*x)))
     };
     let tr = range(true);
     let cr = range(false);
-    let out = |g: bool, r: (f64, f64)| e.iter().zip(treated).filter(|(x, t)| **t == g && (**x < r.0 || **x > r.1)).count();
+    let out =
+        |g: bool, r: (f64, f64)| e.iter().zip(treated).filter(|(x, t)| **t == g && (**x < r.0 || **x > r.1)).count();
     Support { treated_range: tr, control_range: cr, treated_outside: out(true, cr), control_outside: out(false, tr) }
 }
 

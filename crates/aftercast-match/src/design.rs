@@ -49,9 +49,7 @@ impl Term {
 
     /// The product of two covariates.
     pub fn product(a: &str, b: &str) -> Term {
-        Term {
-            factors: vec![Factor::Power { name: a.into(), power: 1 }, Factor::Power { name: b.into(), power: 1 }],
-        }
+        Term { factors: vec![Factor::Power { name: a.into(), power: 1 }, Factor::Power { name: b.into(), power: 1 }] }
     }
 
     /// The column name as written (`age^2`, `educ:re74`, `zero(re74)`).
@@ -271,7 +269,7 @@ impl Design {
             let m = c.iter().sum::<f64>() / n as f64;
             let v = c.iter().map(|x| (x - m) * (x - m)).sum::<f64>() / (n as f64 - 1.0);
             let s = v.sqrt();
-            if !(s > 1e-12 * m.abs().max(1.0)) {
+            if s.is_nan() || s <= 1e-12 * m.abs().max(1.0) {
                 return Err(MatchError::ConstantColumn { name: names[j].clone(), value: c[0], units: n });
             }
             mean[j] = m;
@@ -316,10 +314,7 @@ impl Design {
                 d -= l[j * p + m] * l[j * p + m];
             }
             if d < 1e-10 {
-                return Err(MatchError::Collinear {
-                    name: self.names[j].clone(),
-                    earlier: self.names[..j].join(", "),
-                });
+                return Err(MatchError::Collinear { name: self.names[j].clone(), earlier: self.names[..j].join(", ") });
             }
             let d = d.sqrt();
             l[j * p + j] = d;

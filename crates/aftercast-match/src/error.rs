@@ -7,9 +7,9 @@ use aftercast_core::DataError;
 #[derive(Debug, thiserror::Error)]
 #[non_exhaustive]
 pub enum MatchError {
-    /// A problem in the input data (file, line, column).
+    /// A problem in the input data (file, line, column). Boxed to keep the error small.
     #[error(transparent)]
-    Data(#[from] DataError),
+    Data(Box<DataError>),
     /// A parameter is outside its allowed range.
     #[error("invalid parameter {name} = {value}: {detail}")]
     BadParameter {
@@ -97,7 +97,9 @@ pub enum MatchError {
         detail: String,
     },
     /// Not one treated unit found a match within the caliper.
-    #[error("no unit found a match within the caliper of {caliper:.4} (logit of the propensity score); widen --caliper or check the covariates")]
+    #[error(
+        "no unit found a match within the caliper of {caliper:.4} (logit of the propensity score); widen --caliper or check the covariates"
+    )]
     NoMatches {
         /// Caliper width on the logit scale.
         caliper: f64,
@@ -118,6 +120,12 @@ pub enum MatchError {
         /// Which combination and why.
         detail: String,
     },
+}
+
+impl From<DataError> for MatchError {
+    fn from(e: DataError) -> Self {
+        MatchError::Data(Box::new(e))
+    }
 }
 
 /// Result alias of this crate.

@@ -120,7 +120,12 @@ struct Propensity {
     eta: Vec<f64>,
 }
 
-fn fit_propensity(design: &Design, y: &[bool], params: &ValidParams, warnings: &mut Vec<String>) -> MatchResult<Propensity> {
+fn fit_propensity(
+    design: &Design,
+    y: &[bool],
+    params: &ValidParams,
+    warnings: &mut Vec<String>,
+) -> MatchResult<Propensity> {
     let p = params.params();
     let opts = LogitOptions { penalty: p.penalty, ..LogitOptions::default() };
     let single = logit::single_column_separation(design, y);
@@ -133,9 +138,8 @@ fn fit_propensity(design: &Design, y: &[bool], params: &ValidParams, warnings: &
         let (cov, detail) = match &single {
             Some((c, d)) => (Some(c.clone()), d.clone()),
             None => {
-                let j = (1..fit.beta.len())
-                    .max_by(|&a, &b| fit.beta[a].abs().total_cmp(&fit.beta[b].abs()))
-                    .unwrap_or(1);
+                let j =
+                    (1..fit.beta.len()).max_by(|&a, &b| fit.beta[a].abs().total_cmp(&fit.beta[b].abs())).unwrap_or(1);
                 (
                     Some(design.names[j - 1].clone()),
                     format!(
@@ -186,10 +190,12 @@ impl ValidParams {
         let p = self.params();
         let mut warnings = Vec::new();
         let col = |name: &str, what: &'static str| -> MatchResult<Vec<f64>> {
-            units.outcome(name).or_else(|| units.numeric(name)).map(|v| v.to_vec()).ok_or_else(|| MatchError::UnknownColumn {
-                what,
-                name: name.into(),
-                available: units.outcomes.iter().chain(units.numeric.iter()).map(|(n, _)| n.clone()).collect(),
+            units.outcome(name).or_else(|| units.numeric(name)).map(|v| v.to_vec()).ok_or_else(|| {
+                MatchError::UnknownColumn {
+                    what,
+                    name: name.into(),
+                    available: units.outcomes.iter().chain(units.numeric.iter()).map(|(n, _)| n.clone()).collect(),
+                }
             })
         };
         let y_post = col(outcome, "outcome")?;
@@ -258,7 +264,8 @@ impl ValidParams {
                 Trim::None => (0.0, 1.0),
             };
             let keep: Vec<usize> = (0..n_all).filter(|&i| e_all[i] >= limits.0 && e_all[i] <= limits.1).collect();
-            treated_trimmed = (0..n_all).filter(|&i| units.treated[i] && !(e_all[i] >= limits.0 && e_all[i] <= limits.1)).count();
+            treated_trimmed =
+                (0..n_all).filter(|&i| units.treated[i] && !(e_all[i] >= limits.0 && e_all[i] <= limits.1)).count();
             controls_trimmed = n_all - keep.len() - treated_trimmed;
             let kt = keep.iter().filter(|&&i| units.treated[i]).count();
             if kt == 0 || kt == keep.len() {
@@ -316,7 +323,11 @@ impl ValidParams {
                 caliper = cal;
                 let keys: Option<Vec<u64>> = (!exact_cols.is_empty()).then(|| {
                     rows.iter()
-                        .map(|&i| exact_cols.iter().fold(0u64, |acc, c| acc.wrapping_mul(1_000_003).wrapping_add(c.codes[i] as u64 + 1)))
+                        .map(|&i| {
+                            exact_cols
+                                .iter()
+                                .fold(0u64, |acc, c| acc.wrapping_mul(1_000_003).wrapping_add(c.codes[i] as u64 + 1))
+                        })
                         .collect()
                 });
                 let rule = MatchRule { k: p.k, replace: p.replace, caliper: cal, mahalanobis: p.mahalanobis };
@@ -325,7 +336,8 @@ impl ValidParams {
                 let treated_idx: Vec<usize> = (0..n).filter(|&i| tr[i]).collect();
                 let control_idx: Vec<usize> = (0..n).filter(|&i| !tr[i]).collect();
                 let to_c = nearest::match_units(&eta, &treated_idx, &control_idx, keys.as_deref(), &rule, maha);
-                let to_t = (!att).then(|| nearest::match_units(&eta, &control_idx, &treated_idx, keys.as_deref(), &rule, maha));
+                let to_t = (!att)
+                    .then(|| nearest::match_units(&eta, &control_idx, &treated_idx, keys.as_deref(), &rule, maha));
                 let sigma2 = nearest::conditional_variances(&eta, &tr, &y, p.variance_neighbours);
                 let est = nearest::estimate(&y, &tr, &to_c, to_t.as_ref(), &sigma2, p.bias_adjust.then_some(&design))
                     .ok_or(MatchError::NoMatches { caliper: cal.unwrap_or(f64::INFINITY) })?;
@@ -367,7 +379,9 @@ impl ValidParams {
                     p.alpha,
                 );
                 if p.k > 1 && rosenbaum.is_some() {
-                    warnings.push("Rosenbaum bounds treat each treated unit and the mean of its matches as a pair (k > 1)".into());
+                    warnings.push(
+                        "Rosenbaum bounds treat each treated unit and the mean of its matches as a pair (k > 1)".into(),
+                    );
                 }
                 after = est.weights;
             }
@@ -379,9 +393,8 @@ impl ValidParams {
                     _ => Weighting::Aipw,
                 };
                 let ones = vec![1.0; n];
-                let point = weighting::evaluate(wm, att, &y, &tr, &e, &ones, &design).ok_or_else(|| MatchError::NoOverlap {
-                    detail: "a group receives no weight".into(),
-                })?;
+                let point = weighting::evaluate(wm, att, &y, &tr, &e, &ones, &design)
+                    .ok_or_else(|| MatchError::NoOverlap { detail: "a group receives no weight".into() })?;
                 estimate = point.effect;
                 treated_unmatched = point.treated_dropped;
                 if point.treated_dropped > 0 {
@@ -396,7 +409,8 @@ impl ValidParams {
                     let omega: Vec<f64> = (0..n).map(|_| s.exp1()).collect();
                     let opts = LogitOptions { penalty, parallel: false, ..LogitOptions::default() };
                     let f = logit::fit(&design, &tr, Some(&omega), &opts, Some(&start));
-                    let er: Vec<f64> = logit::linear_predictor(&design, &f.beta).iter().map(|&v| logit::prob(v)).collect();
+                    let er: Vec<f64> =
+                        logit::linear_predictor(&design, &f.beta).iter().map(|&v| logit::prob(v)).collect();
                     let r = weighting::evaluate(wm, att, &y, &tr, &er, &omega, &design)?;
                     let base = if att {
                         let (mut sy, mut sw) = (0.0, 0.0);
@@ -423,10 +437,12 @@ impl ValidParams {
                 }
                 let not_converged = ok.iter().filter(|r| !r.2).count();
                 if not_converged > 0 {
-                    warnings.push(format!("{not_converged} bootstrap re-fits of the propensity model did not converge"));
+                    warnings
+                        .push(format!("{not_converged} bootstrap re-fits of the propensity model did not converge"));
                 }
                 if undefined > 0 {
-                    warnings.push(format!("{undefined} bootstrap replicates left a group without weight and were dropped"));
+                    warnings
+                        .push(format!("{undefined} bootstrap replicates left a group without weight and were dropped"));
                 }
                 replicates = Some(ReplicateReport { replicates: p.draws, not_converged, undefined });
                 draws = ok.iter().map(|r| r.0).collect();
@@ -473,7 +489,9 @@ impl ValidParams {
             assumptions.push("The propensity model (logistic, with the listed terms) describes treatment assignment well enough that the weights balance the covariates; check the balance table.".into());
         }
         if p.method == Method::Aipw {
-            assumptions.push("Doubly robust: consistent if either the propensity model or the linear outcome model is right.".into());
+            assumptions.push(
+                "Doubly robust: consistent if either the propensity model or the linear outcome model is right.".into(),
+            );
         }
         if y_pre.is_some() {
             assumptions.push("Parallel trends after matching: without the change, treated and matched control outcomes would have moved by the same amount from the pre-period.".into());
@@ -614,7 +632,11 @@ pub fn run(
     threshold: Option<f64>,
 ) -> MatchResult<(Fitted, AnalysisResult)> {
     if !(level > 0.0 && level < 1.0) {
-        return Err(MatchError::BadParameter { name: "--level", value: level.to_string(), detail: "between 0 and 1".into() });
+        return Err(MatchError::BadParameter {
+            name: "--level",
+            value: level.to_string(),
+            detail: "between 0 and 1".into(),
+        });
     }
     let fitted = params.check()?.fit(units, outcome)?;
     let mut result = fitted.to_result(level, rope, threshold);

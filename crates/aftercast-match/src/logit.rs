@@ -136,7 +136,13 @@ pub fn loglik(design: &Design, y: &[bool], w: Option<&[f64]>, beta: &[f64]) -> f
 /// Fit by Newton's method with step halving on the penalised log-likelihood.
 /// Starts from `start` (e.g. the full-sample fit for bootstrap replicates) or from the
 /// intercept-only solution.
-pub fn fit(design: &Design, y: &[bool], w: Option<&[f64]>, opts: &LogitOptions, start: Option<&DVector<f64>>) -> LogitFit {
+pub fn fit(
+    design: &Design,
+    y: &[bool],
+    w: Option<&[f64]>,
+    opts: &LogitOptions,
+    start: Option<&DVector<f64>>,
+) -> LogitFit {
     let k = design.width();
     let mut beta = match start {
         Some(b) => b.clone(),
@@ -285,7 +291,8 @@ pub fn prob(eta: f64) -> f64 {
 /// Returns the column name and what was seen.
 pub fn single_column_separation(design: &Design, y: &[bool]) -> Option<(String, String)> {
     for (j, name) in design.names.iter().enumerate() {
-        let (mut tmin, mut tmax, mut cmin, mut cmax) = (f64::INFINITY, f64::NEG_INFINITY, f64::INFINITY, f64::NEG_INFINITY);
+        let (mut tmin, mut tmax, mut cmin, mut cmax) =
+            (f64::INFINITY, f64::NEG_INFINITY, f64::INFINITY, f64::NEG_INFINITY);
         for (i, &yi) in y.iter().enumerate().take(design.n) {
             let v = design.at(i, j);
             if yi {
@@ -312,10 +319,12 @@ pub fn single_column_separation(design: &Design, y: &[bool]) -> Option<(String, 
         let binary = design.kinds[j] == ColumnKind::Level || {
             let lo = raw(tmin.min(cmin));
             let hi = raw(tmax.max(cmax));
-            (lo.abs() < 1e-9) && ((hi - 1.0).abs() < 1e-9) && (0..design.n).all(|i| {
-                let v = raw(design.at(i, j));
-                v.abs() < 1e-9 || (v - 1.0).abs() < 1e-9
-            })
+            (lo.abs() < 1e-9)
+                && ((hi - 1.0).abs() < 1e-9)
+                && (0..design.n).all(|i| {
+                    let v = raw(design.at(i, j));
+                    v.abs() < 1e-9 || (v - 1.0).abs() < 1e-9
+                })
         };
         if binary {
             // Quasi-complete separation: one value seen in one group only.

@@ -108,7 +108,7 @@ pub fn match_units(
                         let dl = if l > 0 { s - ps[l - 1] } else { f64::INFINITY };
                         let dh = if h < ps.len() { ps[h] - s } else { f64::INFINITY };
                         let (d, q) = if dl <= dh { (dl, l.wrapping_sub(1)) } else { (dh, h) };
-                        if !(d <= cal) {
+                        if d.is_nan() || d > cal {
                             break;
                         }
                         out.push(pl[q]);
@@ -202,6 +202,9 @@ pub fn conditional_variances(score: &[f64], treated: &[bool], y: &[f64], j: usiz
     out
 }
 
+/// Bias-correction regressions: (control model, treated model).
+type OutcomeModels = (Option<DVector<f64>>, Option<DVector<f64>>);
+
 /// Point estimate and Abadie-Imbens standard error of a matching estimator.
 #[derive(Debug, Clone)]
 pub struct MatchEstimate {
@@ -252,7 +255,7 @@ pub fn estimate(
         }
     }
     // bias-correction models, one per group that is imputed
-    let models: Option<(Option<DVector<f64>>, Option<DVector<f64>>)> = bias_adjust.map(|d| {
+    let models: Option<OutcomeModels> = bias_adjust.map(|d| {
         let fitg = |grp: bool| {
             let rows: Vec<usize> = (0..n).filter(|&i| treated[i] == grp && kw[i] > 0.0).collect();
             if rows.len() <= d.width() {
@@ -332,7 +335,14 @@ pub fn estimate(
         }
     }
     let baseline = if to_treated.is_some() { base_sum / nn as f64 } else { base_sum / n_t as f64 };
-    Some(MatchEstimate { estimate: tau, se: v.max(0.0).sqrt(), baseline, focal_matched: n_t, weights, pair_differences })
+    Some(MatchEstimate {
+        estimate: tau,
+        se: v.max(0.0).sqrt(),
+        baseline,
+        focal_matched: n_t,
+        weights,
+        pair_differences,
+    })
 }
 
 #[cfg(test)]

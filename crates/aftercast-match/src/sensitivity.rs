@@ -220,15 +220,7 @@ pub fn rosenbaum(d: &[f64], gammas: &[f64], alpha: f64) -> Option<RosenbaumBound
         }
         Some((0.5 * (lo + hi)).exp())
     };
-    Some(RosenbaumBounds {
-        pairs_used: m,
-        zero_pairs: d.len() - m,
-        statistic: t,
-        method,
-        grid,
-        alpha,
-        gamma_critical,
-    })
+    Some(RosenbaumBounds { pairs_used: m, zero_pairs: d.len() - m, statistic: t, method, grid, alpha, gamma_critical })
 }
 
 /// E-value of a risk ratio (VanderWeele & Ding 2017, Ann. Intern. Med. 167:268-274):
@@ -271,12 +263,24 @@ pub fn evalue_continuous(effect: f64, lower: f64, upper: f64, sd: f64) -> EValue
     let rr = (0.91 * effect / sd).exp();
     let lo = (0.91 * lower / sd).exp();
     let hi = (0.91 * upper / sd).exp();
-    EValues { scale: "standardised-difference".into(), rr, rr_interval: (lo, hi), point: evalue_rr(rr), limit: evalue_limit(lo, hi) }
+    EValues {
+        scale: "standardised-difference".into(),
+        rr,
+        rr_interval: (lo, hi),
+        point: evalue_rr(rr),
+        limit: evalue_limit(lo, hi),
+    }
 }
 
 /// E-values of a binary outcome from the risk ratio and its interval.
 pub fn evalue_binary(rr: f64, lower: f64, upper: f64) -> EValues {
-    EValues { scale: "risk-ratio".into(), rr, rr_interval: (lower, upper), point: evalue_rr(rr), limit: evalue_limit(lower, upper) }
+    EValues {
+        scale: "risk-ratio".into(),
+        rr,
+        rr_interval: (lower, upper),
+        point: evalue_rr(rr),
+        limit: evalue_limit(lower, upper),
+    }
 }
 
 #[cfg(test)]

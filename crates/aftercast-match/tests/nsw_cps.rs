@@ -13,7 +13,8 @@ fn rel(a: f64, b: f64) -> f64 {
 fn propensity_model_equals_statsmodels_logit() {
     // Reference: statsmodels 0.15.0 Logit (Newton), tests/reference/logit_reference.py.
     let units = nsw_cps1();
-    let fitted = MatchParams::new(DW_COVARIATES).terms(dw_terms()).replace(true).check().unwrap().fit(&units, "re78").unwrap();
+    let fitted =
+        MatchParams::new(DW_COVARIATES).terms(dw_terms()).replace(true).check().unwrap().fit(&units, "re78").unwrap();
     let r = reference();
     let lg = &r["logit"];
     let terms: Vec<String> = lg["terms"].as_array().unwrap().iter().map(|v| v.as_str().unwrap().to_string()).collect();
@@ -52,7 +53,10 @@ fn nearest_matching_recovers_experimental_benchmark() {
         fitted.estimate, fitted.se, fitted.counts.treated_unmatched, fitted.counts.controls_used
     );
     for b in &fitted.balance {
-        eprintln!("{:>12} smd before {:>8.3} after {:>7.3} vr after {:.2}", b.covariate, b.smd_before, b.smd_after, b.var_ratio_after);
+        eprintln!(
+            "{:>12} smd before {:>8.3} after {:>7.3} vr after {:.2}",
+            b.covariate, b.smd_before, b.smd_after, b.var_ratio_after
+        );
     }
     // Band around Dehejia & Wahba's (1999) CPS-1 estimates ($1,582 matching, $1,713 strata).
     assert!(fitted.estimate > 1000.0 && fitted.estimate < 2600.0, "ATT {}", fitted.estimate);

@@ -40,7 +40,11 @@ fn exact_sign_bound_equals_scipy_binomtest() {
         assert_eq!(b.method, BoundMethod::ExactSign);
         assert_eq!(b.pairs_used, m);
         assert_eq!(b.zero_pairs, 3);
-        assert!((b.grid[0].p_upper - want).abs() < tol::BINOM_ABS, "bound k {k} m {m} G {g}: {} vs {want}", b.grid[0].p_upper);
+        assert!(
+            (b.grid[0].p_upper - want).abs() < tol::BINOM_ABS,
+            "bound k {k} m {m} G {g}: {} vs {want}",
+            b.grid[0].p_upper
+        );
     }
 }
 

@@ -46,7 +46,10 @@ pub fn nsw_cps1() -> UnitTable {
     let spec = UnitSpec {
         treatment: "treat".into(),
         outcomes: vec!["re78".into()],
-        numeric: ["age", "educ", "marr", "nodegree", "black", "hisp", "re74", "re75"].iter().map(|s| s.to_string()).collect(),
+        numeric: ["age", "educ", "marr", "nodegree", "black", "hisp", "re74", "re75"]
+            .iter()
+            .map(|s| s.to_string())
+            .collect(),
         ..Default::default()
     };
     UnitTable::from_table(&table, &spec).unwrap()
