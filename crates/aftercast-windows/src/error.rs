@@ -1,0 +1,183 @@
+//! The one error type of the windows engine. Every variant says where the problem is.
+
+use aftercast_core::DataError;
+use std::path::PathBuf;
+
+/// Where a bad event or exposure row was found: file, 1-based line (CSV; the header is line 1)
+/// or 1-based row + 1 (Parquet, the line a CSV export of the file would have), column.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Cell {
+    /// The input file.
+    pub file: PathBuf,
+    /// Line (CSV) or row + 1 (Parquet).
+    pub line: u64,
+    /// 1-based column position.
+    pub column: usize,
+    /// Column name.
+    pub column_name: String,
+}
+
+impl std::fmt::Display for Cell {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "{}, line {}, column {} ('{}')", self.file.display(), self.line, self.column, self.column_name)
+    }
+}
+
+/// Everything that can go wrong building windows. Bad input is always one of these.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum WindowsError {
+    /// A data-layer error from aftercast-core (reading the exposures file).
+    #[error(transparent)]
+    Data(#[from] DataError),
+    /// A file could not be opened, read or written.
+    #[error("{}: {what}", path.display())]
+    Io {
+        /// The file.
+        path: PathBuf,
+        /// What was being done.
+        what: String,
+        /// The operating-system error.
+        #[source]
+        source: std::io::Error,
+    },
+    /// An input file is not well-formed CSV, gzip or Parquet.
+    #[error("{}{}: malformed {format} input: {message}", path.display(), line.map(|l| format!(", line {l}")).unwrap_or_default())]
+    Malformed {
+        /// The file.
+        path: PathBuf,
+        /// Line, when known.
+        line: Option<u64>,
+        /// "CSV", "gzip" or "Parquet".
+        format: &'static str,
+        /// What the parser said.
+        message: String,
+    },
+    /// A column the run needs is not in the file.
+    #[error("{}: no column named '{name}' (the file has: {})", path.display(), available.join(", "))]
+    MissingColumn {
+        /// The file.
+        path: PathBuf,
+        /// The column asked for.
+        name: String,
+        /// The columns the file has.
+        available: Vec<String>,
+    },
+    /// A Parquet column has a type the engine cannot read for its role.
+    #[error("{}: column '{column}' has type {found}; expected {expected}", path.display())]
+    ColumnType {
+        /// The file.
+        path: PathBuf,
+        /// The column.
+        column: String,
+        /// Its type.
+        found: String,
+        /// What is accepted.
+        expected: String,
+    },
+    /// A timestamp cell is not ISO 8601.
+    #[error("{at}: '{text}' is not an ISO 8601 timestamp (e.g. 2024-03-01T10:00:00Z, 2024-03-01T12:00:00+02:00, 2024-03-01)")]
+    BadTimestamp {
+        /// Where.
+        at: Cell,
+        /// The offending text.
+        text: String,
+    },
+    /// A value cell is not a finite number.
+    #[error("{at}: '{text}' is not a finite number")]
+    BadValue {
+        /// Where.
+        at: Cell,
+        /// The offending text.
+        text: String,
+    },
+    /// A value is negative for a metric that does not allow it.
+    #[error("{at}: value {text} of metric '{metric}' is negative; allow negative values for this metric or skip bad rows")]
+    NegativeValue {
+        /// Where.
+        at: Cell,
+        /// The offending text.
+        text: String,
+        /// The metric.
+        metric: String,
+    },
+    /// An event names a unit that is not in the exposures file.
+    #[error("{at}: unit '{unit}' is not in the exposures file")]
+    UnknownUnit {
+        /// Where.
+        at: Cell,
+        /// The unit.
+        unit: String,
+    },
+    /// A required cell is empty.
+    #[error("{at}: value is missing (empty cell)")]
+    MissingCell {
+        /// Where.
+        at: Cell,
+    },
+    /// A unit appears twice in the exposures file.
+    #[error("{at}: unit '{unit}' appears twice in the exposures file (first on line {first_line})")]
+    DuplicateUnit {
+        /// Where the second occurrence is.
+        at: Cell,
+        /// The unit.
+        unit: String,
+        /// Line of the first occurrence.
+        first_line: u64,
+    },
+    /// A unit is never exposed (empty exposure cell) and neither a reference time nor a launch
+    /// time was given.
+    #[error("{at}: unit '{unit}' has no exposure time; give a reference time (or a launch time) for never-exposed units")]
+    NoReference {
+        /// Where.
+        at: Cell,
+        /// The unit.
+        unit: String,
+    },
+    /// A parameter is not valid.
+    #[error("invalid {what}: '{text}' ({detail})")]
+    BadParameter {
+        /// Which parameter.
+        what: String,
+        /// The offending text.
+        text: String,
+        /// Why.
+        detail: String,
+    },
+    /// A sum left the range the exact accumulator holds (about +-7.4e19).
+    #[error("sum of metric '{metric}' for unit '{unit}' exceeds the exact accumulator range (|sum| < 7.4e19)")]
+    Overflow {
+        /// The metric.
+        metric: String,
+        /// The unit.
+        unit: String,
+    },
+    /// Spark could not be run or failed.
+    #[error("spark: {message}")]
+    Spark {
+        /// What happened (the tail of Spark's output).
+        message: String,
+    },
+    /// Writing an output table failed.
+    #[error("{}: cannot write output: {message}", path.display())]
+    Output {
+        /// The file.
+        path: PathBuf,
+        /// Why.
+        message: String,
+    },
+}
+
+impl WindowsError {
+    /// Whether the error is caused by the input (files, parameters) rather than by the machine.
+    pub fn is_bad_input(&self) -> bool {
+        !matches!(self, WindowsError::Io { .. } | WindowsError::Spark { .. } | WindowsError::Output { .. })
+    }
+
+    pub(crate) fn bad_param(what: &str, text: impl Into<String>, detail: impl Into<String>) -> Self {
+        WindowsError::BadParameter { what: what.to_string(), text: text.into(), detail: detail.into() }
+    }
+}
+
+/// Result alias of the windows engine.
+pub type WindowsResult<T> = Result<T, WindowsError>;

@@ -1,0 +1,281 @@
+//! The unit universe: who the units are, their group, and when each was exposed.
+//!
+//! The exposures file lists every unit once. Events of units not in it are bad rows
+//! ("unknown unit"). Per-unit exposure times come from its time column; an empty cell means the
+//! unit was never exposed and its windows are anchored at the reference time (or, if none was
+//! given, the launch time). Without a time column every unit is exposed at the launch time.
+
+use crate::error::{Cell, WindowsError, WindowsResult};
+use crate::params::WindowSpec;
+use crate::time::{self, Offset};
+use aftercast_core::table::{InputInfo, RawTable};
+use std::collections::HashMap;
+use std::hash::{BuildHasherDefault, Hasher};
+use std::path::Path;
+
+/// A small, fast, non-cryptographic hasher for unit ids (the multiply-rotate scheme of the
+/// Firefox/rustc "Fx" hash). Unit ids are not attacker-chosen keys in this setting.
+#[derive(Default, Clone, Copy)]
+pub struct UnitHasher {
+    hash: u64,
+}
+
+const SEED: u64 = 0x51_7c_c1_b7_27_22_0a_95;
+
+impl UnitHasher {
+    #[inline]
+    fn add(&mut self, word: u64) {
+        self.hash = (self.hash.rotate_left(5) ^ word).wrapping_mul(SEED);
+    }
+}
+
+impl Hasher for UnitHasher {
+    #[inline]
+    fn write(&mut self, bytes: &[u8]) {
+        let mut chunks = bytes.chunks_exact(8);
+        for c in &mut chunks {
+            let mut w = [0u8; 8];
+            w.copy_from_slice(c);
+            self.add(u64::from_le_bytes(w));
+        }
+        let rest = chunks.remainder();
+        if !rest.is_empty() {
+            let mut w = [0u8; 8];
+            w[..rest.len()].copy_from_slice(rest);
+            self.add(u64::from_le_bytes(w) ^ ((rest.len() as u64) << 59));
+        }
+    }
+    #[inline]
+    fn write_u8(&mut self, i: u8) {
+        self.add(u64::from(i));
+    }
+    #[inline]
+    fn write_usize(&mut self, i: usize) {
+        self.add(i as u64);
+    }
+    #[inline]
+    fn finish(&self) -> u64 {
+        self.hash
+    }
+}
+
+/// Map from unit id to unit index.
+pub type UnitMap = HashMap<Box<str>, u32, BuildHasherDefault<UnitHasher>>;
+
+/// How to read the exposures file.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct ExposureOptions {
+    /// Unit id column (default `unit`).
+    pub unit: String,
+    /// Exposure time column; `None` = every unit is exposed at the launch time.
+    pub time: Option<String>,
+    /// Group column (region, segment, arm); `None` = one group named `all`.
+    pub group: Option<String>,
+    /// One launch time for all units (used when there is no time column, and as the reference
+    /// for never-exposed units when no reference is given).
+    pub launch: Option<i64>,
+    /// Reference time for never-exposed units.
+    pub reference: Option<i64>,
+}
+
+impl Default for ExposureOptions {
+    fn default() -> Self {
+        Self { unit: "unit".into(), time: Some("exposure".into()), group: None, launch: None, reference: None }
+    }
+}
+
+/// The units of a run.
+#[derive(Debug, Clone)]
+pub struct Exposures {
+    units: Vec<String>,
+    groups: Vec<String>,
+    group_of: Vec<u32>,
+    exposed: Vec<bool>,
+    time: Vec<i64>,
+    index: UnitMap,
+    info: Option<InputInfo>,
+}
+
+/// One unit given in code: id, exposure time (`None` = never exposed), group.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct UnitRow {
+    /// Unit id.
+    pub unit: String,
+    /// Exposure instant, or `None` if never exposed.
+    pub exposure: Option<i64>,
+    /// Group name.
+    pub group: String,
+}
+
+impl Exposures {
+    /// Read the exposures file (CSV or Parquet) with the analysis offset of `spec` for
+    /// timestamps written without a zone.
+    ///
+    /// # Errors
+    /// Core read errors, [`WindowsError::MissingColumn`], [`WindowsError::BadTimestamp`],
+    /// [`WindowsError::MissingCell`], [`WindowsError::DuplicateUnit`],
+    /// [`WindowsError::NoReference`], [`WindowsError::BadParameter`] (no launch time and no time
+    /// column).
+    pub fn read(path: &Path, options: &ExposureOptions, spec: &WindowSpec) -> WindowsResult<Self> {
+        let table = RawTable::read(path)?;
+        Self::from_table(&table, options, spec.offset())
+    }
+
+    /// Build from a table already read.
+    ///
+    /// # Errors
+    /// As [`Exposures::read`].
+    pub fn from_table(table: &RawTable, options: &ExposureOptions, offset: Offset) -> WindowsResult<Self> {
+        let col = |name: &str| {
+            table.column(name).map_err(|_| WindowsError::MissingColumn {
+                path: table.path().to_path_buf(),
+                name: name.to_string(),
+                available: table.header().to_vec(),
+            })
+        };
+        let ucol = col(&options.unit)?;
+        let tcol = options.time.as_deref().map(col).transpose()?;
+        let gcol = options.group.as_deref().map(col).transpose()?;
+        if tcol.is_none() && options.launch.is_none() {
+            return Err(WindowsError::bad_param(
+                "exposure",
+                "",
+                "give an exposure-time column or one launch time for all units",
+            ));
+        }
+        let cell = |line: u64, c: usize| Cell {
+            file: table.path().to_path_buf(),
+            line,
+            column: c + 1,
+            column_name: table.header()[c].clone(),
+        };
+        let mut rows = Vec::with_capacity(table.rows().len());
+        let mut first_line: HashMap<&str, u64> = HashMap::new();
+        for row in table.rows() {
+            let unit = row.cells[ucol].as_str();
+            if unit.is_empty() {
+                return Err(WindowsError::MissingCell { at: cell(row.line, ucol) });
+            }
+            if let Some(first) = first_line.insert(unit, row.line) {
+                return Err(WindowsError::DuplicateUnit { at: cell(row.line, ucol), unit: unit.to_string(), first_line: first });
+            }
+            let exposure = match tcol {
+                None => options.launch,
+                Some(c) => {
+                    let text = row.cells[c].as_str();
+                    if text.is_empty() {
+                        if options.reference.or(options.launch).is_none() {
+                            return Err(WindowsError::NoReference { at: cell(row.line, c), unit: unit.to_string() });
+                        }
+                        None
+                    } else {
+                        Some(time::parse_timestamp(text, offset).ok_or_else(|| WindowsError::BadTimestamp {
+                            at: cell(row.line, c),
+                            text: text.to_string(),
+                        })?)
+                    }
+                }
+            };
+            let group = match gcol {
+                None => "all".to_string(),
+                Some(c) => {
+                    let g = row.cells[c].as_str();
+                    if g.is_empty() {
+                        return Err(WindowsError::MissingCell { at: cell(row.line, c) });
+                    }
+                    g.to_string()
+                }
+            };
+            rows.push(UnitRow { unit: unit.to_string(), exposure, group });
+        }
+        let mut out = Self::from_rows(rows, options.launch, options.reference)?;
+        out.info = Some(table.info());
+        Ok(out)
+    }
+
+    /// Build from rows given in code. Never-exposed units get `reference`, else `launch`.
+    ///
+    /// # Errors
+    /// [`WindowsError::BadParameter`] for a repeated unit or a never-exposed unit without a
+    /// reference or launch time.
+    pub fn from_rows(rows: Vec<UnitRow>, launch: Option<i64>, reference: Option<i64>) -> WindowsResult<Self> {
+        let n = rows.len();
+        if u32::try_from(n).is_err() {
+            return Err(WindowsError::bad_param("exposures", n.to_string(), "at most 4 294 967 295 units"));
+        }
+        let mut units = Vec::with_capacity(n);
+        let mut groups: Vec<String> = Vec::new();
+        let mut group_index: HashMap<String, u32> = HashMap::new();
+        let mut group_of = Vec::with_capacity(n);
+        let mut exposed = Vec::with_capacity(n);
+        let mut times = Vec::with_capacity(n);
+        let mut index = UnitMap::with_capacity_and_hasher(n, BuildHasherDefault::default());
+        for (i, r) in rows.into_iter().enumerate() {
+            if index.insert(r.unit.clone().into_boxed_str(), i as u32).is_some() {
+                return Err(WindowsError::bad_param("exposures", &r.unit, "the unit is listed twice"));
+            }
+            let t = match r.exposure {
+                Some(t) => {
+                    exposed.push(true);
+                    t
+                }
+                None => {
+                    exposed.push(false);
+                    reference.or(launch).ok_or_else(|| {
+                        WindowsError::bad_param("reference", &r.unit, "a never-exposed unit needs a reference or launch time")
+                    })?
+                }
+            };
+            times.push(t);
+            let next = groups.len() as u32;
+            let g = *group_index.entry(r.group.clone()).or_insert_with(|| {
+                groups.push(r.group.clone());
+                next
+            });
+            group_of.push(g);
+            units.push(r.unit);
+        }
+        Ok(Self { units, groups, group_of, exposed, time: times, index, info: None })
+    }
+
+    /// Number of units.
+    pub fn len(&self) -> usize {
+        self.units.len()
+    }
+    /// Whether there are no units.
+    pub fn is_empty(&self) -> bool {
+        self.units.is_empty()
+    }
+    /// Unit ids in file order.
+    pub fn units(&self) -> &[String] {
+        &self.units
+    }
+    /// Group names in order of first appearance.
+    pub fn groups(&self) -> &[String] {
+        &self.groups
+    }
+    /// Group index of each unit.
+    pub fn group_of(&self) -> &[u32] {
+        &self.group_of
+    }
+    /// Whether each unit was exposed (false = anchored at the reference time).
+    pub fn exposed(&self) -> &[bool] {
+        &self.exposed
+    }
+    /// Exposure (or reference) instant of each unit, before anchoring.
+    pub fn times(&self) -> &[i64] {
+        &self.time
+    }
+    /// Unit index of an id.
+    pub fn index_of(&self, unit: &str) -> Option<u32> {
+        self.index.get(unit).copied()
+    }
+    /// The map from id to index.
+    pub fn map(&self) -> &UnitMap {
+        &self.index
+    }
+    /// What the result records about the exposures file, if read from one.
+    pub fn info(&self) -> Option<&InputInfo> {
+        self.info.as_ref()
+    }
+}
