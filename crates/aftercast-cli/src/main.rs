@@ -23,6 +23,8 @@ pub(crate) struct Cli {
 pub(crate) enum Verb {
     /// Read and validate an input file the way the analyses do, and describe it.
     Inspect(verbs::inspect::Args),
+    /// Write the invented demo scenario and a study of it, and run every analysis.
+    Demo(verbs::demo::Args),
     /// Run every analysis a study file lists; write result.json, charts and report.html.
     Run(verbs::run::Args),
 }
@@ -31,13 +33,14 @@ fn threads_of(verb: &Verb) -> Option<u64> {
     match verb {
         Verb::Inspect(_) => None,
         Verb::Run(a) => a.threads,
+        Verb::Demo(a) => a.threads,
     }
 }
 
 /// Run an analysis verb and hand back its result (None for verbs that are not analyses).
 pub(crate) fn analyze(verb: &Verb) -> Option<anyhow::Result<verbs::Outcome>> {
     match verb {
-        Verb::Inspect(_) | Verb::Run(_) => None,
+        Verb::Inspect(_) | Verb::Run(_) | Verb::Demo(_) => None,
     }
 }
 
@@ -45,6 +48,7 @@ fn dispatch(verb: &Verb) -> anyhow::Result<()> {
     match verb {
         Verb::Inspect(a) => verbs::inspect::run(a),
         Verb::Run(a) => verbs::run::run(a),
+        Verb::Demo(a) => verbs::demo::run(a),
     }
 }
 

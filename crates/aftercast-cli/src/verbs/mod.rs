@@ -1,5 +1,6 @@
 //! One module per verb. See README.md in this folder for the pattern a verb follows.
 
+pub mod demo;
 pub mod inspect;
 pub mod run;
 

@@ -1,0 +1,113 @@
+//! `aftercast demo --out DIR`: write the invented Fernhill Outfitters scenario into DIR/data,
+//! a study file DIR/study.toml that analyses it with every verb this build has, and run it.
+
+use crate::common::check_out_dir;
+use crate::demo::ScenarioTruth;
+use clap::CommandFactory;
+use std::fmt::Write as _;
+use std::path::PathBuf;
+
+/// Arguments of `demo`.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// Folder to write the scenario, the study file and the results into.
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Allow writing into a folder that is not empty.
+    #[arg(long)]
+    pub force: bool,
+    /// Worker threads (default: all cores). Results do not depend on it.
+    #[arg(long, value_parser = clap::value_parser!(u64).range(1..=1024))]
+    pub threads: Option<u64>,
+    /// Print nothing on success.
+    #[arg(long)]
+    pub quiet: bool,
+}
+
+fn has_verb(name: &str) -> bool {
+    crate::Cli::command().find_subcommand(name).is_some()
+}
+
+fn q(s: &str) -> String {
+    format!("\"{}\"", s.replace('\\', "\\\\").replace('"', "\\\""))
+}
+
+/// The demo's study file, with every analysis whose verb this build has.
+pub fn demo_study(t: &ScenarioTruth) -> String {
+    let mut s = String::new();
+    let _ = writeln!(s, "# The Fernhill Outfitters demo study (an invented outdoor-gear retailer).");
+    let _ = writeln!(s, "# Written by `aftercast demo`; run it again with `aftercast run study.toml --out DIR`.");
+    let _ = writeln!(s, "title = \"Fernhill Outfitters: what did this spring's changes do?\"");
+    let _ = writeln!(
+        s,
+        "summary = \"Three changes without a holdout: an app feature launched to everyone on {}, a spring sale in {} of 40 regions, and a loyalty scheme customers joined by choice. A past randomized test checks how far the observational methods land from an experiment's answer.\"",
+        t.app_launch.launch_date,
+        t.regional_sale.sale_regions.len()
+    );
+    let _ = writeln!(s, "\n[defaults]\nlevel = 0.9\nseed = 20260302\ndraws = 1000\n");
+    let _ = writeln!(s, "[questions]");
+    let _ = writeln!(s, "app-orders = \"Did the app feature raise daily app orders?\"");
+    let _ = writeln!(s, "regional-sale = \"What did the spring sale add to regional store revenue, net of the dip after?\"");
+    let _ = writeln!(s, "loyalty = \"How much more do loyalty members spend because of the scheme?\"");
+    let _ = writeln!(s);
+    if has_verb("forecast") {
+        for (name, model) in [("app-launch-structural", "structural"), ("app-launch-harmonic", "harmonic")] {
+            let _ = writeln!(s, "[[analysis]]\nname = {}\nquestion = \"app-orders\"\nverb = \"forecast\"", q(name));
+            let _ = writeln!(s, "describe = \"Daily app orders against a {model} forecast from the pre-period and two untouched control series\"");
+            let _ = writeln!(s, "truth = {}\ntruth_of = \"relative\"", t.app_launch.orders.relative_effect);
+            let _ = writeln!(s, "[analysis.flags]\ndata = \"data/app_daily.csv\"\ntime = \"date\"\noutcome = \"app_orders\"");
+            let _ = writeln!(s, "controls = \"catalogue_orders,weather_index\"\nevents = \"data/calendar.csv\"");
+            let _ = writeln!(s, "start = {}\nmodel = {}\n", q(&t.app_launch.launch_date), q(model));
+        }
+    }
+    if has_verb("synthetic") {
+        let r = &t.regional_sale;
+        let last = r.pull_forward_weeks.last().cloned().unwrap_or_else(|| r.last_week.clone());
+        for method in ["weights", "sdid"] {
+            let _ = writeln!(s, "[[analysis]]\nname = \"regional-sale-{method}\"\nquestion = \"regional-sale\"\nverb = \"synthetic\"");
+            let _ = writeln!(s, "describe = \"Weekly revenue of the sale regions against a synthetic control ({method}) of the 34 untouched regions\"");
+            let _ = writeln!(s, "truth = {}\ntruth_of = \"relative\"", r.relative_net_effect);
+            let _ = writeln!(s, "[analysis.flags]\ndata = \"data/regions_weekly.csv\"\nunit = \"region\"\ntime = \"week\"\noutcome = \"revenue\"");
+            let _ = writeln!(s, "treated = {}\nstart = {}\nend = {}\nmethod = \"{method}\"\n", q(&r.sale_regions.join(",")), q(&r.sale_weeks[0]), q(&last));
+        }
+    }
+    if has_verb("match") {
+        for method in ["nearest", "ipw", "aipw"] {
+            let _ = writeln!(s, "[[analysis]]\nname = \"loyalty-{method}\"\nquestion = \"loyalty\"\nverb = \"match\"");
+            let _ = writeln!(s, "describe = \"90-day spend of scheme members against similar non-members ({method})\"");
+            let _ = writeln!(s, "truth = {}\ntruth_of = \"average\"", t.loyalty.sample_att);
+            let _ = writeln!(s, "[analysis.flags]\ndata = \"data/members.csv\"\ntreatment = \"joined\"\noutcome = \"spend_90d\"");
+            let _ = writeln!(s, "covariates = \"spend_pre,visits_pre,tenure_months,region,age_band\"\nmethod = \"{method}\"\nestimand = \"att\"\nrope = \"1\"\n");
+        }
+    }
+    if has_verb("compare") {
+        let _ = writeln!(s, "[[analysis]]\nname = \"past-test-compare\"\nverb = \"compare\"");
+        let _ = writeln!(s, "describe = \"The past randomized win-back test: how far each observational method lands from the experiment's answer\"");
+        let _ = writeln!(s, "truth = {}\ntruth_of = \"average\"", t.past_test.sample_att);
+        let _ = writeln!(s, "[analysis.flags]\nexperiment = \"data/past_test/experiment.csv\"\narm = \"arm\"\noutcome = \"spend_90d\"");
+        let _ = writeln!(s, "pool = \"data/past_test/pool.csv\"\ncovariates = \"spend_pre,visits_pre,tenure_months,region,age_band\"\nrope = \"1\"\n");
+    }
+    s
+}
+
+/// Run `demo`.
+///
+/// # Errors
+/// Bad input when the folder is not empty (without --force); internal errors otherwise.
+pub fn run(a: &Args) -> anyhow::Result<()> {
+    check_out_dir(&a.out, a.force)?;
+    let truth = crate::demo::write_scenario(&a.out.join("data"))?;
+    aftercast_report::write_json(&a.out.join("truth.json"), &truth)?;
+    let study = demo_study(&truth);
+    let study_path = a.out.join("study.toml");
+    aftercast_report::write_atomic(&study_path, study.as_bytes())?;
+    let doc = crate::verbs::run::run_study(&study_path, &a.out, true, a.quiet)?;
+    if !a.quiet {
+        println!(
+            "demo written to {}: data/ (invented scenario, true effects in truth.json), study.toml, result.json, {} analyses",
+            a.out.display(),
+            doc.analyses.len()
+        );
+    }
+    Ok(())
+}
