@@ -46,7 +46,10 @@ pub(crate) fn prepare(panel: &Panel, treated: &[String], start: TimePoint, p: &S
         None => points.len(),
     };
     if t_end <= t0 {
-        return Err(SynthError::NoPostPeriod { start: start.to_string(), last: p.end.map(|e| e.to_string()).unwrap_or(last) });
+        return Err(SynthError::NoPostPeriod {
+            start: start.to_string(),
+            last: p.end.map(|e| e.to_string()).unwrap_or(last),
+        });
     }
     if t0 < p.min_pre_periods {
         return Err(SynthError::TooFewPrePeriods { start: start.to_string(), found: t0, needed: p.min_pre_periods });
@@ -78,10 +81,14 @@ pub(crate) fn prepare(panel: &Panel, treated: &[String], start: TimePoint, p: &S
     let mut y = Vec::with_capacity(panel.units.len());
     for (u, row) in panel.outcome.iter().enumerate() {
         let r: Vec<f64> = row[..t_end].to_vec();
-        if let Some((t, v)) = r.iter().enumerate().find(|(_, v)| !v.is_finite()) {
-            if tpos.contains(&u) || donors.contains(&u) {
-                return Err(SynthError::NonFinite { unit: panel.units[u].clone(), period: times[t].to_string(), value: *v });
-            }
+        if let Some((t, v)) = r.iter().enumerate().find(|(_, v)| !v.is_finite())
+            && (tpos.contains(&u) || donors.contains(&u))
+        {
+            return Err(SynthError::NonFinite {
+                unit: panel.units[u].clone(),
+                period: times[t].to_string(),
+                value: *v,
+            });
         }
         y.push(r);
     }
@@ -96,10 +103,7 @@ pub(crate) fn prepare(panel: &Panel, treated: &[String], start: TimePoint, p: &S
             });
         }
     }
-    let covariates = panel
-        .covariates
-        .iter()
-        .map(|(n, m)| (n.clone(), m.iter().map(|r| r[..t_end].to_vec()).collect()))
-        .collect();
+    let covariates =
+        panel.covariates.iter().map(|(n, m)| (n.clone(), m.iter().map(|r| r[..t_end].to_vec()).collect())).collect();
     Ok(Prepared { units: panel.units.clone(), times, y, t0, treated: tpos, donors, covariates })
 }

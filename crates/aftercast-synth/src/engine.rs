@@ -69,22 +69,22 @@ impl<'a> Engine<'a> {
             Method::Weights | Method::Intercept => self.fit_gram(target, donors),
             Method::Ridge => self.fit_ridge(target, donors),
             Method::Predictors => {
-                let ps = self.predictors.as_ref().ok_or(SynthError::Numerical {
-                    stage: "predictors",
-                    detail: "predictor set missing".into(),
-                })?;
+                let ps = self
+                    .predictors
+                    .as_ref()
+                    .ok_or(SynthError::Numerical { stage: "predictors", detail: "predictor set missing".into() })?;
                 ps.fit(self.prep, self.params, target, donors)
             }
-            Method::Sdid => Err(SynthError::Unsupported { method: "sdid", detail: "sdid is not a weighting fit".into() }),
+            Method::Sdid => {
+                Err(SynthError::Unsupported { method: "sdid", detail: "sdid is not a weighting fit".into() })
+            }
         }
     }
 
     fn solve(&self, target: usize, donors: &[usize]) -> SynthResult<SimplexSolution> {
         let b: Vec<f64> = donors.iter().map(|&j| self.gram[(j, target)]).collect();
-        let sol = simplex::solve_indexed(&self.gram, &b, donors, &self.params.solver).ok_or(SynthError::TooFewDonors {
-            found: donors.len(),
-            needed: 1,
-        })?;
+        let sol = simplex::solve_indexed(&self.gram, &b, donors, &self.params.solver)
+            .ok_or(SynthError::TooFewDonors { found: donors.len(), needed: 1 })?;
         check_solver(&self.prep.units[target], &sol, self.params.solver.tolerance)?;
         Ok(sol)
     }
@@ -171,19 +171,24 @@ pub(crate) fn check_solver(unit: &str, sol: &SimplexSolution, tol: f64) -> Synth
 
 /// `Σ_j w_j y_j(t) + c` over all periods in use.
 pub(crate) fn weighted_path(prep: &Prepared, donors: &[usize], w: &[f64], c: f64) -> Vec<f64> {
-    (0..prep.n_periods())
-        .map(|t| c + donors.iter().zip(w).map(|(&j, wj)| wj * prep.y[j][t]).sum::<f64>())
-        .collect()
+    (0..prep.n_periods()).map(|t| c + donors.iter().zip(w).map(|(&j, wj)| wj * prep.y[j][t]).sum::<f64>()).collect()
 }
 
 /// Simplex weights of `target` on donors using periods `0..s` only.
-pub(crate) fn simplex_on_prefix(prep: &Prepared, target: usize, donors: &[usize], s: usize, params: &SynthParams) -> SynthResult<Vec<f64>> {
+pub(crate) fn simplex_on_prefix(
+    prep: &Prepared,
+    target: usize,
+    donors: &[usize],
+    s: usize,
+    params: &SynthParams,
+) -> SynthResult<Vec<f64>> {
     let j = donors.len();
     let x = DMatrix::from_fn(s, j, |t, k| prep.y[donors[k]][t]);
     let y = DVector::from_fn(s, |t, _| prep.y[target][t]);
     let h = x.tr_mul(&x);
     let b = x.tr_mul(&y);
-    let sol = simplex::solve(&h, b.as_slice(), &params.solver).ok_or(SynthError::TooFewDonors { found: j, needed: 1 })?;
+    let sol =
+        simplex::solve(&h, b.as_slice(), &params.solver).ok_or(SynthError::TooFewDonors { found: j, needed: 1 })?;
     check_solver(&prep.units[target], &sol, params.solver.tolerance)?;
     Ok(sol.weights)
 }
@@ -213,7 +218,14 @@ fn centered_donors(prep: &Prepared, donors: &[usize], s: usize) -> DMatrix<f64> 
 /// Ridge-augmented weights (Ben-Michael, Feller & Rothstein 2021, eq. for ridge ASCM):
 /// γ = w + Xc (XcᵀXc + λI)⁻¹ (x₁ − X₀ᵀw), with X₀ the donors' outcomes on periods 0..s and Xc
 /// the same centred over donors. Σγ = 1 because the columns of Xc sum to zero.
-pub(crate) fn augment(prep: &Prepared, target: usize, donors: &[usize], w: &[f64], s: usize, lambda: f64) -> SynthResult<Vec<f64>> {
+pub(crate) fn augment(
+    prep: &Prepared,
+    target: usize,
+    donors: &[usize],
+    w: &[f64],
+    s: usize,
+    lambda: f64,
+) -> SynthResult<Vec<f64>> {
     let j = donors.len();
     let xc = centered_donors(prep, donors, s);
     let mut resid = DVector::<f64>::zeros(s);

@@ -7,9 +7,9 @@ use aftercast_core::error::DataError;
 #[derive(Debug, thiserror::Error)]
 #[non_exhaustive]
 pub enum SynthError {
-    /// A data-layer problem (file, column, cell).
+    /// A data-layer problem (file, column, cell). Boxed to keep the error small.
     #[error(transparent)]
-    Data(#[from] DataError),
+    Data(Box<DataError>),
     /// A treated unit named by the caller is not in the panel.
     #[error("treated unit '{unit}' is not in the panel (it has {n_units} units, e.g. {examples})")]
     TreatedNotFound {
@@ -30,7 +30,9 @@ pub enum SynthError {
     #[error("no treated unit was given")]
     NoTreated,
     /// Too few untreated units to build a synthetic control from.
-    #[error("only {found} donor units are left after removing the treated and excluded units; at least {needed} are needed")]
+    #[error(
+        "only {found} donor units are left after removing the treated and excluded units; at least {needed} are needed"
+    )]
     TooFewDonors {
         /// Donors available.
         found: usize,
@@ -56,7 +58,9 @@ pub enum SynthError {
         last: String,
     },
     /// A treated unit's outcome does not vary over the pre-period.
-    #[error("unit '{unit}' has the constant value {value} over every pre-period (up to {last_pre}); a synthetic control cannot be judged on it")]
+    #[error(
+        "unit '{unit}' has the constant value {value} over every pre-period (up to {last_pre}); a synthetic control cannot be judged on it"
+    )]
     ConstantSeries {
         /// The unit.
         unit: String,
@@ -110,7 +114,9 @@ pub enum SynthError {
         detail: String,
     },
     /// The weight solver did not reach its tolerance.
-    #[error("the weight solver for unit '{unit}' stopped after {iterations} iterations with KKT residual {kkt_residual:.3e} (tolerance {tolerance:.1e})")]
+    #[error(
+        "the weight solver for unit '{unit}' stopped after {iterations} iterations with KKT residual {kkt_residual:.3e} (tolerance {tolerance:.1e})"
+    )]
     NotConverged {
         /// The (pseudo-)treated unit.
         unit: String,
@@ -129,6 +135,12 @@ pub enum SynthError {
         /// What happened.
         detail: String,
     },
+}
+
+impl From<DataError> for SynthError {
+    fn from(e: DataError) -> Self {
+        SynthError::Data(Box::new(e))
+    }
 }
 
 /// Result alias of this crate.

@@ -265,8 +265,10 @@ impl ValidParams {
             cores.push(core);
         }
         let n_t = prep.n_periods();
-        let observed: Vec<f64> = (0..n_t).map(|t| units.iter().zip(&shares).map(|(f, s)| s * f.observed[t]).sum()).collect();
-        let synthetic: Vec<f64> = (0..n_t).map(|t| units.iter().zip(&shares).map(|(f, s)| s * f.synthetic[t]).sum()).collect();
+        let observed: Vec<f64> =
+            (0..n_t).map(|t| units.iter().zip(&shares).map(|(f, s)| s * f.observed[t]).sum()).collect();
+        let synthetic: Vec<f64> =
+            (0..n_t).map(|t| units.iter().zip(&shares).map(|(f, s)| s * f.synthetic[t]).sum()).collect();
         let placebo = if p.placebo { Some(run_placebos(&prep, p, &engine, &units)?) } else { None };
         let draws = match &placebo {
             Some(pl) => placebo_draws(&prep, &units, &shares, pl, &synthetic, &mut warnings),
@@ -362,7 +364,13 @@ fn unit_fit(prep: &Prepared, p: &SynthParams, engine: &Engine<'_>, u: usize, cor
     })
 }
 
-fn balance_table(prep: &Prepared, p: &SynthParams, engine: &Engine<'_>, u: usize, core: &CoreFit) -> SynthResult<Vec<PredictorBalance>> {
+fn balance_table(
+    prep: &Prepared,
+    p: &SynthParams,
+    engine: &Engine<'_>,
+    u: usize,
+    core: &CoreFit,
+) -> SynthResult<Vec<PredictorBalance>> {
     let (names, raw) = match &engine.predictors {
         Some(ps) => (ps.names.clone(), ps.raw.clone()),
         None => {
@@ -403,7 +411,14 @@ fn run_placebos(prep: &Prepared, p: &SynthParams, engine: &Engine<'_>, units: &[
     let mut runs = Vec::with_capacity(results.len());
     for (r, &d) in results.into_iter().zip(&prep.donors) {
         let (pre, post, gap) = r?;
-        runs.push(PlaceboRun { unit: prep.units[d].clone(), pre_rmspe: pre, post_rmspe: post, ratio: post / pre, gap, kept: true });
+        runs.push(PlaceboRun {
+            unit: prep.units[d].clone(),
+            pre_rmspe: pre,
+            post_rmspe: post,
+            ratio: post / pre,
+            gap,
+            kept: true,
+        });
     }
     let mut ranks = Vec::with_capacity(units.len());
     for f in units {
@@ -413,9 +428,16 @@ fn run_placebos(prep: &Prepared, p: &SynthParams, engine: &Engine<'_>, units: &[
         };
         let kept: Vec<&PlaceboRun> = runs.iter().filter(|r| keep(r)).collect();
         let excluded = runs.len() - kept.len();
-        let rank = 1 + kept.iter().filter(|r| !(r.ratio < f.rmspe_ratio)).count();
+        let rank = 1 + kept.iter().filter(|r| r.ratio >= f.rmspe_ratio || r.ratio.is_nan()).count();
         let n = kept.len() + 1;
-        ranks.push(PlaceboRank { unit: f.unit.clone(), ratio: f.rmspe_ratio, rank, units: n, p_value: rank as f64 / n as f64, excluded });
+        ranks.push(PlaceboRank {
+            unit: f.unit.clone(),
+            ratio: f.rmspe_ratio,
+            rank,
+            units: n,
+            p_value: rank as f64 / n as f64,
+            excluded,
+        });
     }
     if let (Some(k), 1) = (p.placebo_exclude_factor, units.len()) {
         let lim = k * units[0].pre_rmspe;
@@ -459,12 +481,21 @@ fn joint_permutation_p(units: &[UnitFit], runs: &[PlaceboRun], seed: u64) -> f64
 /// synthetic path. For several treated units the rescaled gaps are aggregated with the unit
 /// shares. Placebos with zero pre-RMSPE (an exact in-hull fit) cannot be rescaled and are left
 /// out, as are placebos excluded by the pre-RMSPE rule.
-fn placebo_draws(prep: &Prepared, units: &[UnitFit], shares: &[f64], pl: &Placebo, synthetic: &[f64], warnings: &mut Vec<String>) -> Draws {
+fn placebo_draws(
+    prep: &Prepared,
+    units: &[UnitFit],
+    shares: &[f64],
+    pl: &Placebo,
+    synthetic: &[f64],
+    warnings: &mut Vec<String>,
+) -> Draws {
     let t0 = prep.t0;
     let tp = prep.n_periods() - t0;
     let mut devs: Vec<Vec<f64>> = Vec::new();
     for r in &pl.runs {
-        if !(r.pre_rmspe > 0.0) || !units.iter().all(|u| pl.exclude_factor.is_none_or(|k| r.pre_rmspe <= k * u.pre_rmspe)) {
+        if r.pre_rmspe.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater)
+            || !units.iter().all(|u| pl.exclude_factor.is_none_or(|k| r.pre_rmspe <= k * u.pre_rmspe))
+        {
             continue;
         }
         let d: Vec<f64> = (0..tp)

@@ -12,16 +12,16 @@
 //!
 //! The numerical core is the exact simplex QP solver in [`simplex`].
 
-pub mod error;
-pub mod params;
-pub mod simplex;
-pub mod fit;
-pub mod sdid;
-pub mod inference;
-pub mod result;
 mod data;
 mod engine;
+pub mod error;
+pub mod fit;
+pub mod inference;
+pub mod params;
 mod predictors;
+pub mod result;
+pub mod sdid;
+pub mod simplex;
 
 pub use error::{SynthError, SynthResult};
 pub use fit::{Fitted, Placebo, PlaceboRun, PredictorBalance, UnitFit};

@@ -205,10 +205,10 @@ impl SynthParams {
         if !(self.level > 0.0 && self.level < 1.0) {
             return bad("level", self.level.to_string(), "must lie strictly between 0 and 1");
         }
-        if let Some(k) = self.placebo_exclude_factor {
-            if !(k.is_finite() && k > 0.0) {
-                return bad("placebo_exclude_factor", k.to_string(), "must be a positive number");
-            }
+        if let Some(k) = self.placebo_exclude_factor
+            && !(k.is_finite() && k > 0.0)
+        {
+            return bad("placebo_exclude_factor", k.to_string(), "must be a positive number");
         }
         if self.min_pre_periods < 2 {
             return bad("min_pre_periods", self.min_pre_periods.to_string(), "must be at least 2");
@@ -219,10 +219,10 @@ impl SynthParams {
         if self.predictor_outcome_blocks == 0 {
             return bad("predictor_outcome_blocks", "0".into(), "must be at least 1");
         }
-        if let Some(l) = self.ridge_lambda {
-            if !(l.is_finite() && l >= 0.0) {
-                return bad("ridge_lambda", l.to_string(), "must be a finite number >= 0");
-            }
+        if let Some(l) = self.ridge_lambda
+            && !(l.is_finite() && l >= 0.0)
+        {
+            return bad("ridge_lambda", l.to_string(), "must be a finite number >= 0");
         }
         if self.cv_folds == Some(0) {
             return bad("cv_folds", "0".into(), "must be at least 1");
@@ -230,10 +230,10 @@ impl SynthParams {
         if self.sdid_placebo_reps < 20 {
             return bad("sdid_placebo_reps", self.sdid_placebo_reps.to_string(), "must be at least 20");
         }
-        if let Aggregation::Weighted(w) = &self.aggregate {
-            if w.iter().any(|v| !(v.is_finite() && *v >= 0.0)) || w.iter().sum::<f64>() <= 0.0 {
-                return bad("aggregate", format!("{w:?}"), "sizes must be finite, non-negative and not all zero");
-            }
+        if let Aggregation::Weighted(w) = &self.aggregate
+            && (w.iter().any(|v| !(v.is_finite() && *v >= 0.0)) || w.iter().sum::<f64>() <= 0.0)
+        {
+            return bad("aggregate", format!("{w:?}"), "sizes must be finite, non-negative and not all zero");
         }
         let tol = self.solver.tolerance;
         if !(tol > 0.0 && tol <= 1e-3) {

@@ -29,7 +29,11 @@ pub(crate) struct PredictorSet {
 
 /// Predictor names and raw values for the balance table of any method: covariates averaged
 /// over the pre-period, then the pre-period outcome averaged over `blocks` equal blocks.
-pub(crate) fn raw_predictors(prep: &Prepared, covariates: &[String], blocks: usize) -> SynthResult<(Vec<String>, DMatrix<f64>)> {
+pub(crate) fn raw_predictors(
+    prep: &Prepared,
+    covariates: &[String],
+    blocks: usize,
+) -> SynthResult<(Vec<String>, DMatrix<f64>)> {
     let t0 = prep.t0;
     let n = prep.units.len();
     let mut names = Vec::new();
@@ -46,11 +50,7 @@ pub(crate) fn raw_predictors(prep: &Prepared, covariates: &[String], blocks: usi
     for b in 0..blocks {
         let lo = b * t0 / blocks;
         let hi = (b + 1) * t0 / blocks;
-        let label = if blocks == 1 {
-            format!("outcome mean {}..{}", prep.times[lo], prep.times[hi - 1])
-        } else {
-            format!("outcome mean {}..{}", prep.times[lo], prep.times[hi - 1])
-        };
+        let label = format!("outcome mean {}..{}", prep.times[lo], prep.times[hi - 1]);
         names.push(label);
         rows.push((0..n).map(|u| prep.y[u][lo..hi].iter().sum::<f64>() / (hi - lo) as f64).collect());
     }
@@ -69,7 +69,7 @@ impl PredictorSet {
             let m = vals.iter().sum::<f64>() / vals.len() as f64;
             let var = vals.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (vals.len() as f64 - 1.0).max(1.0);
             let sd = var.sqrt();
-            if !(sd > 1e-12 * m.abs().max(1e-300)) {
+            if sd.is_nan() || sd <= 1e-12 * m.abs().max(1e-300) {
                 return Err(SynthError::ConstantPredictor { predictor: names[r].clone(), value: m });
             }
             for u in 0..raw.ncols() {
@@ -110,7 +110,9 @@ impl PredictorSet {
         };
         let equal = vec![1.0 / k as f64; k];
         let mut best_v = equal.clone();
-        let mut best_sol = self.inner(target, donors, &equal, params).ok_or(SynthError::TooFewDonors { found: donors.len(), needed: 1 })?;
+        let mut best_sol = self
+            .inner(target, donors, &equal, params)
+            .ok_or(SynthError::TooFewDonors { found: donors.len(), needed: 1 })?;
         let mut best_cost = mspe(&best_sol.weights);
         if k > 1 {
             let problem = OuterProblem { set: self, target, donors, params, mspe: &mspe };
@@ -125,8 +127,8 @@ impl PredictorSet {
                 detail: e.to_string(),
             })?;
             let run = Executor::new(problem, solver).configure(|s| s.max_iters(200 * k as u64 + 200)).run();
-            if let Ok(res) = run {
-                if let Some(theta) = res.state().get_best_param() {
+            if let Some(theta) = run.as_ref().ok().and_then(|res| res.state().get_best_param()) {
+                {
                     let v = softmax(theta);
                     if let Some(sol) = self.inner(target, donors, &v, params) {
                         let c = mspe(&sol.weights);

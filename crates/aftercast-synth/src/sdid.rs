@@ -80,6 +80,7 @@ pub(crate) fn noise_level(y: &[Vec<f64>], controls: &[usize], t0: usize) -> f64 
 }
 
 /// One SDID estimate with weights re-estimated.
+#[allow(clippy::too_many_arguments)]
 pub(crate) fn estimate(
     y: &[Vec<f64>],
     controls: &[usize],
@@ -131,7 +132,14 @@ pub(crate) fn estimate(
     Some(assemble(y, controls, &tr, t0, unit_sol, time_sol))
 }
 
-fn assemble(y: &[Vec<f64>], controls: &[usize], tr: &[f64], t0: usize, unit_sol: SimplexSolution, time_sol: SimplexSolution) -> Core {
+fn assemble(
+    y: &[Vec<f64>],
+    controls: &[usize],
+    tr: &[f64],
+    t0: usize,
+    unit_sol: SimplexSolution,
+    time_sol: SimplexSolution,
+) -> Core {
     let omega = unit_sol.weights.clone();
     let lambda = time_sol.weights.clone();
     let (tau_path, synthetic) = paths(y, controls, tr, t0, &omega, &lambda);
@@ -140,13 +148,20 @@ fn assemble(y: &[Vec<f64>], controls: &[usize], tr: &[f64], t0: usize, unit_sol:
 }
 
 /// Per-period effects and the synthetic path ω'Y_t + (λ'Ȳ_tr,pre − ω'Y_pre λ).
-fn paths(y: &[Vec<f64>], controls: &[usize], tr: &[f64], t0: usize, omega: &[f64], lambda: &[f64]) -> (Vec<f64>, Vec<f64>) {
+fn paths(
+    y: &[Vec<f64>],
+    controls: &[usize],
+    tr: &[f64],
+    t0: usize,
+    omega: &[f64],
+    lambda: &[f64],
+) -> (Vec<f64>, Vec<f64>) {
     let nt = tr.len();
     let tr_pre: f64 = (0..t0).map(|t| lambda[t] * tr[t]).sum();
-    let co_pre: f64 = controls.iter().zip(omega).map(|(&j, w)| w * (0..t0).map(|t| lambda[t] * y[j][t]).sum::<f64>()).sum();
-    let synthetic: Vec<f64> = (0..nt)
-        .map(|t| controls.iter().zip(omega).map(|(&j, w)| w * y[j][t]).sum::<f64>() + tr_pre - co_pre)
-        .collect();
+    let co_pre: f64 =
+        controls.iter().zip(omega).map(|(&j, w)| w * (0..t0).map(|t| lambda[t] * y[j][t]).sum::<f64>()).sum();
+    let synthetic: Vec<f64> =
+        (0..nt).map(|t| controls.iter().zip(omega).map(|(&j, w)| w * y[j][t]).sum::<f64>() + tr_pre - co_pre).collect();
     let tau_path = (t0..nt).map(|t| tr[t] - synthetic[t]).collect();
     (tau_path, synthetic)
 }
@@ -159,10 +174,8 @@ pub(crate) fn fit_sdid(prep: &Prepared, p: &SynthParams, outcome: &str, shares: 
     let sigma = noise_level(&prep.y, controls, t0);
     let t1 = nt - t0;
     let zeta = ((n1 * t1) as f64).powf(0.25) * sigma;
-    let core = estimate(&prep.y, controls, &prep.treated, &shares, t0, zeta, sigma, p).ok_or(SynthError::TooFewDonors {
-        found: controls.len(),
-        needed: 2,
-    })?;
+    let core = estimate(&prep.y, controls, &prep.treated, &shares, t0, zeta, sigma, p)
+        .ok_or(SynthError::TooFewDonors { found: controls.len(), needed: 2 })?;
     let label = if n1 == 1 { prep.units[prep.treated[0]].clone() } else { format!("average of {n1} treated units") };
     check_solver(&label, &core.unit_sol, p.solver.tolerance)?;
     check_solver(&label, &core.time_sol, p.solver.tolerance)?;
@@ -217,7 +230,10 @@ pub(crate) fn fit_sdid(prep: &Prepared, p: &SynthParams, outcome: &str, shares: 
         }
         let n = paths_i.len() as f64;
         let mean: Vec<f64> = (0..t1).map(|k| paths_i.iter().map(|q| q[k]).sum::<f64>() / n).collect();
-        let devs = paths_i.iter().map(|q| (0..t1).map(|k| (n - 1.0).sqrt() * (q[k] - mean[k]) + core.tau_path[k]).collect()).collect();
+        let devs = paths_i
+            .iter()
+            .map(|q| (0..t1).map(|k| (n - 1.0).sqrt() * (q[k] - mean[k]) + core.tau_path[k]).collect())
+            .collect();
         ("jackknife", paths_i.len(), devs)
     };
     // Placebo taus are centred at their mean and added to the estimate; jackknife paths are
@@ -239,9 +255,13 @@ pub(crate) fn fit_sdid(prep: &Prepared, p: &SynthParams, outcome: &str, shares: 
     if reps < 20 {
         warnings.push(format!("the SDID {variance_method} variance rests on only {reps} replications"));
     }
-    let counterfactual: Vec<Vec<f64>> = effect_draws.iter().map(|e| (0..t1).map(|k| core.treated_avg[t0 + k] - e[k]).collect()).collect();
-    let unit_weights: Vec<UnitWeight> =
-        controls.iter().zip(&core.omega).map(|(&j, &w)| UnitWeight { unit: prep.units[j].clone(), weight: w }).collect();
+    let counterfactual: Vec<Vec<f64>> =
+        effect_draws.iter().map(|e| (0..t1).map(|k| core.treated_avg[t0 + k] - e[k]).collect()).collect();
+    let unit_weights: Vec<UnitWeight> = controls
+        .iter()
+        .zip(&core.omega)
+        .map(|(&j, &w)| UnitWeight { unit: prep.units[j].clone(), weight: w })
+        .collect();
     let gap: Vec<f64> = core.treated_avg.iter().zip(&core.synthetic).map(|(a, b)| a - b).collect();
     let pre_rmspe = rmspe(&gap[..t0]);
     let post_rmspe = rmspe(&gap[t0..]);

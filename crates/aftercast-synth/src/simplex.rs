@@ -87,8 +87,8 @@ pub fn solve_indexed(h: &DMatrix<f64>, b: &[f64], idx: &[usize], opts: &SimplexO
     }
     let hh = |a: usize, c: usize| h[(idx[a], idx[c])];
     let mut scale = 0.0_f64;
-    for k in 0..n {
-        scale = scale.max(hh(k, k).abs()).max(b[k].abs());
+    for (k, bk) in b.iter().enumerate() {
+        scale = scale.max(hh(k, k).abs()).max(bk.abs());
     }
     if scale == 0.0 || !scale.is_finite() {
         scale = 1.0;
@@ -101,8 +101,8 @@ pub fn solve_indexed(h: &DMatrix<f64>, b: &[f64], idx: &[usize], opts: &SimplexO
     // Start at the best vertex.
     let mut best = 0;
     let mut best_val = f64::INFINITY;
-    for k in 0..n {
-        let v = 0.5 * hh(k, k) - b[k];
+    for (k, bk) in b.iter().enumerate() {
+        let v = 0.5 * hh(k, k) - bk;
         if v < best_val {
             best_val = v;
             best = k;
@@ -276,11 +276,9 @@ impl Factor {
         let m = self.support.len();
         let mut l = vec![0.0; m + 1];
         for i in 0..m {
-            let mut s = hh(self.support[i], k);
-            for q in 0..i {
-                s -= self.rows[i][q] * l[q];
-            }
-            l[i] = s / self.rows[i][i];
+            let row = &self.rows[i];
+            let s = hh(self.support[i], k) - row[..i].iter().zip(&l[..i]).map(|(a, c)| a * c).sum::<f64>();
+            l[i] = s / row[i];
         }
         let d2 = hh(k, k) + ridge - l[..m].iter().map(|v| v * v).sum::<f64>();
         // A numerically dependent column gets the ridge as its pivot.
@@ -302,17 +300,12 @@ impl Factor {
         let m = self.support.len();
         let mut y = vec![0.0; m];
         for i in 0..m {
-            let mut s = r[i];
-            for q in 0..i {
-                s -= self.rows[i][q] * y[q];
-            }
-            y[i] = s / self.rows[i][i];
+            let row = &self.rows[i];
+            let s = r[i] - row[..i].iter().zip(&y[..i]).map(|(a, c)| a * c).sum::<f64>();
+            y[i] = s / row[i];
         }
         for i in (0..m).rev() {
-            let mut s = y[i];
-            for q in i + 1..m {
-                s -= self.rows[q][i] * y[q];
-            }
+            let s = y[i] - (i + 1..m).map(|q| self.rows[q][i] * y[q]).sum::<f64>();
             y[i] = s / self.rows[i][i];
         }
         y

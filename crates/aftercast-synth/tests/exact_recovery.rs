@@ -47,10 +47,20 @@ fn intercept_method_recovers_shifted_combination() {
     names.push("treated".into());
     y.push(tr);
     let panel = common::panel_from_matrix(&names, &y);
-    let plain = SynthParams::new().placebo(false).check().unwrap().fit(&panel, &["treated".into()], TimePoint::Period(30)).unwrap();
+    let plain = SynthParams::new()
+        .placebo(false)
+        .check()
+        .unwrap()
+        .fit(&panel, &["treated".into()], TimePoint::Period(30))
+        .unwrap();
     assert!(plain.units[0].outside_hull, "a +40 shift must trigger the convex-hull warning");
     assert!(!plain.warnings.is_empty());
-    let fit = SynthParams::new().method(Method::Intercept).check().unwrap().fit(&panel, &["treated".into()], TimePoint::Period(30)).unwrap();
+    let fit = SynthParams::new()
+        .method(Method::Intercept)
+        .check()
+        .unwrap()
+        .fit(&panel, &["treated".into()], TimePoint::Period(30))
+        .unwrap();
     let u = &fit.units[0];
     for (w, t) in u.weights.iter().zip(&truth) {
         assert!((w.weight - t).abs() < tol::EXACT_WEIGHTS, "{} {} vs {}", w.unit, w.weight, t);

@@ -36,10 +36,22 @@ fn grunfeld_weights_match_scipy_slsqp() {
         let names: Vec<&str> = u.weights.iter().map(|w| w.unit.as_str()).collect();
         assert_eq!(names, f.donors.iter().map(String::as_str).collect::<Vec<_>>());
         for (w, rw) in u.weights.iter().zip(&f.weights) {
-            assert!((w.weight - rw).abs() < tol::SCIPY_WEIGHTS, "{}: {} {} vs scipy {}", f.treated, w.unit, w.weight, rw);
+            assert!(
+                (w.weight - rw).abs() < tol::SCIPY_WEIGHTS,
+                "{}: {} {} vs scipy {}",
+                f.treated,
+                w.unit,
+                w.weight,
+                rw
+            );
         }
         let mspe = u.pre_rmspe * u.pre_rmspe;
-        assert!((mspe - f.mspe).abs() <= tol::SCIPY_OBJECTIVE_REL * f.mspe, "{}: mspe {mspe} vs scipy {}", f.treated, f.mspe);
+        assert!(
+            (mspe - f.mspe).abs() <= tol::SCIPY_OBJECTIVE_REL * f.mspe,
+            "{}: mspe {mspe} vs scipy {}",
+            f.treated,
+            f.mspe
+        );
         // Ours must be no worse than scipy's (it is the exact optimum up to rounding).
         assert!(mspe <= f.mspe * (1.0 + 1e-9), "{}: {mspe} > {}", f.treated, f.mspe);
         assert!(u.solver.kkt_relative < tol::KKT_REL, "{}: kkt {}", f.treated, u.solver.kkt_relative);
