@@ -1,6 +1,8 @@
 //! aftercast-report: the plain terminal summary of a result and atomic JSON output.
 //! Charts and the HTML report build on the same [`AnalysisResult`].
 
+pub mod charts;
+
 use aftercast_core::result::{AnalysisResult, RopeUnits, Summary};
 use std::io::Write;
 use std::path::Path;
@@ -137,7 +139,11 @@ pub fn terminal_summary(r: &AnalysisResult, headline: &str) -> String {
         RopeUnits::Percent => format!("{} to {} of the counterfactual", fmt_pct(r.rope.low), fmt_pct(r.rope.high)),
         RopeUnits::Outcome => format!("{} to {} in outcome units", fmt_signed(r.rope.low), fmt_signed(r.rope.high)),
     };
-    out.push(format!("  verdict: {}. {} (smallest effect that matters: outside {rope})", r.verdict.word(), r.verdict.sentence()));
+    out.push(format!(
+        "  verdict: {}. {} (smallest effect that matters: outside {rope})",
+        r.verdict.word(),
+        r.verdict.sentence()
+    ));
     for w in &r.warnings {
         out.push(format!("  warning: {w}"));
     }

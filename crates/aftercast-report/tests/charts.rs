@@ -1,0 +1,270 @@
+//! Charts: every view of every verb decodes as PNG of the expected size, is not blank, draws its
+//! data in the palette's colours, and its SVG parses as XML. Odd data draws a note, never panics.
+//!
+//! Set `AFTERCAST_CHART_DIR=/some/dir` to keep the files for looking at them.
+
+mod common;
+
+use aftercast_core::result::{AnalysisResult, Summary};
+use aftercast_report::charts::{self, ChartExtras, PosteriorSource, theme};
+use std::path::Path;
+
+/// Thresholds of the pixel checks (one place).
+mod tol {
+    /// Luminance variance (0..255 scale) below which a picture counts as blank.
+    pub const MIN_VARIANCE: f64 = 50.0;
+    /// Distance (max over channels) within which a pixel counts as a palette colour.
+    pub const COLOUR_DIST: i32 = 12;
+    /// Pixels of a data colour that a chart drawing that colour must contain.
+    pub const MIN_COLOUR_PIXELS: usize = 200;
+}
+
+struct Decoded {
+    width: u32,
+    height: u32,
+    rgb: Vec<u8>,
+}
+
+fn decode(bytes: &[u8]) -> Decoded {
+    let dec = png::Decoder::new(bytes);
+    let mut reader = dec.read_info().expect("PNG header");
+    let mut buf = vec![0; reader.output_buffer_size()];
+    let info = reader.next_frame(&mut buf).expect("PNG frame");
+    assert_eq!(info.color_type, png::ColorType::Rgb, "charts are RGB");
+    assert_eq!(info.bit_depth, png::BitDepth::Eight);
+    buf.truncate(info.buffer_size());
+    Decoded { width: info.width, height: info.height, rgb: buf }
+}
+
+fn luminance_variance(d: &Decoded) -> f64 {
+    let lum: Vec<f64> =
+        d.rgb.chunks(3).map(|p| 0.299 * f64::from(p[0]) + 0.587 * f64::from(p[1]) + 0.114 * f64::from(p[2])).collect();
+    let mean = lum.iter().sum::<f64>() / lum.len() as f64;
+    lum.iter().map(|l| (l - mean).powi(2)).sum::<f64>() / lum.len() as f64
+}
+
+fn count_colour(d: &Decoded, c: plotters::style::RGBColor) -> usize {
+    d.rgb
+        .chunks(3)
+        .filter(|p| {
+            (i32::from(p[0]) - i32::from(c.0)).abs() <= tol::COLOUR_DIST
+                && (i32::from(p[1]) - i32::from(c.1)).abs() <= tol::COLOUR_DIST
+                && (i32::from(p[2]) - i32::from(c.2)).abs() <= tol::COLOUR_DIST
+        })
+        .count()
+}
+
+/// A palette colour laid over the paper background at `alpha` (how translucent fills look).
+fn over_paper(c: plotters::style::RGBColor, alpha: f64) -> plotters::style::RGBColor {
+    let mix = |a: u8, b: u8| (alpha * f64::from(a) + (1.0 - alpha) * f64::from(b)).round() as u8;
+    let p = theme::PAPER;
+    plotters::style::RGBColor(mix(c.0, p.0), mix(c.1, p.1), mix(c.2, p.2))
+}
+
+fn parse_svg(text: &str) {
+    let doc = roxmltree::Document::parse(text).expect("SVG parses as XML");
+    assert_eq!(doc.root_element().tag_name().name(), "svg");
+    assert!(doc.descendants().any(|n| n.has_tag_name("text")), "SVG has text");
+}
+
+fn out_dir(tmp: &Path) -> std::path::PathBuf {
+    match std::env::var_os("AFTERCAST_CHART_DIR") {
+        Some(d) => d.into(),
+        None => tmp.to_path_buf(),
+    }
+}
+
+fn extras_for(stem: &str) -> ChartExtras {
+    if stem == "forecast" {
+        let (rel, avg) = common::forecast_draws(4000);
+        ChartExtras { relative_draws: Some(rel), average_draws: Some(avg), ..Default::default() }
+    } else {
+        ChartExtras::default()
+    }
+}
+
+#[test]
+fn every_view_of_every_verb_is_written_decodes_and_is_not_blank() {
+    let tmp = tempfile::tempdir().expect("tempdir");
+    let dir = out_dir(tmp.path());
+    let expected_views: &[(&str, &[&str])] = &[
+        ("forecast", &["counterfactual", "effect", "running-total", "posterior"]),
+        ("synthetic", &["treated-vs-synthetic", "effect", "running-total", "placebo-gaps", "weights", "posterior"]),
+        ("match", &["propensity", "balance", "rosenbaum", "posterior"]),
+        ("compare", &["versus-truth", "posterior"]),
+        ("backtest", &["power", "mde", "posterior"]),
+    ];
+    for (stem, result) in common::all() {
+        let extras = extras_for(stem);
+        let planned = charts::charts_for(&result, &extras, stem);
+        let names: Vec<&str> = planned.iter().map(|c| c.name.as_str()).collect();
+        let views = expected_views.iter().find(|(s, _)| *s == stem).expect("expected views").1;
+        for v in views {
+            assert!(names.contains(&format!("{stem}-{v}").as_str()), "{stem}: missing view {v} in {names:?}");
+        }
+        for c in &planned {
+            assert!(!c.is_note(), "{}: fixture data should draw, not fall back to a note", c.name);
+            assert!(!c.caption.is_empty() && c.caption.ends_with('.'), "{}: caption is one sentence", c.name);
+        }
+        let written = charts::write_all(&result, &extras, &dir, stem).expect("write_all");
+        assert_eq!(written.len(), 2 * planned.len(), "{stem}: a PNG and an SVG per chart");
+        for c in &planned {
+            let png = std::fs::read(dir.join(format!("{}.png", c.name))).expect("png file");
+            let d = decode(&png);
+            assert_eq!((d.width, d.height), (c.width, c.height), "{}: size", c.name);
+            let var = luminance_variance(&d);
+            assert!(var > tol::MIN_VARIANCE, "{}: luminance variance {var} looks blank", c.name);
+            let svg = std::fs::read_to_string(dir.join(format!("{}.svg", c.name))).expect("svg file");
+            parse_svg(&svg);
+        }
+    }
+}
+
+#[test]
+fn the_counterfactual_view_draws_observed_ink_and_clay_counterfactual() {
+    let r = common::forecast();
+    let charts = charts::charts_for(&r, &ChartExtras::default(), "f");
+    let c = charts.iter().find(|c| c.name == "f-counterfactual").expect("chart");
+    assert_eq!((c.width, c.height), (charts::WIDTH, charts::HEIGHT));
+    let d = decode(&c.to_png().expect("png"));
+    assert!(count_colour(&d, theme::INK) > tol::MIN_COLOUR_PIXELS, "observed line in ink");
+    assert!(count_colour(&d, theme::CLAY) > tol::MIN_COLOUR_PIXELS, "counterfactual in clay");
+    assert!(count_colour(&d, theme::POST_TINT) > 10_000, "post-period tint covers an area");
+    let running = charts.iter().find(|c| c.name == "f-running-total").expect("running total");
+    let d = decode(&running.to_png().expect("png"));
+    assert!(count_colour(&d, theme::SLATE) > tol::MIN_COLOUR_PIXELS, "running total in slate");
+}
+
+#[test]
+fn posterior_marks_hdi_and_rope_from_draws_and_from_summary_alone() {
+    let r = common::forecast();
+    let (rel, _) = common::forecast_draws(3000);
+    let rope = Some((r.rope.low, r.rope.high));
+    let s = r.effect.relative.expect("relative");
+    let from_draws = charts::posterior_chart(
+        "p",
+        PosteriorSource::Draws(&rel),
+        &s,
+        0.9,
+        rope,
+        "relative effect",
+        theme::ValueFormat::Percent,
+    );
+    let d = decode(&from_draws.to_png().expect("png"));
+    assert!(count_colour(&d, over_paper(theme::TEAL, 0.85)) > 2_000, "HDI bars in teal");
+    let only = charts::posterior_chart(
+        "q",
+        PosteriorSource::SummaryOnly,
+        &s,
+        0.9,
+        rope,
+        "relative effect",
+        theme::ValueFormat::Percent,
+    );
+    assert!(!only.is_note());
+    let d2 = decode(&only.to_png().expect("png"));
+    assert!(
+        count_colour(&d2, over_paper(theme::TEAL, 0.85)) > tol::MIN_COLOUR_PIXELS,
+        "HDI bar drawn from the summary"
+    );
+    assert!(luminance_variance(&d2) > tol::MIN_VARIANCE);
+    // a ready histogram works too
+    let edges = [0.0, 0.01, 0.02, 0.03, 0.04, 0.05];
+    let counts = [1.0, 5.0, 9.0, 4.0, 1.0];
+    let h = charts::posterior_chart(
+        "h",
+        PosteriorSource::Histogram(&edges, &counts),
+        &s,
+        0.9,
+        rope,
+        "relative effect",
+        theme::ValueFormat::Percent,
+    );
+    parse_svg(&h.to_svg(true).expect("svg"));
+}
+
+fn nan_summary() -> Summary {
+    Summary {
+        mean: f64::NAN,
+        median: f64::NAN,
+        sd: f64::NAN,
+        lower: f64::NAN,
+        upper: f64::NAN,
+        hdi_lower: f64::NAN,
+        hdi_upper: f64::NAN,
+        prob_positive: f64::NAN,
+        prob_above_threshold: None,
+    }
+}
+
+#[test]
+fn odd_data_draws_notes_and_never_panics() {
+    let tmp = tempfile::tempdir().expect("tempdir");
+    // empty path, NaN summaries, empty balance and weights, a one-draw posterior
+    let mut r: AnalysisResult = common::forecast();
+    r.path = Some(vec![]);
+    r.effect.average = nan_summary();
+    r.effect.relative = Some(nan_summary());
+    r.weights = Some(vec![]);
+    r.balance = Some(vec![]);
+    r.diagnostics
+        .insert("propensity_bins".into(), serde_json::json!({"edges": [0.0, 0.5], "treated_before": [1.0, 2.0]}));
+    r.diagnostics.insert("rosenbaum".into(), serde_json::json!({"grid": [{"gamma": "x"}]}));
+    r.extra.insert("power".into(), serde_json::json!([{"post_length": null}]));
+    let extras = ChartExtras { relative_draws: Some(vec![0.02]), ..Default::default() };
+    let charts = charts::charts_for(&r, &extras, "odd");
+    assert!(
+        charts.iter().all(|c| c.is_note()),
+        "{:?}",
+        charts.iter().map(|c| (&c.name, c.is_note())).collect::<Vec<_>>()
+    );
+    let files = charts::write_all(&r, &extras, tmp.path(), "odd").expect("notes are written");
+    for f in files.iter().filter(|f| f.extension().is_some_and(|e| e == "png")) {
+        let d = decode(&std::fs::read(f).expect("read"));
+        assert!(luminance_variance(&d) > 1.0, "the note text is visible in {}", f.display());
+    }
+    // a path with a single period and missing observations still draws
+    let mut one = common::forecast();
+    one.path.as_mut().expect("path").truncate(1);
+    one.path.as_mut().expect("path")[0].observed = None;
+    for c in charts::charts_for(&one, &ChartExtras::default(), "one") {
+        c.to_png().expect("png of a one-period path");
+        parse_svg(&c.to_svg(false).expect("svg"));
+    }
+    // constant draws fall back to the summary interval
+    let s = common::summary(1.0, 0.0);
+    let c = charts::posterior_chart(
+        "c",
+        PosteriorSource::Draws(&[1.0, 1.0, 1.0]),
+        &s,
+        0.9,
+        Some((-0.5, 0.5)),
+        "effect",
+        theme::ValueFormat::Number,
+    );
+    assert!(!c.is_note());
+    c.to_png().expect("png");
+    // an impossible size is an error value
+    let big = c.clone().with_size(10, 10);
+    assert!(big.to_png().is_err());
+    assert!(big.to_svg(true).is_err());
+}
+
+#[test]
+fn write_errors_name_the_file() {
+    let tmp = tempfile::tempdir().expect("tempdir");
+    let blocker = tmp.path().join("file");
+    std::fs::write(&blocker, b"x").expect("write");
+    let err = charts::write_all(&common::compare(), &ChartExtras::default(), &blocker.join("charts"), "c")
+        .expect_err("cannot write under a file");
+    assert!(err.to_string().contains("charts"), "{err}");
+}
+
+#[test]
+fn weights_beyond_the_row_limit_are_summed() {
+    let w: Vec<(String, f64)> = (0..30).map(|i| (format!("unit {i}"), 1.0 / 30.0)).collect();
+    let c = charts::weights_chart("w", &w, 10);
+    let svg = c.to_svg(true).expect("svg");
+    assert!(svg.contains("21 other donors"), "the tail is summed into one row");
+    parse_svg(&svg);
+}
