@@ -1,1 +1,59 @@
-fn main() {}
+//! Criterion benchmarks of aftercast-forecast.
+//! Benchmark of the structural model at the size of the issue: 1,095 daily pre-period values +
+//! 90 post-period values, local linear trend + weekly dummy seasonal + yearly trigonometric
+//! seasonal (K = 4) + two controls; MLE fit + 1,000 joint path draws. Data:
+//! benches/data/bench_series.csv (written by benches/bench_statsmodels.py, which times the same
+//! job with statsmodels).
+
+use aftercast_forecast::structural::{
+    Initialisation, SeasonKind, SimulationOptions, StructuralSpec, Trend, fit, simulate,
+};
+use criterion::{Criterion, criterion_group, criterion_main};
+
+fn load() -> (Vec<f64>, Vec<Vec<f64>>) {
+    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/benches/data/bench_series.csv")).unwrap();
+    let mut y = Vec::new();
+    let mut c1 = Vec::new();
+    let mut c2 = Vec::new();
+    for l in text.lines().skip(1) {
+        let f: Vec<&str> = l.split(',').collect();
+        y.push(f[1].parse().unwrap());
+        c1.push(f[2].parse().unwrap());
+        c2.push(f[3].parse().unwrap());
+    }
+    (y, vec![c1, c2])
+}
+
+fn bench(c: &mut Criterion) {
+    let (y, x) = load();
+    let n_pre = 1095;
+    let spec = StructuralSpec {
+        trend: Trend::LinearTrend,
+        seasons: vec![SeasonKind::Dummy { period: 7 }, SeasonKind::Trig { period: 365.25, harmonics: 4 }],
+        n_regressors: 2,
+        init: Initialisation::ExactDiffuse,
+    };
+    let xp: Vec<Vec<f64>> = x.iter().map(|v| v[..n_pre].to_vec()).collect();
+    let mut g = c.benchmark_group("forecast");
+    g.sample_size(10);
+    g.bench_function("structural_mle_1095", |b| b.iter(|| fit(&spec, &y[..n_pre], &xp, None).unwrap()));
+    let f = fit(&spec, &y[..n_pre], &xp, None).unwrap();
+    eprintln!("fit: converged {} ({}), loglik {:.3}, params {:?}", f.optim.converged, f.optim.reason, f.loglik, f.params);
+    let opts = SimulationOptions { draws: 1000, seed: 1, parameter_uncertainty: true, parameter_sets: 100 };
+    g.bench_function("structural_draws_1000x90", |b| b.iter(|| simulate(&f, &y[..n_pre], &x, 0, 90, &opts).unwrap()));
+    g.bench_function("structural_mle_plus_1000_draws", |b| {
+        b.iter(|| {
+            let f = fit(&spec, &y[..n_pre], &xp, None).unwrap();
+            simulate(&f, &y[..n_pre], &x, 0, 90, &opts).unwrap()
+        })
+    });
+    g.finish();
+}
+
+mod group {
+    #![allow(missing_docs)]
+    use super::*;
+    criterion_group!(benches, bench);
+}
+use group::benches;
+criterion_main!(benches);

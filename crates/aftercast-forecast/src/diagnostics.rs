@@ -37,7 +37,7 @@ pub fn ljung_box(x: &[f64], lags: usize) -> LjungBox {
 
 /// Survival function of the chi-square distribution, `P(X > x)` with `k` degrees of freedom.
 pub fn chi2_sf(x: f64, k: f64) -> f64 {
-    if !(x > 0.0) {
+    if x.is_nan() || x <= 0.0 {
         return 1.0;
     }
     gamma_q(k / 2.0, x / 2.0)

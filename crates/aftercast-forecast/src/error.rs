@@ -6,9 +6,9 @@ use aftercast_core::error::DataError;
 #[derive(Debug, thiserror::Error)]
 #[non_exhaustive]
 pub enum ForecastError {
-    /// A data-layer error (file, line, column are in the inner error).
+    /// A data-layer error (file, line, column are in the inner error; boxed to keep results small).
     #[error(transparent)]
-    Data(#[from] DataError),
+    Data(Box<DataError>),
     /// A model parameter is out of its allowed range.
     #[error("invalid forecast parameter {name} = {value}: {detail}")]
     BadParameter {
@@ -104,12 +104,18 @@ pub enum ForecastError {
     #[error("{at}: event '{name}' has date '{text}', which is not on the series' time axis kind")]
     BadEventDate {
         /// Where in the calendar file.
-        at: aftercast_core::error::Location,
+        at: Box<aftercast_core::error::Location>,
         /// The event name.
         name: String,
         /// The offending text.
         text: String,
     },
+}
+
+impl From<DataError> for ForecastError {
+    fn from(e: DataError) -> Self {
+        ForecastError::Data(Box::new(e))
+    }
 }
 
 /// Result alias of this crate.

@@ -6,6 +6,9 @@ use aftercast_core::table::RawTable;
 use aftercast_core::time::{DateFormat, TimeAxis, TimePoint, parse_time};
 use std::collections::BTreeMap;
 
+/// Indicator columns `(name, values)`.
+pub type Indicators = Vec<(String, Vec<f64>)>;
+
 /// Event dates by name.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct EventCalendar {
@@ -29,7 +32,7 @@ impl EventCalendar {
             let t = parse_time(&row.cells[dcol], &DateFormat::Iso, || table.at(row, dcol))?;
             let name = row.cells[ncol].trim().to_string();
             if name.is_empty() {
-                return Err(ForecastError::Data(aftercast_core::error::DataError::MissingValue { at: table.at(row, ncol) }));
+                return Err(aftercast_core::error::DataError::MissingValue { at: table.at(row, ncol) }.into());
             }
             if !map.contains_key(&name) {
                 order.push(name.clone());
@@ -60,7 +63,7 @@ impl EventCalendar {
     /// # Errors
     /// [`ForecastError::BadEventDate`] when the calendar's dates are of a different kind
     /// (dates vs integer periods) than the axis.
-    pub fn indicators(&self, axis: &TimeAxis) -> ForecastResult<(Vec<(String, Vec<f64>)>, Vec<String>)> {
+    pub fn indicators(&self, axis: &TimeAxis) -> ForecastResult<(Indicators, Vec<String>)> {
         let pts = axis.points();
         let mut out = Vec::new();
         let mut unused = Vec::new();
@@ -74,7 +77,7 @@ impl EventCalendar {
                 );
                 if !same_kind {
                     return Err(ForecastError::BadEventDate {
-                        at: aftercast_core::error::Location::file(&self.path),
+                        at: Box::new(aftercast_core::error::Location::file(&self.path)),
                         name: name.clone(),
                         text: d.to_string(),
                     });

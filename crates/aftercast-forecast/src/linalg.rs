@@ -27,9 +27,9 @@ pub fn sym_pinv(a: &[Vec<f64>], rel_tol: f64) -> (Vec<Vec<f64>>, usize) {
             dropped += 1;
             continue;
         }
-        for i in 0..n {
-            for j in 0..n {
-                out[i][j] += eig.eigenvectors[(i, k)] * eig.eigenvectors[(j, k)] / l;
+        for (i, row) in out.iter_mut().enumerate() {
+            for (j, v) in row.iter_mut().enumerate() {
+                *v += eig.eigenvectors[(i, k)] * eig.eigenvectors[(j, k)] / l;
             }
         }
     }

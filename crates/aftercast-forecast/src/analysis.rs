@@ -1,0 +1,776 @@
+//! The forecasting analysis: prepare a series (log scale, controls, events, seasons), fit the
+//! chosen model on the pre-period, draw joint counterfactual paths over the post-period, and
+//! turn them into effects, diagnostics and the shared JSON result.
+
+use crate::backtest::{Backtest, BacktestRow, BacktestSummary, score};
+use crate::diagnostics::{ControlBreak, FitStats, LjungBox, control_break, fit_stats, ljung_box};
+use crate::error::{ForecastError, ForecastResult};
+use crate::events::EventCalendar;
+use crate::harmonic::{self, HarmonicFit, HarmonicSpec};
+use crate::holt_winters::{self, HwFit, HwSpec, Seasonality};
+use crate::optim::OptimReport;
+use crate::params::{ModelKind, Season, ValidParams};
+use crate::structural::{self, Initialisation, SeasonKind, SimulationOptions, StructuralFit, StructuralSpec};
+use aftercast_core::result::{AnalysisResult, PathPoint, TOOL_VERSION};
+use aftercast_core::series::{Series, Split};
+use aftercast_core::table::InputInfo;
+use aftercast_core::time::TimePoint;
+use aftercast_resample::rng::child_seed;
+use aftercast_resample::summary::{SeriesEffects, series_effects};
+use serde::{Deserialize, Serialize};
+
+/// A dummy seasonal longer than this is replaced by a trigonometric one (state dimension).
+pub const MAX_DUMMY_PERIOD: usize = 60;
+
+/// The inputs of a model on one fitting span, on the model's scale.
+#[derive(Debug, Clone)]
+pub struct Prepared {
+    /// Outcome on the model scale (log if asked), up to the end of the post-period.
+    pub y: Vec<f64>,
+    /// Regressors (controls, then event indicators) over the same span.
+    pub regs: Vec<Vec<f64>>,
+    /// Their names.
+    pub reg_names: Vec<String>,
+    /// Seasonal components in use.
+    pub seasons: Vec<Season>,
+    /// Whether the model scale is the log.
+    pub log: bool,
+    /// Times of the span.
+    pub times: Vec<TimePoint>,
+}
+
+/// A model fitted on a span.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(tag = "model", rename_all = "kebab-case")]
+pub enum FittedModel {
+    /// Structural model.
+    Structural(StructuralFit),
+    /// Holt-Winters.
+    HoltWinters(HwFit),
+    /// Harmonic regression.
+    Harmonic(HarmonicFit),
+}
+
+impl FittedModel {
+    /// The model's name.
+    pub fn name(&self) -> &'static str {
+        match self {
+            FittedModel::Structural(_) => "structural",
+            FittedModel::HoltWinters(_) => "holt-winters",
+            FittedModel::Harmonic(_) => "harmonic",
+        }
+    }
+
+    /// Warnings raised while fitting.
+    pub fn warnings(&self) -> &[String] {
+        match self {
+            FittedModel::Structural(f) => &f.warnings,
+            FittedModel::HoltWinters(f) => &f.warnings,
+            FittedModel::Harmonic(f) => &f.warnings,
+        }
+    }
+}
+
+fn structural_spec(p: &Prepared, params: &ValidParams) -> StructuralSpec {
+    StructuralSpec {
+        trend: params.get().trend,
+        seasons: p.seasons.iter().map(Season::kind).collect(),
+        n_regressors: p.regs.len(),
+        init: Initialisation::ExactDiffuse,
+    }
+}
+
+fn hw_spec(p: &Prepared, params: &ValidParams) -> (HwSpec, Option<String>) {
+    let mut note = None;
+    let ints: Vec<usize> = p.seasons.iter().filter_map(|s| match s.kind() {
+        SeasonKind::Dummy { period } => Some(period),
+        _ => None,
+    }).collect();
+    let period = match (ints.iter().min(), p.seasons.first()) {
+        (Some(&m), _) => Some(m),
+        (None, Some(s)) => {
+            let m = s.period.round().max(2.0) as usize;
+            note = Some(format!("holt-winters needs a whole seasonal period; {} rounded to {m}", s.period));
+            Some(m)
+        }
+        (None, None) => None,
+    };
+    if p.seasons.len() > 1 {
+        note = Some(format!(
+            "holt-winters models one seasonal period ({}); the other seasons are left out",
+            period.unwrap_or(0)
+        ));
+    }
+    let seasonality = if period.is_none() { Seasonality::None } else { params.get().hw_seasonality };
+    (HwSpec { trend: true, damped: params.get().hw_damped, seasonality, period: period.unwrap_or(1) }, note)
+}
+
+fn harmonic_spec(p: &Prepared, params: &ValidParams) -> HarmonicSpec {
+    HarmonicSpec {
+        seasons: p.seasons.iter().map(|s| (s.period, s.fourier_harmonics())).collect(),
+        ridge: params.get().ridge,
+    }
+}
+
+fn truncate(regs: &[Vec<f64>], n: usize) -> Vec<Vec<f64>> {
+    regs.iter().map(|r| r[..n].to_vec()).collect()
+}
+
+/// Fit a model on periods `0..n_fit` of `p`.
+///
+/// # Errors
+/// The fitting errors of each model family.
+pub fn fit_model(kind: ModelKind, p: &Prepared, params: &ValidParams, n_fit: usize) -> ForecastResult<FittedModel> {
+    let at = p.times.get(n_fit).or(p.times.last()).map(ToString::to_string).unwrap_or_default();
+    let y = &p.y[..n_fit];
+    match kind {
+        ModelKind::Structural | ModelKind::Auto => {
+            let spec = structural_spec(p, params);
+            let needed = spec.n_states() + 3;
+            let found = y.iter().filter(|v| v.is_finite()).count();
+            if found < needed {
+                return Err(ForecastError::TooShort { model: "structural", needed, found, at });
+            }
+            Ok(FittedModel::Structural(structural::fit(&spec, y, &truncate(&p.regs, n_fit), None)?))
+        }
+        ModelKind::HoltWinters => {
+            let (spec, note) = hw_spec(p, params);
+            let mut f = holt_winters::fit(&spec, y, &at)?;
+            if let Some(n) = note {
+                f.warnings.push(n);
+            }
+            if !p.regs.is_empty() {
+                f.warnings.push("holt-winters does not use control series or event indicators".into());
+            }
+            Ok(FittedModel::HoltWinters(f))
+        }
+        ModelKind::Harmonic => {
+            Ok(FittedModel::Harmonic(harmonic::fit(&harmonic_spec(p, params), y, &p.regs, &p.reg_names, &at)?))
+        }
+    }
+}
+
+/// Draw joint paths (model scale) of periods `n_fit + skip .. n_fit + skip + horizon`.
+///
+/// (Eight plain arguments: each is one number of the simulation and none belongs with another.)
+///
+/// # Errors
+/// Simulation errors of the model family.
+#[allow(clippy::too_many_arguments)]
+pub fn draw_paths(
+    model: &FittedModel,
+    p: &Prepared,
+    params: &ValidParams,
+    n_fit: usize,
+    skip: usize,
+    horizon: usize,
+    draws: usize,
+    seed: u64,
+) -> ForecastResult<Vec<Vec<f64>>> {
+    match model {
+        FittedModel::Structural(f) => {
+            let opts = SimulationOptions {
+                draws,
+                seed,
+                parameter_uncertainty: params.get().parameter_uncertainty,
+                parameter_sets: params.get().parameter_sets.min(draws),
+            };
+            structural::simulate(f, &p.y[..n_fit], &truncate(&p.regs, n_fit + skip + horizon), skip, horizon, &opts)
+        }
+        FittedModel::HoltWinters(f) => Ok(f.simulate(skip, horizon, draws, seed)),
+        FittedModel::Harmonic(f) => f.simulate(&truncate(&p.regs, n_fit + skip + horizon), skip, horizon, draws, seed),
+    }
+}
+
+/// One-step (structural, Holt-Winters) or in-sample (harmonic) predictions over `0..n_fit` on
+/// the model scale, their predictive sd, and standardised residuals for the Ljung-Box test.
+fn in_sample(model: &FittedModel, p: &Prepared, n_fit: usize) -> (Vec<f64>, Vec<f64>, Vec<f64>) {
+    let y = &p.y[..n_fit];
+    match model {
+        FittedModel::Structural(f) => {
+            let out = structural::loglik_at(&f.spec, &f.params, y, &truncate(&p.regs, n_fit));
+            let tr = out.trace.unwrap_or_default();
+            let mut pred = vec![f64::NAN; n_fit];
+            let mut sd = vec![f64::NAN; n_fit];
+            let mut std_res = Vec::new();
+            let mut seen_nondiffuse = false;
+            for t in 0..n_fit {
+                if tr.diffuse[t] {
+                    continue;
+                }
+                // the first periods after the diffuse phase can still have huge variances if
+                // some states were resolved late; they are kept (finite F)
+                seen_nondiffuse = true;
+                pred[t] = tr.forecast[t];
+                sd[t] = tr.forecast_var[t].sqrt();
+                if y[t].is_finite() {
+                    std_res.push((y[t] - pred[t]) / sd[t]);
+                }
+            }
+            let _ = seen_nondiffuse;
+            (pred, sd, std_res)
+        }
+        FittedModel::HoltWinters(f) => {
+            let s = f.sigma2.sqrt();
+            let m = if f.spec.seasonality == Seasonality::None { 1 } else { f.spec.period };
+            let pred: Vec<f64> = f.fitted.iter().enumerate().map(|(t, v)| if t < m { f64::NAN } else { *v }).collect();
+            let res: Vec<f64> = (m..n_fit).filter(|&t| y[t].is_finite()).map(|t| (y[t] - f.fitted[t]) / s).collect();
+            (pred, vec![s; n_fit], res)
+        }
+        FittedModel::Harmonic(f) => {
+            let res: Vec<f64> = f.residuals.iter().map(|r| r / f.sigma).collect();
+            (f.fitted.clone(), vec![f.sigma; n_fit], res)
+        }
+    }
+}
+
+/// Standard normal quantile (Acklam's rational approximation, relative error < 1.2e-9).
+#[allow(clippy::excessive_precision)]
+pub fn normal_quantile(p: f64) -> f64 {
+    const A: [f64; 6] = [-3.969683028665376e1, 2.209460984245205e2, -2.759285104469687e2, 1.383577518672690e2, -3.066479806614716e1, 2.506628277459239];
+    const B: [f64; 5] = [-5.447609879822406e1, 1.615858368580409e2, -1.556989798598866e2, 6.680131188771972e1, -1.328068155288572e1];
+    const C: [f64; 6] = [-7.784894002430293e-3, -3.223964580411365e-1, -2.400758277161838, -2.549732539343734, 4.374664141464968, 2.938163982698783];
+    const D: [f64; 4] = [7.784695709041462e-3, 3.224671290700398e-1, 2.445134137142996, 3.754408661907416];
+    let pl = 0.02425;
+    if p <= 0.0 {
+        return f64::NEG_INFINITY;
+    }
+    if p >= 1.0 {
+        return f64::INFINITY;
+    }
+    if p < pl {
+        let q = (-2.0 * p.ln()).sqrt();
+        (((((C[0] * q + C[1]) * q + C[2]) * q + C[3]) * q + C[4]) * q + C[5]) / ((((D[0] * q + D[1]) * q + D[2]) * q + D[3]) * q + 1.0)
+    } else if p <= 1.0 - pl {
+        let q = p - 0.5;
+        let r = q * q;
+        (((((A[0] * r + A[1]) * r + A[2]) * r + A[3]) * r + A[4]) * r + A[5]) * q
+            / (((((B[0] * r + B[1]) * r + B[2]) * r + B[3]) * r + B[4]) * r + 1.0)
+    } else {
+        -normal_quantile(1.0 - p)
+    }
+}
+
+/// Structural-model diagnostics.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct StructuralDiagnostics {
+    /// `(name, value)` of the estimated variances (and damping).
+    pub parameters: Vec<(String, f64)>,
+    /// Asymptotic standard errors of the log-variances (0 where not propagated).
+    pub log_variance_se: Vec<f64>,
+    /// Maximised log-likelihood (Durbin & Koopman 2012 eq. 7.3).
+    pub loglik: f64,
+    /// Components whose variance was estimated at (effectively) zero.
+    pub zero_variance: Vec<String>,
+    /// Regression coefficients at the end of the pre-period: `(name, mean, sd)`.
+    pub coefficients: Vec<(String, f64, f64)>,
+    /// Optimiser report.
+    pub optimiser: OptimReport,
+}
+
+/// Everything the analysis reports about the pre-period fit (serialisable into the result's
+/// `diagnostics` map).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Diagnostics {
+    /// The model that produced the counterfactual.
+    pub model: String,
+    /// Whether the model ran on the log of the outcome.
+    pub log_scale: bool,
+    /// Seasonal components in use (`7`, `365.25:4`).
+    pub seasons: Vec<String>,
+    /// Regressors in use (controls, `event:NAME`).
+    pub regressors: Vec<String>,
+    /// Pre-period length.
+    pub pre_periods: usize,
+    /// Washout length.
+    pub washout_periods: usize,
+    /// Post-period length.
+    pub post_periods: usize,
+    /// Fit of the one-step (in-sample for harmonic) predictions on the outcome's scale.
+    pub fit: FitStats,
+    /// Ljung-Box test of the standardised one-step residuals.
+    pub ljung_box: LjungBox,
+    /// Mean coverage of the model's own intervals in the pre-period backtest.
+    pub backtest_coverage: Option<f64>,
+    /// Break checks of the control series at the intervention.
+    pub control_breaks: Vec<ControlBreak>,
+    /// Structural model details.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub structural: Option<StructuralDiagnostics>,
+    /// Holt-Winters details: smoothing parameters, residual variance, optimiser report.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub holt_winters: Option<serde_json::Value>,
+    /// Harmonic-regression details: penalty, effective parameters, block length.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub harmonic: Option<serde_json::Value>,
+    /// Whether the optimiser reported convergence (harmonic regression has none: true).
+    pub converged: bool,
+}
+
+/// Counterfactual draws on the outcome's scale.
+#[derive(Debug, Clone)]
+pub struct Counterfactual {
+    /// Post-period times.
+    pub times: Vec<TimePoint>,
+    /// Observed post-period values (NaN where missing).
+    pub observed: Vec<f64>,
+    /// `draws[d][t]`.
+    pub draws: Vec<Vec<f64>>,
+}
+
+/// A model fitted on the pre-period of a series, ready to draw counterfactuals.
+#[derive(Debug, Clone)]
+pub struct Fitted {
+    /// The fitted model.
+    pub model: FittedModel,
+    /// Prepared inputs.
+    pub prepared: Prepared,
+    /// The split.
+    pub split: Split,
+    /// The parameters.
+    pub params: ValidParams,
+    /// Warnings so far (preparation and fitting).
+    pub warnings: Vec<String>,
+    /// Break checks of the controls.
+    pub control_breaks: Vec<ControlBreak>,
+}
+
+/// Prepare a series: log scale, regressors (controls then events), seasons.
+///
+/// # Errors
+/// [`ForecastError::NonPositiveForLog`], [`ForecastError::NonFiniteControl`],
+/// [`ForecastError::BadEventDate`].
+pub fn prepare(
+    series: &Series,
+    split: &Split,
+    params: &ValidParams,
+    events: Option<&EventCalendar>,
+) -> ForecastResult<(Prepared, Vec<String>, Vec<ControlBreak>)> {
+    let pp = params.get();
+    let n = split.post_end;
+    let pts = series.axis.points();
+    let mut warnings = Vec::new();
+    let mut y: Vec<f64> = series.outcome[..n].to_vec();
+    if pp.log {
+        for (t, v) in y.iter_mut().enumerate() {
+            if v.is_finite() {
+                if *v <= 0.0 {
+                    return Err(ForecastError::NonPositiveForLog { at: pts[t].to_string(), value: *v });
+                }
+                *v = v.ln();
+            }
+        }
+    }
+    let mut regs = Vec::new();
+    let mut names = Vec::new();
+    let mut breaks = Vec::new();
+    for (name, x) in &series.controls {
+        if let Some((t, v)) = x[..n].iter().enumerate().find(|(_, v)| !v.is_finite()) {
+            return Err(ForecastError::NonFiniteControl { name: name.clone(), value: *v, at: pts[t].to_string() });
+        }
+        let pre = &x[..split.pre_end];
+        if pre.iter().all(|v| *v == pre[0]) {
+            warnings.push(format!("control '{name}' is constant in the pre-period and is left out"));
+            continue;
+        }
+        let b = control_break(name, x, split.pre_end, split.post_start, split.post_end);
+        if b.flagged {
+            warnings.push(format!(
+                "control '{name}' shifts at the intervention (mean departure {:.4} from its pre-period trend, z = {:.1}); the change may have touched it",
+                b.shift, b.z
+            ));
+        }
+        breaks.push(b);
+        regs.push(x[..n].to_vec());
+        names.push(name.clone());
+    }
+    if let Some(cal) = events {
+        let (inds, unused) = cal.indicators(&series.axis)?;
+        if !unused.is_empty() {
+            warnings.push(format!("events with no date on the series' axis are ignored: {}", unused.join(", ")));
+        }
+        for (name, v) in inds {
+            if v[..split.pre_end].iter().all(|x| *x == 0.0) {
+                warnings.push(format!(
+                    "{name} does not occur in the pre-period; its effect cannot be learned and it is left out"
+                ));
+                continue;
+            }
+            if v[..split.pre_end].iter().all(|x| *x == 1.0) {
+                warnings.push(format!("{name} covers the whole pre-period and is left out"));
+                continue;
+            }
+            regs.push(v[..n].to_vec());
+            names.push(name);
+        }
+    }
+    let user_seasons = pp.seasons.is_some();
+    let mut seasons = Vec::new();
+    for s in pp.seasons.clone().unwrap_or_else(|| Season::defaults(series.frequency())) {
+        if !user_seasons && s.period * 2.0 > split.pre_end as f64 {
+            warnings.push(format!(
+                "the pre-period ({} periods) is shorter than two cycles of the default season {}; that season is left out",
+                split.pre_end,
+                s.label()
+            ));
+            continue;
+        }
+        let s = match s.kind() {
+            SeasonKind::Dummy { period } if period > MAX_DUMMY_PERIOD => {
+                let k = (period / 2).min(10);
+                warnings.push(format!(
+                    "season {period} is long for a dummy seasonal; a trigonometric seasonal {period}:{k} is used instead"
+                ));
+                Season { period: s.period, harmonics: Some(k) }
+            }
+            _ => s,
+        };
+        seasons.push(s);
+    }
+    let prepared = Prepared { y, regs, reg_names: names, seasons, log: pp.log, times: pts[..n].to_vec() };
+    Ok((prepared, warnings, breaks))
+}
+
+impl ValidParams {
+    /// Fit the chosen model on the pre-period of `series` (for `auto`, the model with the lowest
+    /// backtest CRPS; use [`analyse`] to get the backtest table as well).
+    ///
+    /// # Errors
+    /// Preparation and fitting errors.
+    pub fn fit(&self, series: &Series, split: Split, events: Option<&EventCalendar>) -> ForecastResult<Fitted> {
+        let (prepared, mut warnings, control_breaks) = prepare(series, &split, self, events)?;
+        let kind = if self.get().model == ModelKind::Auto {
+            let bt = run_backtest(&prepared, &split, self, &[ModelKind::Structural, ModelKind::HoltWinters, ModelKind::Harmonic]);
+            choose(&bt, &mut warnings)
+        } else {
+            self.get().model
+        };
+        let model = fit_model(kind, &prepared, self, split.pre_end)?;
+        warnings.extend(model.warnings().iter().cloned());
+        Ok(Fitted { model, prepared, split, params: self.clone(), warnings, control_breaks })
+    }
+}
+
+fn choose(bt: &Backtest, warnings: &mut Vec<String>) -> ModelKind {
+    match bt.chosen.as_deref() {
+        Some("holt-winters") => ModelKind::HoltWinters,
+        Some("harmonic") => ModelKind::Harmonic,
+        Some(_) => ModelKind::Structural,
+        None => {
+            warnings.push("auto: no model could be backtested in the pre-period; the structural model is used".into());
+            ModelKind::Structural
+        }
+    }
+}
+
+/// Rolling-origin backtest: origins step back from the end of the pre-period by the post
+/// horizon; each fold fits on the data before the origin, skips the washout and scores the
+/// next `horizon` periods (on the outcome's scale). At most `backtest_folds` folds, each with
+/// at least half of the pre-period to fit on.
+pub fn run_backtest(p: &Prepared, split: &Split, params: &ValidParams, models: &[ModelKind]) -> Backtest {
+    let pp = params.get();
+    let skip = split.post_start - split.pre_end;
+    let h = split.post_len();
+    let mut origins = Vec::new();
+    for k in 0..pp.backtest_folds {
+        let Some(o) = split.pre_end.checked_sub(skip + h + k * h) else { break };
+        if o < (split.pre_end / 2).max(10) {
+            break;
+        }
+        origins.push(o);
+    }
+    let mut rows = Vec::new();
+    let mut summary = Vec::new();
+    for &kind in models {
+        let mut failed = None;
+        let mut mine = Vec::new();
+        for (fi, &o) in origins.iter().enumerate() {
+            let res = fit_model(kind, p, params, o).and_then(|m| {
+                let seed = child_seed(pp.seed, &format!("backtest-{}-{fi}", kind.name()));
+                draw_paths(&m, p, params, o, skip, h, pp.backtest_draws, seed)
+            });
+            match res {
+                Ok(paths) => {
+                    let paths: Vec<Vec<f64>> =
+                        if p.log { paths.into_iter().map(|v| v.into_iter().map(f64::exp).collect()).collect() } else { paths };
+                    let obs: Vec<f64> = (o + skip..o + skip + h).map(|t| if p.log { p.y[t].exp() } else { p.y[t] }).collect();
+                    let (c, mape, cov) = score(&paths, &obs, pp.level);
+                    mine.push(BacktestRow {
+                        model: kind.name().into(),
+                        fit_end: p.times[o - 1],
+                        first: p.times[o + skip],
+                        horizon: h,
+                        crps: c,
+                        mape,
+                        coverage: cov,
+                    });
+                }
+                Err(e) => {
+                    failed = Some(e.to_string());
+                    break;
+                }
+            }
+        }
+        let mean = |f: &dyn Fn(&BacktestRow) -> f64| {
+            let v: Vec<f64> = mine.iter().map(f).filter(|x| x.is_finite()).collect();
+            if v.is_empty() { f64::NAN } else { v.iter().sum::<f64>() / v.len() as f64 }
+        };
+        let (c, m, cv) = (mean(&|r| r.crps), mean(&|r| r.mape), mean(&|r| r.coverage));
+        summary.push(BacktestSummary {
+            model: kind.name().into(),
+            folds: if failed.is_some() { 0 } else { mine.len() },
+            crps: c,
+            mape: m,
+            coverage: cv,
+            failed: failed.clone(),
+        });
+        if failed.is_none() {
+            rows.extend(mine);
+        }
+    }
+    let chosen = summary
+        .iter()
+        .filter(|s| s.failed.is_none() && s.folds > 0 && s.crps.is_finite())
+        .min_by(|a, b| a.crps.total_cmp(&b.crps))
+        .map(|s| s.model.clone());
+    Backtest { level: pp.level, washout: skip, rows, summary, chosen }
+}
+
+impl Fitted {
+    /// Joint counterfactual path draws over the post-period, on the outcome's scale
+    /// (`exp` of the model-scale paths when the model runs on the log).
+    ///
+    /// # Errors
+    /// Simulation errors of the model family.
+    pub fn counterfactual(&self) -> ForecastResult<Counterfactual> {
+        let pp = self.params.get();
+        let s = &self.split;
+        let skip = s.post_start - s.pre_end;
+        let paths = draw_paths(&self.model, &self.prepared, &self.params, s.pre_end, skip, s.post_len(), pp.draws, pp.seed)?;
+        let draws = if self.prepared.log {
+            paths.into_iter().map(|v| v.into_iter().map(f64::exp).collect()).collect()
+        } else {
+            paths
+        };
+        let obs: Vec<f64> = (s.post_start..s.post_end)
+            .map(|t| if self.prepared.log { self.prepared.y[t].exp() } else { self.prepared.y[t] })
+            .collect();
+        Ok(Counterfactual { times: self.prepared.times[s.post_start..s.post_end].to_vec(), observed: obs, draws })
+    }
+
+    /// Pre-period rows of the path (observed, one-step prediction and its normal interval on
+    /// the outcome's scale) and the diagnostics.
+    pub fn diagnostics(&self, backtest_coverage: Option<f64>) -> (Diagnostics, Vec<PathPoint>) {
+        let p = &self.prepared;
+        let s = &self.split;
+        let n = s.pre_end;
+        let (pred, sd, std_res) = in_sample(&self.model, p, n);
+        let z = normal_quantile(0.5 + self.params.get().level / 2.0);
+        let back = |v: f64| if p.log { v.exp() } else { v };
+        let obs: Vec<f64> = p.y[..n].iter().map(|v| back(*v)).collect();
+        let pred_o: Vec<f64> = pred.iter().map(|v| back(*v)).collect();
+        let pre_path: Vec<PathPoint> = (0..n)
+            .filter(|&t| pred[t].is_finite())
+            .map(|t| PathPoint {
+                time: p.times[t],
+                observed: obs[t].is_finite().then_some(obs[t]),
+                counterfactual: pred_o[t],
+                lower: back(pred[t] - z * sd[t]),
+                upper: back(pred[t] + z * sd[t]),
+                post: false,
+                effect: None,
+                cumulative: None,
+            })
+            .collect();
+        let lags = (std_res.len() / 5).clamp(1, 10);
+        let lb = ljung_box(&std_res, lags);
+        let mut d = Diagnostics {
+            model: self.model.name().into(),
+            log_scale: p.log,
+            seasons: p.seasons.iter().map(Season::label).collect(),
+            regressors: p.reg_names.clone(),
+            pre_periods: n,
+            washout_periods: s.post_start - s.pre_end,
+            post_periods: s.post_len(),
+            fit: fit_stats(&obs, &pred_o),
+            ljung_box: lb,
+            backtest_coverage,
+            control_breaks: self.control_breaks.clone(),
+            structural: None,
+            holt_winters: None,
+            harmonic: None,
+            converged: true,
+        };
+        match &self.model {
+            FittedModel::Structural(f) => {
+                let names = f.spec.param_names();
+                let natural: Vec<f64> = {
+                    let pr = &f.params;
+                    let mut v = vec![pr.irregular, pr.level];
+                    v.extend(pr.slope);
+                    v.extend(pr.seasons.iter().copied());
+                    v.extend(pr.damping);
+                    v
+                };
+                let out = structural::loglik_at(&f.spec, &f.params, &p.y[..n], &truncate(&p.regs, n));
+                let m = f.spec.n_states();
+                let r0 = f.spec.regression_start();
+                let coefficients = p
+                    .reg_names
+                    .iter()
+                    .enumerate()
+                    .map(|(k, name)| {
+                        let i = r0 + k;
+                        (name.clone(), out.a_next[i], out.p_next[i * m + i].max(0.0).sqrt())
+                    })
+                    .collect();
+                d.converged = f.optim.converged;
+                d.structural = Some(StructuralDiagnostics {
+                    parameters: names.into_iter().zip(natural).collect(),
+                    log_variance_se: (0..f.theta.len()).map(|i| f.theta_cov[i][i].max(0.0).sqrt()).collect(),
+                    loglik: f.loglik,
+                    zero_variance: f.at_lower_edge.clone(),
+                    coefficients,
+                    optimiser: f.optim.clone(),
+                });
+            }
+            FittedModel::HoltWinters(f) => {
+                d.converged = f.optim.converged;
+                d.holt_winters = Some(serde_json::json!({
+                    "seasonality": f.spec.seasonality, "period": f.spec.period, "damped": f.spec.damped,
+                    "alpha": f.params.alpha, "beta": f.params.beta, "gamma": f.params.gamma, "phi": f.params.phi,
+                    "sigma2": f.sigma2, "optimiser": f.optim,
+                }));
+            }
+            FittedModel::Harmonic(f) => {
+                d.harmonic = Some(serde_json::json!({
+                    "ridge_lambda": f.lambda, "effective_parameters": f.effective_params, "residual_sd": f.sigma,
+                    "mean_block_length": f.mean_block_length, "columns": f.columns,
+                }));
+            }
+        }
+        (d, pre_path)
+    }
+}
+
+/// Everything a forecast analysis produces.
+#[derive(Debug, Clone)]
+pub struct ForecastRun {
+    /// The fitted model and its inputs.
+    pub fitted: Fitted,
+    /// Counterfactual draws.
+    pub counterfactual: Counterfactual,
+    /// Effects, verdict and post-period path.
+    pub effects: SeriesEffects,
+    /// Pre-period rows of the path.
+    pub pre_path: Vec<PathPoint>,
+    /// Diagnostics.
+    pub diagnostics: Diagnostics,
+    /// The backtest table (always for `auto`; for a fixed model when `backtest_folds > 0`).
+    pub backtest: Option<Backtest>,
+    /// Plain-language warnings.
+    pub warnings: Vec<String>,
+}
+
+/// Run a whole analysis: prepare, (backtest), fit, draw counterfactual paths, summarise.
+/// This is what the `forecast` verb calls.
+///
+/// # Errors
+/// Every [`ForecastError`] of preparation, fitting and simulation.
+pub fn analyse(
+    series: &Series,
+    split: Split,
+    params: &ValidParams,
+    events: Option<&EventCalendar>,
+) -> ForecastResult<ForecastRun> {
+    let pp = params.get();
+    let (prepared, mut warnings, control_breaks) = prepare(series, &split, params, events)?;
+    let models: Vec<ModelKind> = if pp.model == ModelKind::Auto {
+        vec![ModelKind::Structural, ModelKind::HoltWinters, ModelKind::Harmonic]
+    } else {
+        vec![pp.model]
+    };
+    let backtest = (pp.backtest_folds > 0 || pp.model == ModelKind::Auto).then(|| run_backtest(&prepared, &split, params, &models));
+    let kind = match (&backtest, pp.model) {
+        (Some(bt), ModelKind::Auto) => choose(bt, &mut warnings),
+        (_, k) => k,
+    };
+    if let Some(bt) = &backtest
+        && bt.rows.is_empty()
+        && pp.backtest_folds > 0
+    {
+        warnings.push(format!(
+            "the pre-period is too short for a backtest at the post-period's horizon ({} periods)",
+            split.post_len()
+        ));
+    }
+    let model = fit_model(kind, &prepared, params, split.pre_end)?;
+    warnings.extend(model.warnings().iter().cloned());
+    let fitted = Fitted { model, prepared, split, params: params.clone(), warnings: warnings.clone(), control_breaks };
+    let cf = fitted.counterfactual()?;
+    let effects = series_effects(&cf.times, &cf.observed, &cf.draws, pp.level, &pp.rope, pp.threshold);
+    if effects.nonfinite_relative > 0 {
+        warnings.push(format!(
+            "{} draws had a zero counterfactual sum; their relative effect is not finite",
+            effects.nonfinite_relative
+        ));
+    }
+    let coverage = backtest.as_ref().and_then(|bt| {
+        bt.summary.iter().find(|s| s.model == kind.name() && s.folds > 0).map(|s| s.coverage)
+    });
+    let (diagnostics, pre_path) = fitted.diagnostics(coverage);
+    if diagnostics.ljung_box.p_value < 0.01 {
+        warnings.push(format!(
+            "one-step residuals are autocorrelated in the pre-period (Ljung-Box Q = {:.1} on {} lags, p = {:.3}); intervals may be too narrow",
+            diagnostics.ljung_box.statistic, diagnostics.ljung_box.lags, diagnostics.ljung_box.p_value
+        ));
+    }
+    Ok(ForecastRun { fitted, counterfactual: cf, effects, pre_path, diagnostics, backtest, warnings })
+}
+
+impl ForecastRun {
+    /// The shared JSON result. `path` holds the pre-period rows followed by the post-period rows;
+    /// `extra` carries `backtest` (when run) and `chosen_model`.
+    pub fn to_result(&self, inputs: Vec<InputInfo>) -> AnalysisResult {
+        let pp = self.fitted.params.get();
+        let mut diagnostics = match serde_json::to_value(&self.diagnostics) {
+            Ok(serde_json::Value::Object(m)) => m,
+            _ => serde_json::Map::new(),
+        };
+        diagnostics.insert("draws".into(), serde_json::json!(pp.draws));
+        let mut extra = serde_json::Map::new();
+        if let Some(bt) = &self.backtest {
+            extra.insert("backtest".into(), serde_json::to_value(bt).unwrap_or(serde_json::Value::Null));
+        }
+        extra.insert("chosen_model".into(), serde_json::json!(self.fitted.model.name()));
+        let mut path = self.pre_path.clone();
+        path.extend(self.effects.path.iter().cloned());
+        AnalysisResult {
+            tool_version: TOOL_VERSION.to_string(),
+            verb: "forecast".into(),
+            method: self.fitted.model.name().into(),
+            level: pp.level,
+            seed: pp.seed,
+            inputs,
+            estimand: Some("effect on the series over the post-period (observed minus counterfactual)".into()),
+            effect: self.effects.effect.clone(),
+            verdict: self.effects.verdict,
+            rope: pp.rope,
+            diagnostics,
+            warnings: self.warnings.clone(),
+            path: Some(path),
+            weights: None,
+            placebo: None,
+            balance: None,
+            sample: None,
+            truth: None,
+            estimates: None,
+            assumptions: vec![
+                "The change did not affect the control series or the event calendar.".into(),
+                "Without the change, the pre-period's trend, seasonality and relation to the controls would have continued into the post-period.".into(),
+                "Nothing else that moves the outcome happened at the intervention date.".into(),
+            ],
+            extra,
+        }
+    }
+}
