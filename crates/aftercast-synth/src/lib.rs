@@ -26,3 +26,4 @@ pub mod simplex;
 pub use error::{SynthError, SynthResult};
 pub use fit::{Fitted, Placebo, PlaceboRun, PredictorBalance, UnitFit};
 pub use params::{Aggregation, Method, SynthParams, ValidParams};
+pub use result::{RunOptions, run};

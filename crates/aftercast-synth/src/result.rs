@@ -170,3 +170,66 @@ pub fn to_analysis_result(fit: &Fitted, opts: &ResultOptions, extra_diagnostics:
         extra: Map::new(),
     }
 }
+
+/// Options of [`run`] beyond the estimator's parameters.
+#[derive(Debug, Clone)]
+pub struct RunOptions {
+    /// Region of practical equivalence.
+    pub rope: Rope,
+    /// Optional threshold for `prob_above_threshold`.
+    pub threshold: Option<f64>,
+    /// Input files.
+    pub inputs: Vec<InputInfo>,
+    /// Also run the robustness checks (conformal inference, placebo in time, leave-one-out)
+    /// and put them into `diagnostics`. A check that cannot run becomes a warning.
+    pub robustness: bool,
+}
+
+/// Fit and build the result document in one call (what the `synthetic` verb calls).
+/// Level and seed come from the parameters.
+///
+/// # Errors
+/// As [`ValidParams::fit`](crate::ValidParams::fit); all of them are caused by the input.
+pub fn run(
+    panel: &aftercast_core::panel::Panel,
+    treated: &[String],
+    start: aftercast_core::time::TimePoint,
+    params: &crate::ValidParams,
+    opts: &RunOptions,
+) -> crate::SynthResult<(Fitted, AnalysisResult)> {
+    let fit = params.fit(panel, treated, start)?;
+    let mut extra = Map::new();
+    let mut warnings = Vec::new();
+    if opts.robustness && fit.method != Method::Sdid {
+        if treated.len() == 1 && matches!(fit.method, Method::Weights | Method::Intercept) {
+            match crate::inference::conformal(params, panel, &treated[0], start) {
+                Ok(c) => {
+                    extra.insert("conformal".into(), serde_json::to_value(c).unwrap_or(Value::Null));
+                }
+                Err(e) => warnings.push(format!("conformal inference skipped: {e}")),
+            }
+        }
+        match crate::inference::placebo_in_time(params, panel, treated, start, None) {
+            Ok(p) => {
+                extra.insert("placebo_in_time".into(), serde_json::to_value(p).unwrap_or(Value::Null));
+            }
+            Err(e) => warnings.push(format!("placebo in time skipped: {e}")),
+        }
+        match crate::inference::leave_one_out(params, panel, treated, start, &fit) {
+            Ok(l) => {
+                extra.insert("leave_one_out".into(), serde_json::to_value(l).unwrap_or(Value::Null));
+            }
+            Err(e) => warnings.push(format!("leave-one-out skipped: {e}")),
+        }
+    }
+    let ro = ResultOptions {
+        level: params.get().level,
+        rope: opts.rope,
+        threshold: opts.threshold,
+        seed: params.get().seed,
+        inputs: opts.inputs.clone(),
+    };
+    let mut doc = to_analysis_result(&fit, &ro, extra);
+    doc.warnings.extend(warnings);
+    Ok((fit, doc))
+}
