@@ -27,10 +27,13 @@ pub(crate) enum Verb {
     Demo(verbs::demo::Args),
     /// Run every analysis a study file lists; write result.json, charts and report.html.
     Run(verbs::run::Args),
+    /// Turn an event log into per-unit metric windows and per-group series (native or Spark).
+    Windows(verbs::windows::Args),
 }
 
 fn threads_of(verb: &Verb) -> Option<u64> {
     match verb {
+        Verb::Windows(a) => a.threads,
         Verb::Inspect(_) => None,
         Verb::Run(a) => a.threads,
         Verb::Demo(a) => a.threads,
@@ -40,12 +43,14 @@ fn threads_of(verb: &Verb) -> Option<u64> {
 /// Run an analysis verb and hand back its result (None for verbs that are not analyses).
 pub(crate) fn analyze(verb: &Verb) -> Option<anyhow::Result<verbs::Outcome>> {
     match verb {
+        Verb::Windows(_) => None,
         Verb::Inspect(_) | Verb::Run(_) | Verb::Demo(_) => None,
     }
 }
 
 fn dispatch(verb: &Verb) -> anyhow::Result<()> {
     match verb {
+        Verb::Windows(a) => verbs::windows::run_verb(a),
         Verb::Inspect(a) => verbs::inspect::run(a),
         Verb::Run(a) => verbs::run::run(a),
         Verb::Demo(a) => verbs::demo::run(a),

@@ -368,6 +368,16 @@ pub struct WindowsOutput {
 /// # Ok::<(), Box<dyn std::error::Error>>(())
 /// ```
 pub fn run(events: &EventSource, exposures: &Exposures, spec: &WindowSpec, threads: usize) -> WindowsResult<WindowsOutput> {
+    let widened;
+    let exposures = match spec.universe() {
+        crate::params::UnitUniverse::Exposures => exposures,
+        crate::params::UnitUniverse::ExposuresAndEvents => {
+            let mut all = exposures.clone();
+            all.add_unlisted(crate::source::event_unit_ids(events)?)?;
+            widened = all;
+            &widened
+        }
+    };
     let plan = Plan::new(spec, exposures);
     let threads = if threads == 0 { std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1) } else { threads };
     let acc = crate::source::read_events(events, &plan, threads)?;

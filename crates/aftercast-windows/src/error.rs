@@ -152,11 +152,14 @@ pub enum WindowsError {
         /// The unit.
         unit: String,
     },
-    /// Spark could not be run or failed.
+    /// Spark could not be run or failed. `input` is true when the script's own input checks
+    /// stopped it (a bad event or exposure row).
     #[error("spark: {message}")]
     Spark {
         /// What happened (the tail of Spark's output).
         message: String,
+        /// Whether the input caused it.
+        input: bool,
     },
     /// Writing an output table failed.
     #[error("{}: cannot write output: {message}", path.display())]
@@ -171,7 +174,11 @@ pub enum WindowsError {
 impl WindowsError {
     /// Whether the error is caused by the input (files, parameters) rather than by the machine.
     pub fn is_bad_input(&self) -> bool {
-        !matches!(self, WindowsError::Io { .. } | WindowsError::Spark { .. } | WindowsError::Output { .. })
+        match self {
+            WindowsError::Spark { input, .. } => *input,
+            WindowsError::Io { .. } | WindowsError::Output { .. } => false,
+            _ => true,
+        }
     }
 
     pub(crate) fn bad_param(what: &str, text: impl Into<String>, detail: impl Into<String>) -> Self {

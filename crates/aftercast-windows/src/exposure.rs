@@ -94,6 +94,8 @@ pub struct Exposures {
     time: Vec<i64>,
     index: UnitMap,
     info: Option<InputInfo>,
+    has_group: bool,
+    never_time: Option<i64>,
 }
 
 /// One unit given in code: id, exposure time (`None` = never exposed), group.
@@ -190,6 +192,7 @@ impl Exposures {
         }
         let mut out = Self::from_rows(rows, options.launch, options.reference)?;
         out.info = Some(table.info());
+        out.has_group = gcol.is_some();
         Ok(out)
     }
 
@@ -235,7 +238,49 @@ impl Exposures {
             group_of.push(g);
             units.push(r.unit);
         }
-        Ok(Self { units, groups, group_of, exposed, time: times, index, info: None })
+        Ok(Self { units, groups, group_of, exposed, time: times, index, info: None, has_group: true, never_time: reference.or(launch) })
+    }
+
+    /// The group of units found only in the events: `unlisted`, or `all` when the exposures
+    /// have no group column.
+    pub fn unlisted_group(&self) -> &'static str {
+        if self.has_group { "unlisted" } else { "all" }
+    }
+
+    /// Add units found only in the events as never-exposed units anchored at the reference time
+    /// (or the launch time), sorted by id; ids already present are ignored.
+    ///
+    /// # Errors
+    /// [`WindowsError::BadParameter`] when there are new units but no reference time.
+    pub fn add_unlisted(&mut self, mut ids: Vec<String>) -> WindowsResult<usize> {
+        let reference = self.never_time;
+        ids.retain(|u| !self.index.contains_key(u.as_str()));
+        ids.sort();
+        ids.dedup();
+        if ids.is_empty() {
+            return Ok(0);
+        }
+        let t = reference.ok_or_else(|| {
+            WindowsError::bad_param("reference", &ids[0], "units found only in the events need a reference or launch time")
+        })?;
+        let name = self.unlisted_group();
+        let g = match self.groups.iter().position(|x| x == name) {
+            Some(g) => g as u32,
+            None => {
+                self.groups.push(name.to_string());
+                (self.groups.len() - 1) as u32
+            }
+        };
+        let n = ids.len();
+        for id in ids {
+            let i = self.units.len() as u32;
+            self.index.insert(id.clone().into_boxed_str(), i);
+            self.units.push(id);
+            self.group_of.push(g);
+            self.exposed.push(false);
+            self.time.push(t);
+        }
+        Ok(n)
     }
 
     /// Number of units.

@@ -34,5 +34,5 @@ pub mod time;
 pub use engine::{ColumnValues, EventCounts, GroupSeries, InclusionCounts, OutColumn, SeriesRow, UnitTable, WindowCounts, WindowsOutput, run};
 pub use error::{Cell, WindowsError, WindowsResult};
 pub use exposure::{ExposureOptions, Exposures, UnitRow};
-pub use params::{Aggregation, Anchoring, BadRowPolicy, EventColumns, SeriesFrequency, WindowDef, WindowKind, WindowParams, WindowSpec};
+pub use params::{Aggregation, Anchoring, BadRowPolicy, EventColumns, SeriesFrequency, UnitUniverse, WindowDef, WindowKind, WindowParams, WindowSpec};
 pub use source::{EventFormat, EventSource};

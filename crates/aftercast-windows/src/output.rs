@@ -46,6 +46,9 @@ fn temp_name(path: &Path) -> PathBuf {
 
 fn write_atomic(path: &Path, f: impl FnOnce(&mut std::fs::File) -> WindowsResult<()>) -> WindowsResult<()> {
     let tmp = temp_name(path);
+    if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
+        std::fs::create_dir_all(dir).map_err(|e| out_err(path, e))?;
+    }
     let mut file = std::fs::File::create(&tmp).map_err(|e| out_err(path, e))?;
     let r = f(&mut file);
     if let Err(e) = r {

@@ -12,6 +12,7 @@
 //! | `bad_rows` | fail | fail at the first bad event row, or skip and count | `fail`, `skip` |
 //! | `allow_negative` | none | metrics whose values may be negative | metric names |
 //! | `series` | none | per-group daily or weekly series over `[start, end)` | needs `start` |
+//! | `units` | exposures | the unit universe: the exposures file, or also units first seen in the events | `exposures`, `exposures-and-events` |
 //! | `event columns` | `unit`, `time`, `metric`, `value` | column names of the event log | |
 
 use crate::error::{WindowsError, WindowsResult};
@@ -232,6 +233,30 @@ impl std::str::FromStr for Anchoring {
     }
 }
 
+/// Which units the unit table has.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum UnitUniverse {
+    /// Exactly the units of the exposures file; events of other units are bad rows
+    /// ("unknown unit") (default).
+    #[default]
+    Exposures,
+    /// The units of the exposures file, then every other unit id found in the events (sorted
+    /// by id), as never-exposed units of the group `unlisted` (or `all` without a group column).
+    ExposuresAndEvents,
+}
+
+impl std::str::FromStr for UnitUniverse {
+    type Err = WindowsError;
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        match s {
+            "exposures" => Ok(Self::Exposures),
+            "exposures-and-events" => Ok(Self::ExposuresAndEvents),
+            other => Err(WindowsError::bad_param("units", other, "exposures or exposures-and-events")),
+        }
+    }
+}
+
 /// Bucket size of the per-group series.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
@@ -286,6 +311,7 @@ pub struct WindowParams {
     allow_negative: BTreeSet<String>,
     series: Option<SeriesFrequency>,
     columns: EventColumns,
+    universe: UnitUniverse,
 }
 
 impl WindowParams {
@@ -367,6 +393,12 @@ impl WindowParams {
     /// Column names of the event log.
     pub fn event_columns(mut self, columns: EventColumns) -> Self {
         self.columns = columns;
+        self
+    }
+
+    /// Which units the unit table has.
+    pub fn units(mut self, universe: UnitUniverse) -> Self {
+        self.universe = universe;
         self
     }
 
@@ -468,6 +500,7 @@ impl WindowParams {
             series: self.series,
             columns: self.columns,
             tracked,
+            universe: self.universe,
         };
         let mut cols = BTreeSet::new();
         for c in ["unit", "group", "exposed", "anchor"] {
@@ -567,6 +600,7 @@ pub struct WindowSpec {
     series: Option<SeriesFrequency>,
     columns: EventColumns,
     tracked: Vec<TrackedMetric>,
+    universe: UnitUniverse,
 }
 
 impl WindowSpec {
@@ -618,6 +652,10 @@ impl WindowSpec {
     /// Event-log column names.
     pub fn columns(&self) -> &EventColumns {
         &self.columns
+    }
+    /// Which units the unit table has.
+    pub fn universe(&self) -> UnitUniverse {
+        self.universe
     }
     /// The metrics the engine accumulates.
     pub fn tracked(&self) -> &[TrackedMetric] {

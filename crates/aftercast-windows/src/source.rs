@@ -644,3 +644,81 @@ fn parquet_batch(
     }
     Ok(())
 }
+
+/// Every distinct non-empty unit id of the event log (one sequential pass over the unit column).
+///
+/// # Errors
+/// Read errors of the event log, [`WindowsError::MissingColumn`].
+pub fn event_unit_ids(src: &EventSource) -> WindowsResult<Vec<String>> {
+    let path = &src.path;
+    let mut seen: std::collections::HashSet<String> = std::collections::HashSet::new();
+    match src.format {
+        EventFormat::Parquet => {
+            let file = std::fs::File::open(path).map_err(|e| io_err(path, "cannot open the event log", e))?;
+            let builder = ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| pq_err(path, e))?;
+            let header: Vec<String> = builder.schema().fields().iter().map(|f| f.name().clone()).collect();
+            let ui = find_col(path, &header, &src.columns.unit)?;
+            let mask = ProjectionMask::roots(builder.parquet_schema(), [ui]);
+            let reader = builder.with_projection(mask).build().map_err(|e| pq_err(path, e))?;
+            for batch in reader {
+                let batch = batch.map_err(|e| pq_err(path, e))?;
+                let a = batch.column(0).as_ref();
+                for i in 0..batch.num_rows() {
+                    if a.is_null(i) {
+                        continue;
+                    }
+                    let id = match TextCol::new(a) {
+                        Some(t) => t.get(i).trim().to_string(),
+                        None => match a.data_type() {
+                            DataType::Int64 => a.as_primitive::<types::Int64Type>().value(i).to_string(),
+                            DataType::Int32 => a.as_primitive::<types::Int32Type>().value(i).to_string(),
+                            _ => continue,
+                        },
+                    };
+                    if !id.is_empty() && !seen.contains(&id) {
+                        seen.insert(id);
+                    }
+                }
+            }
+        }
+        EventFormat::Csv | EventFormat::CsvGzip => {
+            let file = std::fs::File::open(path).map_err(|e| io_err(path, "cannot open the event log", e))?;
+            let reader: Box<dyn Read> = match src.format {
+                EventFormat::CsvGzip => Box::new(flate2::read::MultiGzDecoder::new(std::io::BufReader::new(file))),
+                _ => Box::new(std::io::BufReader::with_capacity(1 << 20, file)),
+            };
+            let mut r = csv::ReaderBuilder::new().flexible(true).trim(csv::Trim::All).from_reader(reader);
+            let header: Vec<String> = r
+                .headers()
+                .map_err(|e| WindowsError::Malformed { path: path.clone(), line: Some(1), format: "CSV", message: e.to_string() })?
+                .iter()
+                .map(|h| h.trim_start_matches('\u{feff}').to_string())
+                .collect();
+            let ui = find_col(path, &header, &src.columns.unit)?;
+            let mut rec = csv::ByteRecord::new();
+            loop {
+                match r.read_byte_record(&mut rec) {
+                    Ok(true) => {}
+                    Ok(false) => break,
+                    Err(e) => {
+                        return Err(WindowsError::Malformed {
+                            path: path.clone(),
+                            line: e.position().map(|p| p.line()),
+                            format: "CSV",
+                            message: e.to_string(),
+                        });
+                    }
+                }
+                if let Some(Ok(id)) = rec.get(ui).map(std::str::from_utf8)
+                    && !id.is_empty()
+                    && !seen.contains(id)
+                {
+                    seen.insert(id.to_string());
+                }
+            }
+        }
+    }
+    let mut ids: Vec<String> = seen.into_iter().collect();
+    ids.sort();
+    Ok(ids)
+}

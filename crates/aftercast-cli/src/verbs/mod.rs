@@ -3,6 +3,7 @@
 pub mod demo;
 pub mod inspect;
 pub mod run;
+pub mod windows;
 
 use crate::common::{Common, write_outputs};
 use aftercast_core::result::AnalysisResult;
