@@ -30,15 +30,29 @@ fn group(seed: u64, zero_share: f64) -> Vec<f64> {
     (0..UNITS).map(|_| if rng.random::<f64>() < zero_share { 0.0 } else { lognormal(&mut rng) }).collect()
 }
 
+/// Process CPU time (user + system) in seconds, from /proc/self/stat (Linux; 0 elsewhere).
+fn cpu_seconds() -> f64 {
+    let stat = std::fs::read_to_string("/proc/self/stat").unwrap_or_default();
+    // fields after the ")" that ends the command name: utime is the 12th, stime the 13th
+    let rest = stat.rsplit_once(')').map(|(_, r)| r).unwrap_or("");
+    let f: Vec<&str> = rest.split_whitespace().collect();
+    let field = |i: usize| f.get(i).and_then(|x| x.parse::<f64>().ok()).unwrap_or(0.0);
+    (field(11) + field(12)) / 100.0
+}
+
+/// Times `reps` runs; prints wall and CPU seconds of each and returns the best wall time.
+/// On a shared machine the CPU time (summed over threads) is the steadier number.
 fn time<T>(label: &str, reps: usize, mut f: impl FnMut() -> T) -> f64 {
     let mut best = f64::INFINITY;
     let mut all = Vec::new();
     for _ in 0..reps {
+        let c0 = cpu_seconds();
         let t0 = Instant::now();
         black_box(f());
         let s = t0.elapsed().as_secs_f64();
+        let c = cpu_seconds() - c0;
         best = best.min(s);
-        all.push(format!("{s:.3}"));
+        all.push(format!("{s:.3} s wall / {c:.2} s CPU"));
     }
     println!("{label}: best {best:.3} s (runs: {})", all.join(", "));
     best
