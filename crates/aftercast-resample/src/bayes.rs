@@ -47,9 +47,9 @@ use std::collections::HashMap;
 
 /// Relative cost of one Gamma(k, 1) draw (k >= 2, Marsaglia-Tsang) to one Exp(1) draw
 /// (ziggurat), used by [`TieAggregation::Auto`]. Measured with the resampling benchmark on the
-/// (shared, loaded) development machine: between 1.7 and 3.4 over four runs for k = 2 and
-/// k = 50 (docs/performance.md, "Resampling"). Only speed depends on it, never the draws'
-/// distribution.
+/// shared development machine: 2.65 (k = 2) and 2.51 (k = 50) in the quietest run, 1.7-3.4
+/// under load (docs/performance.md, "Resampling"). Only speed depends on it, never the
+/// draws' distribution.
 pub const GAMMA_COST: f64 = 2.5;
 
 /// When to compress tied values into one Gamma(k, 1) weight per distinct value.

@@ -59,6 +59,7 @@ fn rubin_1981_example_variance_2_2() {
     for ties in [TieAggregation::Auto, TieAggregation::Never, TieAggregation::Always] {
         let d = BayesBootstrap::new(tol::RUBIN_DRAWS, 1981).with_ties(ties).mean(&x).expect("draws");
         let v = var(&d);
+        println!("Rubin example, {ties:?}: variance {v:.5} (2.2), mean {:.5} (5)", mean(&d));
         assert!(((v - 2.2) / 2.2).abs() < tol::RUBIN_VARIANCE_REL, "{ties:?}: variance {v}");
         assert!((mean(&d) - 5.0).abs() < tol::RUBIN_MEAN_SDS * 2.2f64.sqrt(), "{ties:?}: mean {}", mean(&d));
     }
@@ -74,6 +75,7 @@ fn rubin_1981_general_formula_on_random_data() {
         let want = rubin_variance(x);
         let d = BayesBootstrap::new(tol::RUBIN_DRAWS, 7).mean(x).expect("draws");
         let v = var(&d);
+        println!("Rubin formula, {name}: variance {v:.6} vs {want:.6}");
         assert!(((v - want) / want).abs() < tol::RUBIN_VARIANCE_REL, "{name}: variance {v}, Rubin {want}");
         assert!((mean(&d) - mean(x)).abs() < tol::RUBIN_MEAN_SDS * want.sqrt(), "{name}: mean");
     }
@@ -127,6 +129,7 @@ fn tie_aggregation_same_distribution_as_per_unit_weights() {
     let b = BayesBootstrap::new(tol::TIE_DRAWS, 2).with_ties(TieAggregation::Never).mean(&x).expect("draws");
     let d = ks_statistic(&a, &b);
     let crit = ks_critical(a.len(), b.len(), tol::KS_ALPHA);
+    println!("tie aggregation: KS {d:.5} (critical {crit:.5} at alpha {})", tol::KS_ALPHA);
     assert!(d < crit, "KS statistic {d} >= critical {crit}");
     let want_v = rubin_variance(&x);
     for (name, draws) in [("gamma", &a), ("per-unit", &b)] {
