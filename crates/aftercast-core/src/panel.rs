@@ -68,14 +68,13 @@ impl Panel {
             if ui == next {
                 units.push(u.clone());
             }
-            if let Some(first) = times.first() {
-                if std::mem::discriminant(first) != std::mem::discriminant(&t) {
+            if let Some(first) = times.first()
+                && std::mem::discriminant(first) != std::mem::discriminant(&t) {
                     return Err(DataError::Invalid {
                         at: table.at(row, tcol),
                         message: format!("'{}' mixes dates and integer periods", row.cells[tcol]),
                     });
                 }
-            }
             times.insert(t);
             if let Some((first_line, _, _)) = cells.get(&(ui, t)) {
                 return Err(DataError::Duplicate {
@@ -142,11 +141,10 @@ impl Panel {
             if let Some(first) = seen.insert(t, row.line) {
                 return Err(DataError::Duplicate { at: table.at(row, tcol), what: "time", key: t.to_string(), first_line: first });
             }
-            if let Some(prev) = points.last() {
-                if t < *prev {
+            if let Some(prev) = points.last()
+                && t < *prev {
                     return Err(DataError::NonMonotone { at: table.at(row, tcol), text: t.to_string(), previous: prev.to_string() });
                 }
-            }
             points.push(t);
             for (k, &c) in ucols.iter().enumerate() {
                 let v = table.parse_number(row, c)?.ok_or_else(|| DataError::MissingValue { at: table.at(row, c) })?;

@@ -109,7 +109,7 @@ impl std::str::FromStr for Rope {
             let (v, p) = parse_one(t)?;
             (-v.abs(), v.abs(), p)
         };
-        if low > high || (low == high) {
+        if low >= high {
             return Err(format!("'{s}': the ROPE needs low < high"));
         }
         Ok(Rope { low, high, units: if pct { RopeUnits::Percent } else { RopeUnits::Outcome } })
