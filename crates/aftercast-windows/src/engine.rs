@@ -367,7 +367,12 @@ pub struct WindowsOutput {
 /// assert_eq!(out.units.columns[0].values, ColumnValues::Float(vec![Some(2.0)]));
 /// # Ok::<(), Box<dyn std::error::Error>>(())
 /// ```
-pub fn run(events: &EventSource, exposures: &Exposures, spec: &WindowSpec, threads: usize) -> WindowsResult<WindowsOutput> {
+pub fn run(
+    events: &EventSource,
+    exposures: &Exposures,
+    spec: &WindowSpec,
+    threads: usize,
+) -> WindowsResult<WindowsOutput> {
     let widened;
     let exposures = match spec.universe() {
         crate::params::UnitUniverse::Exposures => exposures,
@@ -379,7 +384,8 @@ pub fn run(events: &EventSource, exposures: &Exposures, spec: &WindowSpec, threa
         }
     };
     let plan = Plan::new(spec, exposures);
-    let threads = if threads == 0 { std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1) } else { threads };
+    let threads =
+        if threads == 0 { std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1) } else { threads };
     let acc = crate::source::read_events(events, &plan, threads)?;
     finish(&plan, acc)
 }
@@ -440,9 +446,9 @@ fn finish(plan: &Plan<'_>, acc: Acc) -> WindowsResult<WindowsOutput> {
         };
         let values = match vc.kind {
             ValueKind::Agg { metric: m, agg } => match agg {
-                Aggregation::Sum => {
-                    ColumnValues::Float((0..n).map(|u| complete[u * nw + w].then(|| from_fixed(acc.sums[slot(u, m)]))).collect())
-                }
+                Aggregation::Sum => ColumnValues::Float(
+                    (0..n).map(|u| complete[u * nw + w].then(|| from_fixed(acc.sums[slot(u, m)]))).collect(),
+                ),
                 Aggregation::Count => ColumnValues::Int(
                     (0..n).map(|u| complete[u * nw + w].then(|| acc.counts[slot(u, m)] as i64)).collect(),
                 ),
@@ -464,9 +470,9 @@ fn finish(plan: &Plan<'_>, acc: Acc) -> WindowsResult<WindowsOutput> {
                         .collect(),
                 ),
             },
-            ValueKind::RatioNum { metric: m } | ValueKind::RatioDen { metric: m } => {
-                ColumnValues::Float((0..n).map(|u| complete[u * nw + w].then(|| from_fixed(acc.sums[slot(u, m)]))).collect())
-            }
+            ValueKind::RatioNum { metric: m } | ValueKind::RatioDen { metric: m } => ColumnValues::Float(
+                (0..n).map(|u| complete[u * nw + w].then(|| from_fixed(acc.sums[slot(u, m)]))).collect(),
+            ),
         };
         columns.push(OutColumn { name: vc.name, window: w, values });
     }
@@ -540,13 +546,20 @@ impl RowError {
 
     /// Turn into the user-facing error; `text` gives the cell text of a column, `metric` the
     /// row's metric.
-    pub(crate) fn into_error(self, cell: impl Fn(usize) -> Cell, text: impl Fn(usize) -> String, metric: &str) -> WindowsError {
+    pub(crate) fn into_error(
+        self,
+        cell: impl Fn(usize) -> Cell,
+        text: impl Fn(usize) -> String,
+        metric: &str,
+    ) -> WindowsError {
         match self {
             RowError::Missing(c) => WindowsError::MissingCell { at: cell(c) },
             RowError::UnknownUnit(c) => WindowsError::UnknownUnit { at: cell(c), unit: text(c) },
             RowError::BadTimestamp(c) => WindowsError::BadTimestamp { at: cell(c), text: text(c) },
             RowError::BadValue(c) => WindowsError::BadValue { at: cell(c), text: text(c) },
-            RowError::Negative(c) => WindowsError::NegativeValue { at: cell(c), text: text(c), metric: metric.to_string() },
+            RowError::Negative(c) => {
+                WindowsError::NegativeValue { at: cell(c), text: text(c), metric: metric.to_string() }
+            }
         }
     }
 }

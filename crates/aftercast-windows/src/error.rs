@@ -76,7 +76,9 @@ pub enum WindowsError {
         expected: String,
     },
     /// A timestamp cell is not ISO 8601.
-    #[error("{at}: '{text}' is not an ISO 8601 timestamp (e.g. 2024-03-01T10:00:00Z, 2024-03-01T12:00:00+02:00, 2024-03-01)")]
+    #[error(
+        "{at}: '{text}' is not an ISO 8601 timestamp (e.g. 2024-03-01T10:00:00Z, 2024-03-01T12:00:00+02:00, 2024-03-01)"
+    )]
     BadTimestamp {
         /// Where.
         at: Cell,
@@ -92,7 +94,9 @@ pub enum WindowsError {
         text: String,
     },
     /// A value is negative for a metric that does not allow it.
-    #[error("{at}: value {text} of metric '{metric}' is negative; allow negative values for this metric or skip bad rows")]
+    #[error(
+        "{at}: value {text} of metric '{metric}' is negative; allow negative values for this metric or skip bad rows"
+    )]
     NegativeValue {
         /// Where.
         at: Cell,
@@ -127,7 +131,9 @@ pub enum WindowsError {
     },
     /// A unit is never exposed (empty exposure cell) and neither a reference time nor a launch
     /// time was given.
-    #[error("{at}: unit '{unit}' has no exposure time; give a reference time (or a launch time) for never-exposed units")]
+    #[error(
+        "{at}: unit '{unit}' has no exposure time; give a reference time (or a launch time) for never-exposed units"
+    )]
     NoReference {
         /// Where.
         at: Cell,

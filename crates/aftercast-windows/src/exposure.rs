@@ -159,7 +159,11 @@ impl Exposures {
                 return Err(WindowsError::MissingCell { at: cell(row.line, ucol) });
             }
             if let Some(first) = first_line.insert(unit, row.line) {
-                return Err(WindowsError::DuplicateUnit { at: cell(row.line, ucol), unit: unit.to_string(), first_line: first });
+                return Err(WindowsError::DuplicateUnit {
+                    at: cell(row.line, ucol),
+                    unit: unit.to_string(),
+                    first_line: first,
+                });
             }
             let exposure = match tcol {
                 None => options.launch,
@@ -225,7 +229,11 @@ impl Exposures {
                 None => {
                     exposed.push(false);
                     reference.or(launch).ok_or_else(|| {
-                        WindowsError::bad_param("reference", &r.unit, "a never-exposed unit needs a reference or launch time")
+                        WindowsError::bad_param(
+                            "reference",
+                            &r.unit,
+                            "a never-exposed unit needs a reference or launch time",
+                        )
                     })?
                 }
             };
@@ -238,7 +246,17 @@ impl Exposures {
             group_of.push(g);
             units.push(r.unit);
         }
-        Ok(Self { units, groups, group_of, exposed, time: times, index, info: None, has_group: true, never_time: reference.or(launch) })
+        Ok(Self {
+            units,
+            groups,
+            group_of,
+            exposed,
+            time: times,
+            index,
+            info: None,
+            has_group: true,
+            never_time: reference.or(launch),
+        })
     }
 
     /// The group of units found only in the events: `unlisted`, or `all` when the exposures
@@ -261,7 +279,11 @@ impl Exposures {
             return Ok(0);
         }
         let t = reference.ok_or_else(|| {
-            WindowsError::bad_param("reference", &ids[0], "units found only in the events need a reference or launch time")
+            WindowsError::bad_param(
+                "reference",
+                &ids[0],
+                "units found only in the events need a reference or launch time",
+            )
         })?;
         let name = self.unlisted_group();
         let g = match self.groups.iter().position(|x| x == name) {

@@ -29,10 +29,17 @@ pub mod params;
 pub mod source;
 pub mod spark;
 pub mod sql;
+pub mod synth;
 pub mod time;
 
-pub use engine::{ColumnValues, EventCounts, GroupSeries, InclusionCounts, OutColumn, SeriesRow, UnitTable, WindowCounts, WindowsOutput, run};
+pub use engine::{
+    ColumnValues, EventCounts, GroupSeries, InclusionCounts, OutColumn, SeriesRow, UnitTable, WindowCounts,
+    WindowsOutput, run,
+};
 pub use error::{Cell, WindowsError, WindowsResult};
 pub use exposure::{ExposureOptions, Exposures, UnitRow};
-pub use params::{Aggregation, Anchoring, BadRowPolicy, EventColumns, SeriesFrequency, UnitUniverse, WindowDef, WindowKind, WindowParams, WindowSpec};
+pub use params::{
+    Aggregation, Anchoring, BadRowPolicy, EventColumns, SeriesFrequency, UnitUniverse, WindowDef, WindowKind,
+    WindowParams, WindowSpec,
+};
 pub use source::{EventFormat, EventSource};

@@ -156,8 +156,12 @@ fn write_batch(path: &Path, batch: &RecordBatch, format: OutputFormat) -> Window
             let props = parquet::file::properties::WriterProperties::builder()
                 .set_compression(parquet::basic::Compression::SNAPPY)
                 .build();
-            let mut w = parquet::arrow::ArrowWriter::try_new(f.try_clone().map_err(|e| out_err(path, e))?, batch.schema(), Some(props))
-                .map_err(|e| out_err(path, e))?;
+            let mut w = parquet::arrow::ArrowWriter::try_new(
+                f.try_clone().map_err(|e| out_err(path, e))?,
+                batch.schema(),
+                Some(props),
+            )
+            .map_err(|e| out_err(path, e))?;
             w.write(batch).map_err(|e| out_err(path, e))?;
             w.close().map_err(|e| out_err(path, e))?;
             Ok(())
@@ -248,8 +252,11 @@ pub fn spec_json(spec: &WindowSpec) -> Value {
         .iter()
         .map(|m| json!({"name": m.name, "aggregations": m.aggregations.iter().map(|a| a.suffix()).collect::<Vec<_>>()}))
         .collect();
-    let ratios: Vec<Value> =
-        spec.ratios().iter().map(|r| json!({"name": r.name, "numerator": r.numerator, "denominator": r.denominator})).collect();
+    let ratios: Vec<Value> = spec
+        .ratios()
+        .iter()
+        .map(|r| json!({"name": r.name, "numerator": r.numerator, "denominator": r.denominator}))
+        .collect();
     json!({
         "end": format_timestamp(spec.end(), off),
         "start": spec.start().map(|s| format_timestamp(s, off)),

@@ -97,7 +97,9 @@ impl WindowKind {
             "pre" => WindowKind::Pre { length: dur(rest)? },
             "calendar" | "cal" => WindowKind::Calendar { length: dur(rest)? },
             "deferred" | "def" => {
-                let (d, w) = rest.split_once('+').ok_or_else(|| bad("a deferred window is deferred:DELAY+LENGTH, e.g. deferred:7d+14d"))?;
+                let (d, w) = rest
+                    .split_once('+')
+                    .ok_or_else(|| bad("a deferred window is deferred:DELAY+LENGTH, e.g. deferred:7d+14d"))?;
                 WindowKind::Deferred { delay: dur(d)?, length: dur(w)? }
             }
             _ => return Err(bad("kinds are forward, deferred, pre, calendar")),
@@ -407,11 +409,16 @@ impl WindowParams {
     /// # Errors
     /// [`WindowsError::BadParameter`] naming the parameter and why.
     pub fn check(self) -> WindowsResult<WindowSpec> {
-        let end = self.end.ok_or_else(|| WindowsError::bad_param("end", "", "the analysis end (data end) is required"))?;
+        let end =
+            self.end.ok_or_else(|| WindowsError::bad_param("end", "", "the analysis end (data end) is required"))?;
         if let Some(s) = self.start
             && s >= end
         {
-            return Err(WindowsError::bad_param("start", time::format_timestamp(s, self.offset), "the data start must be before the analysis end"));
+            return Err(WindowsError::bad_param(
+                "start",
+                time::format_timestamp(s, self.offset),
+                "the data start must be before the analysis end",
+            ));
         }
         if self.windows.is_empty() {
             return Err(WindowsError::bad_param("window", "", "give at least one window"));
@@ -420,7 +427,11 @@ impl WindowParams {
         for (name, kind) in self.windows {
             let name = name.unwrap_or_else(|| kind.default_name());
             if !is_identifier(&name) {
-                return Err(WindowsError::bad_param("window name", &name, "use letters, digits and _ and start with a letter or _"));
+                return Err(WindowsError::bad_param(
+                    "window name",
+                    &name,
+                    "use letters, digits and _ and start with a letter or _",
+                ));
             }
             if kind.length() <= 0 {
                 return Err(WindowsError::bad_param("window", &name, "the length must be positive"));
@@ -431,7 +442,11 @@ impl WindowParams {
                 return Err(WindowsError::bad_param("window", &name, "the delay must not be negative"));
             }
             if windows.iter().any(|w: &WindowDef| w.name == name) {
-                return Err(WindowsError::bad_param("window name", &name, "two windows have this name; name them apart"));
+                return Err(WindowsError::bad_param(
+                    "window name",
+                    &name,
+                    "two windows have this name; name them apart",
+                ));
             }
             windows.push(WindowDef { name, kind });
         }
@@ -453,7 +468,11 @@ impl WindowParams {
         let mut names = BTreeSet::new();
         for m in &self.metrics {
             if !names.insert(m.name.clone()) {
-                return Err(WindowsError::bad_param("metric", &m.name, "the metric is listed twice; list its aggregations once"));
+                return Err(WindowsError::bad_param(
+                    "metric",
+                    &m.name,
+                    "the metric is listed twice; list its aggregations once",
+                ));
             }
         }
         for r in &self.ratios {
@@ -483,7 +502,11 @@ impl WindowParams {
         for r in &self.ratios {
             for n in [&r.numerator, &r.denominator] {
                 if !tracked.iter().any(|t| &t.name == n) {
-                    tracked.push(TrackedMetric { name: n.clone(), needs_days: false, allow_negative: self.allow_negative.contains(n) });
+                    tracked.push(TrackedMetric {
+                        name: n.clone(),
+                        needs_days: false,
+                        allow_negative: self.allow_negative.contains(n),
+                    });
                 }
             }
         }
@@ -508,7 +531,11 @@ impl WindowParams {
         }
         for c in spec.value_columns() {
             if !cols.insert(c.name.clone()) {
-                return Err(WindowsError::bad_param("output column", &c.name, "two windows/metrics produce this column name; rename a window"));
+                return Err(WindowsError::bad_param(
+                    "output column",
+                    &c.name,
+                    "two windows/metrics produce this column name; rename a window",
+                ));
             }
         }
         if let Some(freq) = spec.series {
@@ -527,7 +554,8 @@ impl WindowParams {
 
 fn is_identifier(s: &str) -> bool {
     let mut c = s.chars();
-    matches!(c.next(), Some(ch) if ch.is_ascii_alphabetic() || ch == '_') && c.all(|ch| ch.is_ascii_alphanumeric() || ch == '_')
+    matches!(c.next(), Some(ch) if ch.is_ascii_alphabetic() || ch == '_')
+        && c.all(|ch| ch.is_ascii_alphanumeric() || ch == '_')
 }
 
 fn is_metric_name(s: &str) -> bool {
@@ -793,7 +821,10 @@ mod tests {
     #[test]
     fn window_text_forms() {
         assert_eq!(WindowKind::parse("14d").unwrap(), WindowKind::Forward { length: 14 * DAY });
-        assert_eq!(WindowKind::parse("deferred:7d+14d").unwrap(), WindowKind::Deferred { delay: 7 * DAY, length: 14 * DAY });
+        assert_eq!(
+            WindowKind::parse("deferred:7d+14d").unwrap(),
+            WindowKind::Deferred { delay: 7 * DAY, length: 14 * DAY }
+        );
         assert_eq!(WindowKind::parse("pre:28d").unwrap().default_name(), "pre_28d");
         assert_eq!(WindowKind::parse("def:7d+14d").unwrap().default_name(), "def_7d_14d");
         assert!(WindowKind::parse("backward:3d").is_err());
@@ -807,8 +838,18 @@ mod tests {
         assert!(base().window(WindowKind::Forward { length: 0 }).check().is_err());
         let e = base().window(WindowKind::Forward { length: DAY }).window(WindowKind::Forward { length: DAY }).check();
         assert!(matches!(e, Err(WindowsError::BadParameter { .. })));
-        assert!(WindowSpec::params().window(WindowKind::Forward { length: DAY }).metric("x", &[Aggregation::Sum]).check().is_err(), "no end");
-        assert!(base().window(WindowKind::Forward { length: DAY }).series(SeriesFrequency::Daily).check().is_err(), "series without start");
+        assert!(
+            WindowSpec::params()
+                .window(WindowKind::Forward { length: DAY })
+                .metric("x", &[Aggregation::Sum])
+                .check()
+                .is_err(),
+            "no end"
+        );
+        assert!(
+            base().window(WindowKind::Forward { length: DAY }).series(SeriesFrequency::Daily).check().is_err(),
+            "series without start"
+        );
         assert!(base().named_window("7x", WindowKind::Forward { length: DAY }).check().is_err());
         let s = base().window(WindowKind::Forward { length: DAY }).ratio("aov", "revenue", "orders").check().unwrap();
         let names: Vec<_> = s.value_columns().into_iter().map(|c| c.name).collect();

@@ -7,8 +7,8 @@
 
 use crate::engine::{Acc, Plan, RowError, check_value, metric_index};
 use crate::error::{Cell, WindowsError, WindowsResult};
-use crate::params::EventColumns;
 use crate::params::BadRowPolicy;
+use crate::params::EventColumns;
 use crate::time;
 use arrow_array::cast::AsArray;
 use arrow_array::{Array, RecordBatch, types};
@@ -134,7 +134,9 @@ fn read_csv(src: &EventSource, plan: &Plan<'_>, threads: usize) -> WindowsResult
     let path = &src.path;
     let file = std::fs::File::open(path).map_err(|e| io_err(path, "cannot open the event log", e))?;
     let mut reader: Box<dyn Read + Send> = match src.format {
-        EventFormat::CsvGzip => Box::new(flate2::read::MultiGzDecoder::new(std::io::BufReader::with_capacity(1 << 20, file))),
+        EventFormat::CsvGzip => {
+            Box::new(flate2::read::MultiGzDecoder::new(std::io::BufReader::with_capacity(1 << 20, file)))
+        }
         _ => Box::new(file),
     };
     let format: &'static str = if src.format == EventFormat::CsvGzip { "gzip CSV" } else { "CSV" };
@@ -156,7 +158,12 @@ fn read_csv(src: &EventSource, plan: &Plan<'_>, threads: usize) -> WindowsResult
         let n = reader.read(&mut tmp).map_err(read_err)?;
         if n == 0 {
             if before == 0 {
-                return Err(WindowsError::Malformed { path: path.clone(), line: Some(1), format, message: "the file is empty".into() });
+                return Err(WindowsError::Malformed {
+                    path: path.clone(),
+                    line: Some(1),
+                    format,
+                    message: "the file is empty".into(),
+                });
             }
             break buf.len();
         }
@@ -172,7 +179,14 @@ fn read_csv(src: &EventSource, plan: &Plan<'_>, threads: usize) -> WindowsResult
         match r.read_record(&mut rec) {
             Ok(true) => rec.iter().map(str::to_string).collect(),
             Ok(false) => Vec::new(),
-            Err(e) => return Err(WindowsError::Malformed { path: path.clone(), line: Some(1), format, message: e.to_string() }),
+            Err(e) => {
+                return Err(WindowsError::Malformed {
+                    path: path.clone(),
+                    line: Some(1),
+                    format,
+                    message: e.to_string(),
+                });
+            }
         }
     };
     let c = &src.columns;
@@ -285,7 +299,15 @@ fn csv_chunk(
                     acc.events.skipped_malformed += 1;
                     break;
                 }
-                return Err((line, WindowsError::Malformed { path: path.to_path_buf(), line: Some(line), format: "CSV", message: e.to_string() }));
+                return Err((
+                    line,
+                    WindowsError::Malformed {
+                        path: path.to_path_buf(),
+                        line: Some(line),
+                        format: "CSV",
+                        message: e.to_string(),
+                    },
+                ));
             }
         };
         if !ok {
@@ -334,7 +356,8 @@ fn csv_chunk(
             if v.is_empty() {
                 return Err(RowError::Missing(cols.value));
             }
-            let v: f64 = std::str::from_utf8(v).ok().and_then(|s| s.parse().ok()).ok_or(RowError::BadValue(cols.value))?;
+            let v: f64 =
+                std::str::from_utf8(v).ok().and_then(|s| s.parse().ok()).ok_or(RowError::BadValue(cols.value))?;
             let fixed = check_value(plan, m, v, cols.value)?;
             Ok(Some((*u as usize, m, t, fixed)))
         })();
@@ -346,7 +369,12 @@ fn csv_chunk(
                     re.count(&mut acc.events);
                     continue;
                 }
-                let cell = |c: usize| Cell { file: path.to_path_buf(), line, column: c + 1, column_name: cols.header[c].clone() };
+                let cell = |c: usize| Cell {
+                    file: path.to_path_buf(),
+                    line,
+                    column: c + 1,
+                    column_name: cols.header[c].clone(),
+                };
                 let text = |c: usize| String::from_utf8_lossy(&rec[c]).into_owned();
                 let metric = String::from_utf8_lossy(metric).into_owned();
                 return Err((line, re.into_error(cell, text, &metric)));
@@ -384,10 +412,16 @@ fn read_parquet(src: &EventSource, plan: &Plan<'_>, threads: usize) -> WindowsRe
         found: ty(i).to_string(),
         expected: expected.to_string(),
     };
-    if !matches!(ty(idx[0]), DataType::Utf8 | DataType::LargeUtf8 | DataType::Utf8View | DataType::Int32 | DataType::Int64) {
+    if !matches!(
+        ty(idx[0]),
+        DataType::Utf8 | DataType::LargeUtf8 | DataType::Utf8View | DataType::Int32 | DataType::Int64
+    ) {
         return Err(type_err(idx[0], "text or integer unit ids"));
     }
-    if !matches!(ty(idx[1]), DataType::Utf8 | DataType::LargeUtf8 | DataType::Utf8View | DataType::Timestamp(_, _) | DataType::Date32) {
+    if !matches!(
+        ty(idx[1]),
+        DataType::Utf8 | DataType::LargeUtf8 | DataType::Utf8View | DataType::Timestamp(_, _) | DataType::Date32
+    ) {
         return Err(type_err(idx[1], "a timestamp, a date, or ISO 8601 text"));
     }
     if !matches!(ty(idx[2]), DataType::Utf8 | DataType::LargeUtf8 | DataType::Utf8View) {
@@ -421,7 +455,9 @@ fn read_parquet(src: &EventSource, plan: &Plan<'_>, threads: usize) -> WindowsRe
                         if first_error.skip(g) {
                             continue;
                         }
-                        if let Err((line, e)) = parquet_group(plan, &mut acc, path, &header, idx, g, first_row[g], policy) {
+                        if let Err((line, e)) =
+                            parquet_group(plan, &mut acc, path, &header, idx, g, first_row[g], policy)
+                        {
                             first_error.record(g, line, e);
                         }
                     }
@@ -612,7 +648,8 @@ fn parquet_batch(
                     re.count(&mut acc.events);
                     continue;
                 }
-                let cell = |c: usize| Cell { file: path.to_path_buf(), line, column: c + 1, column_name: header[c].clone() };
+                let cell =
+                    |c: usize| Cell { file: path.to_path_buf(), line, column: c + 1, column_name: header[c].clone() };
                 let text = |c: usize| {
                     let a = if c == idx[0] {
                         unit_a
@@ -690,7 +727,12 @@ pub fn event_unit_ids(src: &EventSource) -> WindowsResult<Vec<String>> {
             let mut r = csv::ReaderBuilder::new().flexible(true).trim(csv::Trim::All).from_reader(reader);
             let header: Vec<String> = r
                 .headers()
-                .map_err(|e| WindowsError::Malformed { path: path.clone(), line: Some(1), format: "CSV", message: e.to_string() })?
+                .map_err(|e| WindowsError::Malformed {
+                    path: path.clone(),
+                    line: Some(1),
+                    format: "CSV",
+                    message: e.to_string(),
+                })?
                 .iter()
                 .map(|h| h.trim_start_matches('\u{feff}').to_string())
                 .collect();

@@ -6,7 +6,10 @@
 //! under the output folder; they are read back into the same [`WindowsOutput`] the native engine
 //! returns (units ordered by id).
 
-use crate::engine::{ColumnValues, EventCounts, GroupSeries, InclusionCounts, OutColumn, SeriesRow, UnitTable, WindowCounts, WindowsOutput};
+use crate::engine::{
+    ColumnValues, EventCounts, GroupSeries, InclusionCounts, OutColumn, SeriesRow, UnitTable, WindowCounts,
+    WindowsOutput,
+};
 use crate::error::{WindowsError, WindowsResult};
 use crate::exposure::ExposureOptions;
 use crate::params::WindowSpec;
@@ -57,7 +60,9 @@ impl SparkOptions {
     /// Defaults with a work folder.
     pub fn new(work_dir: impl Into<PathBuf>) -> Self {
         Self {
-            submit: std::env::var_os("SPARK_SUBMIT").map(PathBuf::from).unwrap_or_else(|| PathBuf::from("spark-submit")),
+            submit: std::env::var_os("SPARK_SUBMIT")
+                .map(PathBuf::from)
+                .unwrap_or_else(|| PathBuf::from("spark-submit")),
             master: "local[2]".into(),
             driver_memory: "4g".into(),
             work_dir: work_dir.into(),
@@ -82,8 +87,11 @@ pub fn run_spark(
     options: &SparkOptions,
 ) -> WindowsResult<WindowsOutput> {
     let abs = |p: &Path| std::path::absolute(p).unwrap_or_else(|_| p.to_path_buf()).display().to_string();
-    std::fs::create_dir_all(&options.work_dir)
-        .map_err(|e| WindowsError::Io { path: options.work_dir.clone(), what: "cannot create the Spark work folder".into(), source: e })?;
+    std::fs::create_dir_all(&options.work_dir).map_err(|e| WindowsError::Io {
+        path: options.work_dir.clone(),
+        what: "cannot create the Spark work folder".into(),
+        source: e,
+    })?;
     let out_dir = options.work_dir.join("out");
     let plan = SparkPlan {
         events: SparkInput::from_path(&abs(events)),
@@ -94,9 +102,25 @@ pub fn run_spark(
     let sql_path = options.work_dir.join("windows.sql");
     let driver_path = options.work_dir.join("run_sql.py");
     for (p, text) in [(&sql_path, sql.as_str()), (&driver_path, DRIVER)] {
-        std::fs::write(p, text).map_err(|e| WindowsError::Io { path: p.clone(), what: "cannot write".into(), source: e })?;
+        std::fs::write(p, text).map_err(|e| WindowsError::Io {
+            path: p.clone(),
+            what: "cannot write".into(),
+            source: e,
+        })?;
     }
-    let output = Command::new(&options.submit)
+    let mut cmd = Command::new(&options.submit);
+    // A spark-submit inside a Python virtual environment finds its Spark home and Python through
+    // the PATH: put its own folder first.
+    if let Some(dir) = options.submit.parent().filter(|d| !d.as_os_str().is_empty()) {
+        let mut paths = vec![dir.to_path_buf()];
+        if let Some(p) = std::env::var_os("PATH") {
+            paths.extend(std::env::split_paths(&p));
+        }
+        if let Ok(joined) = std::env::join_paths(paths) {
+            cmd.env("PATH", joined);
+        }
+    }
+    let output = cmd
         .arg("--master")
         .arg(&options.master)
         .arg("--driver-memory")
@@ -106,7 +130,9 @@ pub fn run_spark(
         .arg(&driver_path)
         .arg(&sql_path)
         .output()
-        .map_err(|e| spark_err(format!("cannot start {}: {e} (install pyspark or set SPARK_SUBMIT)", options.submit.display())))?;
+        .map_err(|e| {
+            spark_err(format!("cannot start {}: {e} (install pyspark or set SPARK_SUBMIT)", options.submit.display()))
+        })?;
     if !output.status.success() {
         let err = String::from_utf8_lossy(&output.stderr);
         let input = err.contains("events: bad row") || err.contains("exposures: ");
@@ -114,10 +140,19 @@ pub fn run_spark(
         let picked: Vec<&str> = tail
             .iter()
             .copied()
-            .filter(|l| l.contains("events: bad row") || l.contains("exposures: ") || l.contains("Exception") || l.contains("Error"))
+            .filter(|l| {
+                l.contains("events: bad row")
+                    || l.contains("exposures: ")
+                    || l.contains("Exception")
+                    || l.contains("Error")
+            })
             .take(3)
             .collect();
-        let msg = if picked.is_empty() { tail.iter().rev().take(5).rev().copied().collect::<Vec<_>>().join("\n") } else { picked.join("\n") };
+        let msg = if picked.is_empty() {
+            tail.iter().rev().take(5).rev().copied().collect::<Vec<_>>().join("\n")
+        } else {
+            picked.join("\n")
+        };
         return Err(WindowsError::Spark { message: format!("spark-submit failed ({}): {msg}", output.status), input });
     }
     read_spark_output(spec, &out_dir)
@@ -132,12 +167,21 @@ fn read_dir_batches(dir: &Path) -> WindowsResult<Vec<RecordBatch>> {
     files.sort();
     let mut out = Vec::new();
     for f in files {
-        let file = std::fs::File::open(&f).map_err(|e| WindowsError::Io { path: f.clone(), what: "cannot open".into(), source: e })?;
-        let reader = ParquetRecordBatchReaderBuilder::try_new(file)
-            .and_then(|b| b.build())
-            .map_err(|e| WindowsError::Malformed { path: f.clone(), line: None, format: "Parquet", message: e.to_string() })?;
+        let file = std::fs::File::open(&f).map_err(|e| WindowsError::Io {
+            path: f.clone(),
+            what: "cannot open".into(),
+            source: e,
+        })?;
+        let reader = ParquetRecordBatchReaderBuilder::try_new(file).and_then(|b| b.build()).map_err(|e| {
+            WindowsError::Malformed { path: f.clone(), line: None, format: "Parquet", message: e.to_string() }
+        })?;
         for b in reader {
-            out.push(b.map_err(|e| WindowsError::Malformed { path: f.clone(), line: None, format: "Parquet", message: e.to_string() })?);
+            out.push(b.map_err(|e| WindowsError::Malformed {
+                path: f.clone(),
+                line: None,
+                format: "Parquet",
+                message: e.to_string(),
+            })?);
         }
     }
     Ok(out)
@@ -197,8 +241,12 @@ pub fn read_spark_output(spec: &WindowSpec, dir: &Path) -> WindowsResult<Windows
         .map(|c| if c.kind.is_integer() { ColumnValues::Int(vec![]) } else { ColumnValues::Float(vec![]) })
         .collect();
     for b in read_dir_batches(&udir)? {
-        let (u, g, e, a) =
-            (column(&b, "unit", &udir)?, column(&b, "group", &udir)?, column(&b, "exposed", &udir)?, column(&b, "anchor", &udir)?);
+        let (u, g, e, a) = (
+            column(&b, "unit", &udir)?,
+            column(&b, "group", &udir)?,
+            column(&b, "exposed", &udir)?,
+            column(&b, "anchor", &udir)?,
+        );
         let vals: Vec<&dyn Array> = vcols.iter().map(|c| column(&b, &c.name, &udir)).collect::<WindowsResult<_>>()?;
         for i in 0..b.num_rows() {
             units.units.push(text(u, i));
@@ -262,8 +310,9 @@ pub fn read_spark_output(spec: &WindowSpec, dir: &Path) -> WindowsResult<Windows
     let mut events = EventCounts::default();
     let (mut exposed_units, mut never) = (0u64, 0u64);
     for b in read_dir_batches(&cdir)? {
-        let cols = ["kind", "name", "group", "units", "included", "excluded_ends_after_end", "excluded_starts_before_start"]
-            .map(|c| column(&b, c, &cdir));
+        let cols =
+            ["kind", "name", "group", "units", "included", "excluded_ends_after_end", "excluded_starts_before_start"]
+                .map(|c| column(&b, c, &cdir));
         let [kind, name, group, n, inc, ea, sb] = cols;
         let (kind, name, group, n, inc, ea, sb) = (kind?, name?, group?, n?, inc?, ea?, sb?);
         for i in 0..b.num_rows() {

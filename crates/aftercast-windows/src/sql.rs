@@ -138,7 +138,9 @@ pub fn spark_sql(spec: &WindowSpec, exposure: &ExposureOptions, plan: &SparkPlan
             let parsed = format!("unix_micros(TRY_CAST({} AS TIMESTAMP))", ident(tc));
             let never = match reference {
                 Some(r) => r.to_string(),
-                None => format!("raise_error(concat('exposures: unit ', {ucol}, ' has no exposure time and no reference time was given'))"),
+                None => format!(
+                    "raise_error(concat('exposures: unit ', {ucol}, ' has no exposure time and no reference time was given'))"
+                ),
             };
             (
                 format!("CASE WHEN {empty} THEN 0 ELSE 1 END"),
@@ -149,9 +151,9 @@ pub fn spark_sql(spec: &WindowSpec, exposure: &ExposureOptions, plan: &SparkPlan
             )
         }
         None => {
-            let launch = exposure
-                .launch
-                .ok_or_else(|| WindowsError::bad_param("exposure", "", "give an exposure-time column or one launch time for all units"))?;
+            let launch = exposure.launch.ok_or_else(|| {
+                WindowsError::bad_param("exposure", "", "give an exposure-time column or one launch time for all units")
+            })?;
             ("1".to_string(), launch.to_string(), false)
         }
     };
@@ -168,7 +170,11 @@ pub fn spark_sql(spec: &WindowSpec, exposure: &ExposureOptions, plan: &SparkPlan
         crate::UnitUniverse::Exposures => "ac_units_listed".to_string(),
         crate::UnitUniverse::ExposuresAndEvents => {
             let r = reference.ok_or_else(|| {
-                WindowsError::bad_param("reference", "", "units found only in the events need a reference or launch time")
+                WindowsError::bad_param(
+                    "reference",
+                    "",
+                    "units found only in the events need a reference or launch time",
+                )
             })?;
             let unlisted = if exposure.group.is_some() { "unlisted" } else { "all" };
             let _ = writeln!(
@@ -179,7 +185,10 @@ pub fn spark_sql(spec: &WindowSpec, exposure: &ExposureOptions, plan: &SparkPlan
             "ac_units_all".to_string()
         }
     };
-    let _ = writeln!(w, "CREATE OR REPLACE TEMPORARY VIEW ac_units AS\nSELECT unit, grp, exposed, {anchor} AS anchor_us FROM {base};");
+    let _ = writeln!(
+        w,
+        "CREATE OR REPLACE TEMPORARY VIEW ac_units AS\nSELECT unit, grp, exposed, {anchor} AS anchor_us FROM {base};"
+    );
     let _ = writeln!(
         w,
         "SELECT raise_error(concat('exposures: unit ', unit, ' appears ', CAST(n AS STRING), ' times')) FROM (SELECT unit, count(*) AS n FROM ac_units GROUP BY unit) WHERE n > 1 OR unit IS NULL OR unit = '';"
@@ -295,7 +304,9 @@ pub fn spark_sql(spec: &WindowSpec, exposure: &ExposureOptions, plan: &SparkPlan
                         "CASE WHEN {comp} AND coalesce({p}_d, 0) > 0 THEN CAST({p}_s AS DOUBLE) / CAST({p}_d AS DOUBLE) END"
                     ),
                     Aggregation::Any => {
-                        format!("CASE WHEN {comp} THEN CAST(CASE WHEN coalesce({p}_n, 0) > 0 THEN 1 ELSE 0 END AS BIGINT) END")
+                        format!(
+                            "CASE WHEN {comp} THEN CAST(CASE WHEN coalesce({p}_n, 0) > 0 THEN 1 ELSE 0 END AS BIGINT) END"
+                        )
                     }
                 }
             }

@@ -67,7 +67,7 @@ impl fmt::Display for Offset {
         }
         let sign = if self.seconds < 0 { '-' } else { '+' };
         let a = self.seconds.unsigned_abs();
-        if a % 60 == 0 {
+        if a.is_multiple_of(60) {
             write!(f, "{sign}{:02}:{:02}", a / 3600, (a / 60) % 60)
         } else {
             write!(f, "{sign}{:02}:{:02}:{:02}", a / 3600, (a / 60) % 60, a % 60)

@@ -18,6 +18,7 @@
 //! - #10 at cal's start (03-18 00:00 local): in cal. #11 at 23:00Z on 03-19 = 01:00 local on
 //!   03-20, at/after the end: nowhere. #12 is a metric the run does not use.
 //!   fwd orders = 1+4+16+32+32 = 85 over 3 local days (03-01, 03-03, 03-07): mean 85/3.
+//!
 //! Unit b (north), exposed 2024-03-05T13:30Z (15:30 local): exposure inside a day.
 //! - #13 one microsecond before exposure: pre. #14 at exposure: fwd.
 //! - #15 23:00Z on 03-05 is 01:00 local on 03-06 (a different local day than in UTC).
@@ -27,12 +28,15 @@
 //! - #21 a bare date: local midnight of 03-07 (= 03-06T22:00Z): fwd, not def.
 //!   fwd orders = 2+4+8+32+128 = 174 on local days 03-05, 03-06, 03-07, 03-10: mean 43.5.
 //!   cal: no events: sum 0, count 0, days 0, mean undefined (empty), any 0.
+//!
 //! Unit c (south), exposed 2024-03-15T00:00+02:00, near the data end: fwd ends 03-22 > end, so
 //! every fwd cell is empty; def [03-17, 03-20) ends exactly at the end and is complete.
 //! - #22 at 23:59:59 local on 03-19: def and cal. #25 exactly at the end: nowhere.
+//!
 //! Unit d (south), never exposed: anchored at the reference 2024-03-10T00:00+02:00,
 //! `exposed` = 0. #26/#27 a duplicate pair (both counted), #28 at def's start, #29 one second
 //! before the anchor: pre.
+//!
 //! Unit e (south), exposed 2024-02-02T00:00+02:00: pre [01-30, 02-02) starts before the data
 //! start, so every pre cell is empty; #31 (in that pre window) is still in the daily series.
 
@@ -87,7 +91,10 @@ const N: Option<f64> = None;
 
 /// Expected cells per unit, per window (fwd, def, pre, cal), in column order: orders sum,
 /// count, active_days, mean_per_active_day, any, revenue sum, rpo num, rpo den.
-fn expected() -> Vec<(&'static str, bool, &'static str, [[Option<f64>; 8]; 4])> {
+/// (unit, exposed, group, cells per window).
+type Expected = (&'static str, bool, &'static str, [[Option<f64>; 8]; 4]);
+
+fn expected() -> Vec<Expected> {
     let s = Some;
     vec![
         (
@@ -205,7 +212,10 @@ fn hand_computed_fixture_every_cell() {
     // Inclusion counts per window and group.
     let w = |name: &str| out.windows.iter().find(|w| w.window == name).unwrap();
     let fwd = w("fwd_7d");
-    assert_eq!((fwd.all.units, fwd.all.included, fwd.all.excluded_ends_after_end, fwd.all.excluded_starts_before_start), (5, 4, 1, 0));
+    assert_eq!(
+        (fwd.all.units, fwd.all.included, fwd.all.excluded_ends_after_end, fwd.all.excluded_starts_before_start),
+        (5, 4, 1, 0)
+    );
     let south = fwd.by_group["south"];
     assert_eq!((south.units, south.included, south.excluded_ends_after_end), (3, 2, 1));
     assert_eq!(fwd.by_group["north"].included, 2);
@@ -329,7 +339,14 @@ fn skip_policy_counts_bad_rows_and_keeps_the_rest() {
     let e = out.events;
     assert_eq!(e.rows, 37);
     assert_eq!(
-        (e.skipped_unknown_unit, e.skipped_bad_timestamp, e.skipped_negative, e.skipped_bad_value, e.skipped_missing, e.skipped_malformed),
+        (
+            e.skipped_unknown_unit,
+            e.skipped_bad_timestamp,
+            e.skipped_negative,
+            e.skipped_bad_value,
+            e.skipped_missing,
+            e.skipped_malformed
+        ),
         (1, 1, 1, 1, 1, 1)
     );
     assert_eq!(e.used, 30);
@@ -358,12 +375,16 @@ fn thread_count_and_input_format_do_not_change_the_output() {
     let text = std::fs::read_to_string(fixture("events.csv")).unwrap();
     let rows: Vec<Vec<&str>> = text.lines().skip(1).map(|l| l.split(',').collect()).collect();
     let col = |i: usize| -> ArrayRef { Arc::new(StringArray::from(rows.iter().map(|r| r[i]).collect::<Vec<_>>())) };
-    let value: ArrayRef =
-        Arc::new(arrow_array::Float64Array::from(rows.iter().map(|r| r[3].parse::<f64>().unwrap()).collect::<Vec<_>>()));
-    let batch = RecordBatch::try_from_iter(vec![("unit", col(0)), ("time", col(1)), ("metric", col(2)), ("value", value)]).unwrap();
+    let value: ArrayRef = Arc::new(arrow_array::Float64Array::from(
+        rows.iter().map(|r| r[3].parse::<f64>().unwrap()).collect::<Vec<_>>(),
+    ));
+    let batch =
+        RecordBatch::try_from_iter(vec![("unit", col(0)), ("time", col(1)), ("metric", col(2)), ("value", value)])
+            .unwrap();
     let pq = dir.path().join("events.parquet");
     let props = parquet::file::properties::WriterProperties::builder().set_max_row_group_row_count(Some(12)).build();
-    let mut w = parquet::arrow::ArrowWriter::try_new(std::fs::File::create(&pq).unwrap(), batch.schema(), Some(props)).unwrap();
+    let mut w =
+        parquet::arrow::ArrowWriter::try_new(std::fs::File::create(&pq).unwrap(), batch.schema(), Some(props)).unwrap();
     w.write(&batch).unwrap();
     w.close().unwrap();
     assert_eq!(run(&EventSource::new(&pq, spec.columns().clone()), &ex, &spec, 2).unwrap(), one);

@@ -8,8 +8,8 @@ use aftercast_windows::spark::{SparkOptions, run_spark};
 use aftercast_windows::sql::{SparkInput, SparkPlan, spark_sql};
 use aftercast_windows::time::{Offset, parse_timestamp};
 use aftercast_windows::{
-    Aggregation, Anchoring, BadRowPolicy, EventColumns, EventSource, ExposureOptions, Exposures, SeriesFrequency, UnitUniverse,
-    WindowKind, WindowSpec, WindowsError, run,
+    Aggregation, Anchoring, BadRowPolicy, EventColumns, EventSource, ExposureOptions, Exposures, SeriesFrequency,
+    UnitUniverse, WindowKind, WindowSpec, WindowsError, run,
 };
 use std::path::PathBuf;
 
@@ -79,6 +79,10 @@ pub struct Args {
     /// exposures-and-events (units seen only in the events join as never exposed).
     #[arg(long, default_value = "exposures")]
     pub units: String,
+    /// A file listing every unit (column --unit-col); units not in --exposures join as never
+    /// exposed (native engine only).
+    #[arg(long)]
+    pub unit_list: Option<PathBuf>,
     /// Event columns: unit, time, metric, value (comma-separated, in that order).
     #[arg(long, default_value = "unit,time,metric,value")]
     pub event_cols: String,
@@ -138,7 +142,9 @@ fn wbad(e: WindowsError) -> anyhow::Error {
 
 fn instant(flag: &str, text: &str, off: Offset) -> anyhow::Result<i64> {
     parse_timestamp(text, off).ok_or_else(|| {
-        bad_input_msg(format!("--{flag} '{text}': not an ISO 8601 time (2024-03-01, 2024-03-01T10:00:00Z, 2024-03-01T12:00:00+02:00)"))
+        bad_input_msg(format!(
+            "--{flag} '{text}': not an ISO 8601 time (2024-03-01, 2024-03-01T10:00:00Z, 2024-03-01T12:00:00+02:00)"
+        ))
     })
 }
 
@@ -151,7 +157,8 @@ fn parse<T: std::str::FromStr<Err = WindowsError>>(text: &str) -> anyhow::Result
 /// # Errors
 /// Bad input for any invalid flag.
 pub fn spec_of(a: &Args) -> anyhow::Result<(WindowSpec, ExposureOptions)> {
-    let off = Offset::parse(&a.tz).ok_or_else(|| bad_input_msg(format!("--tz '{}': use UTC or a fixed offset like +02:00", a.tz)))?;
+    let off = Offset::parse(&a.tz)
+        .ok_or_else(|| bad_input_msg(format!("--tz '{}': use UTC or a fixed offset like +02:00", a.tz)))?;
     let mut p = WindowSpec::params().offset(off);
     for w in &a.windows {
         let (name, kind) = match w.split_once('=') {
@@ -173,7 +180,8 @@ pub fn spec_of(a: &Args) -> anyhow::Result<(WindowSpec, ExposureOptions)> {
     }
     for r in &a.ratios {
         let parsed = r.split_once('=').and_then(|(n, rest)| rest.split_once('/').map(|(x, y)| (n, x, y)));
-        let (n, x, y) = parsed.ok_or_else(|| bad_input_msg(format!("--ratio '{r}': write NAME=NUMERATOR/DENOMINATOR")))?;
+        let (n, x, y) =
+            parsed.ok_or_else(|| bad_input_msg(format!("--ratio '{r}': write NAME=NUMERATOR/DENOMINATOR")))?;
         p = p.ratio(n.trim(), x.trim(), y.trim());
     }
     p = p.end(instant("end", &a.end, off)?);
@@ -192,7 +200,12 @@ pub fn spec_of(a: &Args) -> anyhow::Result<(WindowSpec, ExposureOptions)> {
     let [unit, time, metric, value] = cols.as_slice() else {
         return Err(bad_input_msg(format!("--event-cols '{}': give four names: unit,time,metric,value", a.event_cols)));
     };
-    p = p.event_columns(EventColumns { unit: unit.to_string(), time: time.to_string(), metric: metric.to_string(), value: value.to_string() });
+    p = p.event_columns(EventColumns {
+        unit: unit.to_string(),
+        time: time.to_string(),
+        metric: metric.to_string(),
+        value: value.to_string(),
+    });
     let spec = p.check().map_err(wbad)?;
     let launch = a.launch.as_deref().map(|t| instant("launch", t, off)).transpose()?;
     let reference = a.reference.as_deref().map(|t| instant("reference", t, off)).transpose()?;
@@ -201,7 +214,8 @@ pub fn spec_of(a: &Args) -> anyhow::Result<(WindowSpec, ExposureOptions)> {
         (None, Some(_)) => None,
         (None, None) => Some("exposure".to_string()),
     };
-    let opts = ExposureOptions { unit: a.unit_col.clone(), time: time_col, group: a.group_col.clone(), launch, reference };
+    let opts =
+        ExposureOptions { unit: a.unit_col.clone(), time: time_col, group: a.group_col.clone(), launch, reference };
     Ok((spec, opts))
 }
 
@@ -226,7 +240,8 @@ pub fn run_verb(a: &Args) -> anyhow::Result<()> {
             (None, Some(p)) => SparkInput::from_path(&p.display().to_string()),
             (None, None) => return Err(bad_input_msg("--emit-sql needs --exposures or --spark-exposures-table")),
         };
-        let sql = spark_sql(&spec, &opts, &SparkPlan { events, exposures, output: a.spark_output.clone() }).map_err(wbad)?;
+        let sql =
+            spark_sql(&spec, &opts, &SparkPlan { events, exposures, output: a.spark_output.clone() }).map_err(wbad)?;
         print!("{sql}");
         return Ok(());
     }
@@ -239,12 +254,23 @@ pub fn run_verb(a: &Args) -> anyhow::Result<()> {
     let started = std::time::Instant::now();
     let (out, engine) = match a.engine {
         Engine::Native => {
-            let ex = Exposures::read(exposures_path, &opts, &spec).map_err(wbad)?;
+            let mut ex = Exposures::read(exposures_path, &opts, &spec).map_err(wbad)?;
+            if let Some(list) = &a.unit_list {
+                let table = crate::common::read_table(list)?;
+                let ids =
+                    table.text_column(&a.unit_col)?.into_iter().filter(|s| !s.is_empty()).map(str::to_string).collect();
+                ex.add_unlisted(ids).map_err(wbad)?;
+            }
             let threads = a.threads.unwrap_or(0) as usize;
             let src = EventSource::new(events, spec.columns().clone());
             (run(&src, &ex, &spec, threads).map_err(wbad)?, "native")
         }
         Engine::Spark => {
+            if a.unit_list.is_some() {
+                return Err(bad_input_msg(
+                    "--unit-list works with the native engine only; add the units to the exposures table for Spark",
+                ));
+            }
             let work = a.spark_work.clone().unwrap_or_else(|| output.with_extension("spark-work"));
             let mut so = SparkOptions::new(work);
             so.master = a.spark_master.clone();
