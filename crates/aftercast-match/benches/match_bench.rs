@@ -1,6 +1,7 @@
 //! Benchmark of the sizes: 1,000,000 units (10% treated), 10 numeric covariates.
 //! - propensity fit + 1:1 caliper matching without replacement + Abadie-Imbens variance
-//!   (criterion, 10 samples)
+//!   (criterion, 10 samples), and the same with replacement (the job scikit-learn's
+//!   NearestNeighbors does; see benches/sklearn_pipeline.py)
 //! - ipw with 500 Bayesian-bootstrap replicates re-fitting the propensity model (timed once;
 //!   set MATCH_BENCH_IPW=0 to skip)
 //!
@@ -55,6 +56,13 @@ fn main() {
     c.bench_function("match/nearest_1to1_caliper_no_replace_ai_variance_1m", |b| {
         b.iter(|| {
             let f = nearest.fit(&units, "y").unwrap();
+            std::hint::black_box(f.estimate)
+        })
+    });
+    let nearest_rep = MatchParams::new(covs.clone()).method(Method::Nearest).replace(true).draws(1000).check().unwrap();
+    c.bench_function("match/nearest_1to1_caliper_with_replacement_ai_variance_1m", |b| {
+        b.iter(|| {
+            let f = nearest_rep.fit(&units, "y").unwrap();
             std::hint::black_box(f.estimate)
         })
     });

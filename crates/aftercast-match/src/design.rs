@@ -9,6 +9,7 @@
 //! | `educ:re74`      | product of educ and re74                |
 //! | `age^2:educ`     | factors multiply; each may carry a power|
 //! | `zero(re74)`     | 1 if re74 == 0, else 0                  |
+//! | `log1p(spend)`   | ln(1 + spend) (spend > -1)              |
 //!
 //! `--squares age,educ` is shorthand for the terms `age^2,educ^2`; `--interact educ:re74` adds
 //! the product term.
@@ -29,6 +30,11 @@ pub enum Factor {
     },
     /// Indicator that a numeric covariate equals zero.
     Zero {
+        /// Covariate name.
+        name: String,
+    },
+    /// ln(1 + x) of a numeric covariate (skewed amounts such as spend).
+    Log1p {
         /// Covariate name.
         name: String,
     },
@@ -60,6 +66,7 @@ impl Term {
                 Factor::Power { name, power: 1 } => name.clone(),
                 Factor::Power { name, power } => format!("{name}^{power}"),
                 Factor::Zero { name } => format!("zero({name})"),
+                Factor::Log1p { name } => format!("log1p({name})"),
             })
             .collect::<Vec<_>>()
             .join(":")
@@ -78,6 +85,7 @@ impl Term {
                         0.0
                     }
                 }
+                Factor::Log1p { .. } => x.ln_1p(),
             };
         }
         v
@@ -85,7 +93,7 @@ impl Term {
 
     fn names(&self) -> impl Iterator<Item = &str> {
         self.factors.iter().map(|f| match f {
-            Factor::Power { name, .. } | Factor::Zero { name } => name.as_str(),
+            Factor::Power { name, .. } | Factor::Zero { name } | Factor::Log1p { name } => name.as_str(),
         })
     }
 }
@@ -104,7 +112,13 @@ impl std::str::FromStr for Term {
             if p.is_empty() {
                 return Err(bad("empty factor around ':'"));
             }
-            if let Some(inner) = p.strip_prefix("zero(") {
+            if let Some(inner) = p.strip_prefix("log1p(") {
+                let name = inner.strip_suffix(')').ok_or_else(|| bad("log1p( needs a closing parenthesis"))?.trim();
+                if name.is_empty() {
+                    return Err(bad("log1p() needs a covariate name"));
+                }
+                factors.push(Factor::Log1p { name: name.to_string() });
+            } else if let Some(inner) = p.strip_prefix("zero(") {
                 let name = inner.strip_suffix(')').ok_or_else(|| bad("zero( needs a closing parenthesis"))?.trim();
                 if name.is_empty() {
                     return Err(bad("zero() needs a covariate name"));
@@ -122,7 +136,7 @@ impl std::str::FromStr for Term {
                 factors.push(Factor::Power { name: name.to_string(), power });
             } else {
                 if p.contains('(') || p.contains(')') {
-                    return Err(bad("the only function is zero(name)"));
+                    return Err(bad("the functions are zero(name) and log1p(name)"));
                 }
                 factors.push(Factor::Power { name: p.to_string(), power: 1 });
             }
@@ -348,6 +362,9 @@ mod tests {
         assert!("zero(age".parse::<Term>().is_err());
         assert!("a::b".parse::<Term>().is_err());
         assert!("log(a)".parse::<Term>().is_err());
+        let t: Term = "log1p(spend)".parse().unwrap();
+        assert_eq!(t.label(), "log1p(spend)");
+        assert!((t.value(&[&[std::f64::consts::E - 1.0]], 0) - 1.0).abs() < 1e-15);
     }
 
     #[test]

@@ -285,3 +285,19 @@ fn ate_by_matching_and_result_json() {
     assert!((s - 1.0).abs() < 1e-12);
     assert!(r.effect.average.lower < r.effect.average.upper);
 }
+
+#[test]
+fn no_match_within_exact_groups_is_an_error() {
+    // every treated unit is in region "a", every control in region "b": exact matching on
+    // region leaves nobody matched
+    let mut text = String::from("t,y,x,region\n");
+    for i in 0..80 {
+        let t = i % 4 == 0;
+        text.push_str(&format!("{},{},{},{}\n", t as u8, i % 9, (i % 13) as f64, if t { "a" } else { "b" }));
+    }
+    let units = from_csv(&text, &["x"], &["region"]);
+    let err = MatchParams::new(["x"]).exact(["region"]).replace(true).check().unwrap().fit(&units, "y").unwrap_err();
+    assert!(matches!(err, MatchError::NoMatches { .. }), "{err}");
+    let err = MatchParams::new(["x"]).exact(["zone"]).check().unwrap().fit(&units, "y").unwrap_err();
+    assert!(matches!(&err, MatchError::UnknownColumn { name, .. } if name == "zone"), "{err}");
+}
