@@ -253,7 +253,7 @@ fn trimming_rules_drop_units_outside_the_limits() {
     let g = MatchParams::new(["x1", "x2"]).method(Method::Ipw).trim(Trim::Crump).draws(50).check().unwrap();
     let g = g.fit(&units, "post").unwrap();
     let (lo, hi) = g.trim.unwrap().limits;
-    assert!(lo >= 0.0 && lo < 0.5 && (hi - (1.0 - lo)).abs() < 1e-15);
+    assert!((0.0..0.5).contains(&lo) && (hi - (1.0 - lo)).abs() < 1e-15);
     let m = MatchParams::new(["x1", "x2"]).method(Method::Ipw).trim(Trim::MinMax).draws(50).check().unwrap();
     let m = m.fit(&units, "post").unwrap();
     let (lo, hi) = m.trim.unwrap().limits;
