@@ -156,7 +156,7 @@ impl<'a> Plan<'a> {
 /// Per-worker accumulators.
 pub(crate) struct Acc {
     sums: Vec<i128>,
-    counts: Vec<u64>,
+    counts: Vec<u32>,
     days: Vec<u64>,
     series_sums: Vec<i128>,
     series_counts: Vec<u64>,
@@ -184,7 +184,10 @@ impl Acc {
                 Some(s) => self.sums[slot] = s,
                 None => self.overflow = self.overflow.or(Some((u, m))),
             }
-            self.counts[slot] += 1;
+            match self.counts[slot].checked_add(1) {
+                Some(c) => self.counts[slot] = c,
+                None => self.overflow = self.overflow.or(Some((u, m))),
+            }
             if let Some(off) = plan.day_offset[w * plan.n_metrics + m] {
                 let bit = (plan.offset.day_of(t) - plan.offset.day_of(from)) as usize;
                 self.days[u * plan.day_stride + off + bit / 64] |= 1u64 << (bit % 64);
@@ -217,7 +220,10 @@ impl Acc {
             }
         }
         for (a, b) in self.counts.iter_mut().zip(other.counts) {
-            *a += b;
+            match a.checked_add(b) {
+                Some(c) => *a = c,
+                None => self.overflow = self.overflow.or(Some((0, 0))),
+            }
         }
         for (a, b) in self.days.iter_mut().zip(other.days) {
             *a |= b;
@@ -450,7 +456,7 @@ fn finish(plan: &Plan<'_>, acc: Acc) -> WindowsResult<WindowsOutput> {
                     (0..n).map(|u| complete[u * nw + w].then(|| from_fixed(acc.sums[slot(u, m)]))).collect(),
                 ),
                 Aggregation::Count => ColumnValues::Int(
-                    (0..n).map(|u| complete[u * nw + w].then(|| acc.counts[slot(u, m)] as i64)).collect(),
+                    (0..n).map(|u| complete[u * nw + w].then(|| i64::from(acc.counts[slot(u, m)]))).collect(),
                 ),
                 Aggregation::Any => ColumnValues::Int(
                     (0..n).map(|u| complete[u * nw + w].then(|| i64::from(acc.counts[slot(u, m)] > 0))).collect(),

@@ -14,7 +14,8 @@ use std::hash::{BuildHasherDefault, Hasher};
 use std::path::Path;
 
 /// A small, fast, non-cryptographic hasher for unit ids (the multiply-rotate scheme of the
-/// Firefox/rustc "Fx" hash). Unit ids are not attacker-chosen keys in this setting.
+/// Firefox/rustc "Fx" hash with a final avalanche step). Unit ids are not attacker-chosen keys
+/// in this setting.
 #[derive(Default, Clone, Copy)]
 pub struct UnitHasher {
     hash: u64,
@@ -55,7 +56,15 @@ impl Hasher for UnitHasher {
     }
     #[inline]
     fn finish(&self) -> u64 {
-        self.hash
+        // The multiply only carries low bits upwards, and ids that differ only in their last
+        // characters differ only in high bits: mix both ways (MurmurHash3's 64-bit finalizer) so
+        // that the table's bucket bits depend on every byte.
+        let mut h = self.hash;
+        h ^= h >> 33;
+        h = h.wrapping_mul(0xff51_afd7_ed55_8ccd);
+        h ^= h >> 33;
+        h = h.wrapping_mul(0xc4ce_b9fe_1a85_ec53);
+        h ^ (h >> 33)
     }
 }
 
@@ -344,5 +353,22 @@ impl Exposures {
     /// What the result records about the exposures file, if read from one.
     pub fn info(&self) -> Option<&InputInfo> {
         self.info.as_ref()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::hash::BuildHasher;
+
+    #[test]
+    fn similar_ids_spread_over_buckets() {
+        // Ids that differ only in their last digits must not share the low (bucket) bits.
+        let b = BuildHasherDefault::<UnitHasher>::default();
+        let mut low: std::collections::HashSet<u64> = std::collections::HashSet::new();
+        for i in 0..4096u32 {
+            low.insert(b.hash_one(format!("u{i:07}").as_str()) & 0xfff);
+        }
+        assert!(low.len() > 2000, "only {} distinct bucket indices of 4096", low.len());
     }
 }
