@@ -84,7 +84,7 @@ pub(crate) struct Plan<'a> {
     rel: Vec<Option<(i64, i64)>>,
     /// Per window: absolute bounds of calendar windows.
     cal: Vec<(i64, i64)>,
-    /// Per (window, metric): offset of its day words within a unit's day block, if needed.
+    /// Per (metric, window): offset of its day words within a unit's day block, if needed.
     day_offset: Vec<Option<usize>>,
     day_stride: usize,
     offset: Offset,
@@ -102,10 +102,11 @@ impl<'a> Plan<'a> {
             rel.push(win.kind.relative());
             cal.push(spec.bounds(w, 0));
         }
+        // Metric-major layout: the windows of one unit and metric are adjacent in memory.
         let mut day_offset = Vec::with_capacity(n_windows * n_metrics);
         let mut stride = 0;
-        for w in 0..n_windows {
-            for m in spec.tracked() {
+        for m in spec.tracked() {
+            for w in 0..n_windows {
                 if m.needs_days {
                     day_offset.push(Some(stride));
                     stride += spec.day_words(w);
@@ -170,7 +171,7 @@ impl Acc {
     pub(crate) fn add(&mut self, plan: &Plan<'_>, u: usize, m: usize, t: i64, v: i128) {
         self.events.used += 1;
         let anchor = plan.anchors[u];
-        let base = u * plan.n_windows * plan.n_metrics;
+        let base = (u * plan.n_metrics + m) * plan.n_windows;
         for w in 0..plan.n_windows {
             let (from, to) = match plan.rel[w] {
                 Some((a, b)) => (anchor + a, anchor + b),
@@ -179,7 +180,7 @@ impl Acc {
             if t < from || t >= to {
                 continue;
             }
-            let slot = base + w * plan.n_metrics + m;
+            let slot = base + w;
             match self.sums[slot].checked_add(v) {
                 Some(s) => self.sums[slot] = s,
                 None => self.overflow = self.overflow.or(Some((u, m))),
@@ -188,7 +189,7 @@ impl Acc {
                 Some(c) => self.counts[slot] = c,
                 None => self.overflow = self.overflow.or(Some((u, m))),
             }
-            if let Some(off) = plan.day_offset[w * plan.n_metrics + m] {
+            if let Some(off) = plan.day_offset[m * plan.n_windows + w] {
                 let bit = (plan.offset.day_of(t) - plan.offset.day_of(from)) as usize;
                 self.days[u * plan.day_stride + off + bit / 64] |= 1u64 << (bit % 64);
             }
@@ -440,9 +441,9 @@ fn finish(plan: &Plan<'_>, acc: Acc) -> WindowsResult<WindowsOutput> {
     let mut columns = Vec::new();
     for vc in spec.value_columns() {
         let w = vc.window;
-        let slot = |u: usize, m: usize| (u * nw + w) * nm + m;
+        let slot = |u: usize, m: usize| (u * nm + m) * nw + w;
         let days = |u: usize, m: usize| -> i64 {
-            match plan.day_offset[w * nm + m] {
+            match plan.day_offset[m * nw + w] {
                 Some(off) => {
                     let s = u * plan.day_stride + off;
                     acc.days[s..s + spec.day_words(w)].iter().map(|x| i64::from(x.count_ones())).sum()
@@ -585,7 +586,11 @@ pub(crate) fn check_value(plan: &Plan<'_>, m: usize, v: f64, col: usize) -> Resu
 /// Index of a tracked metric by name.
 #[inline]
 pub(crate) fn metric_index(plan: &Plan<'_>, name: &[u8]) -> Option<usize> {
-    plan.spec.tracked().iter().position(|t| t.name.as_bytes() == name)
+    // Length and first byte first: avoids a library call per event for the common mismatch.
+    plan.spec.tracked().iter().position(|t| {
+        let n = t.name.as_bytes();
+        n.len() == name.len() && n.first() == name.first() && n == name
+    })
 }
 
 #[cfg(test)]

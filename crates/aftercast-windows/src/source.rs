@@ -359,7 +359,7 @@ fn csv_chunk(
             let v: f64 =
                 std::str::from_utf8(v).ok().and_then(|s| s.parse().ok()).ok_or(RowError::BadValue(cols.value))?;
             let fixed = check_value(plan, m, v, cols.value)?;
-            Ok(Some((*u as usize, m, t, fixed)))
+            Ok(Some((u as usize, m, t, fixed)))
         })();
         match outcome {
             Ok(Some((u, m, t, v))) => acc.add(plan, u, m, t, v),
@@ -607,7 +607,7 @@ fn parquet_batch(
             if unit.is_empty() {
                 return Err(RowError::Missing(idx[0]));
             }
-            let u = *map.get(unit).ok_or(RowError::UnknownUnit(idx[0]))? as usize;
+            let u = map.get(unit).ok_or(RowError::UnknownUnit(idx[0]))? as usize;
             if time_a.is_null(i) {
                 return Err(RowError::Missing(idx[1]));
             }
