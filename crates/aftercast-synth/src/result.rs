@@ -50,6 +50,20 @@ fn sentence_assumptions(method: Method) -> Vec<String> {
     a
 }
 
+/// Donor weights of the aggregate: the unit's own for one treated unit, the share-weighted
+/// mean of the units' weights for several.
+fn weights_of(fit: &Fitted) -> Vec<aftercast_core::result::UnitWeight> {
+    if fit.units.len() == 1 {
+        return fit.units[0].weights.clone();
+    }
+    (0..fit.donors.len())
+        .map(|j| aftercast_core::result::UnitWeight {
+            unit: fit.donors[j].clone(),
+            weight: fit.units.iter().zip(&fit.unit_shares).map(|(u, s)| s * u.weights[j].weight).sum(),
+        })
+        .collect()
+}
+
 /// Build the shared result document of the `synthetic` verb.
 ///
 /// `extra_diagnostics` is merged into `diagnostics` (e.g. conformal, placebo in time,
@@ -107,11 +121,15 @@ pub fn to_analysis_result(fit: &Fitted, opts: &ResultOptions, extra_diagnostics:
     diag.insert("pre_periods".into(), json!(fit.first_post));
     diag.insert("post_periods".into(), json!(fit.times.len() - fit.first_post));
     diag.insert("draws".into(), json!({"source": fit.draws.source, "count": fit.draws.counterfactual.len()}));
-    if let Some(u) = fit.units.first() {
-        diag.insert("pre_rmspe".into(), json!(u.pre_rmspe));
-        diag.insert("r2_pre".into(), json!(u.r2_pre));
-        diag.insert("nonzero_donors".into(), json!(u.nonzero_donors));
-    }
+    // Pre-period fit of the aggregated path (for one treated unit: that unit's).
+    let p0 = fit.first_post;
+    let gap: Vec<f64> = (0..p0).map(|t| fit.observed[t] - fit.synthetic[t]).collect();
+    let ybar = fit.observed[..p0].iter().sum::<f64>() / p0 as f64;
+    let sst: f64 = fit.observed[..p0].iter().map(|y| (y - ybar).powi(2)).sum();
+    diag.insert("pre_rmspe".into(), json!(crate::fit::rmspe(&gap)));
+    diag.insert("r2_pre".into(), json!(1.0 - gap.iter().map(|g| g * g).sum::<f64>() / sst));
+    let nonzero = weights_of(fit).iter().filter(|w| w.weight.abs() > crate::fit::WEIGHT_ZERO).count();
+    diag.insert("nonzero_donors".into(), json!(nonzero));
     if let Some(pl) = &fit.placebo {
         diag.insert("placebo_runs".into(), serde_json::to_value(pl).unwrap_or(Value::Null));
     }
@@ -119,20 +137,7 @@ pub fn to_analysis_result(fit: &Fitted, opts: &ResultOptions, extra_diagnostics:
         diag.insert("sdid".into(), serde_json::to_value(s).unwrap_or(Value::Null));
     }
     diag.extend(extra_diagnostics);
-    let weights = if fit.units.len() == 1 {
-        Some(fit.units[0].weights.clone())
-    } else {
-        // Several treated units: the aggregate's implied donor weights.
-        let n = fit.donors.len();
-        Some(
-            (0..n)
-                .map(|j| aftercast_core::result::UnitWeight {
-                    unit: fit.donors[j].clone(),
-                    weight: fit.units.iter().zip(&fit.unit_shares).map(|(u, s)| s * u.weights[j].weight).sum(),
-                })
-                .collect(),
-        )
-    };
+    let weights = Some(weights_of(fit));
     let placebo = fit.placebo.as_ref().map(|pl| {
         if pl.ranks.len() == 1 {
             let r = &pl.ranks[0];
