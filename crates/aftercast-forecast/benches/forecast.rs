@@ -38,7 +38,10 @@ fn bench(c: &mut Criterion) {
     g.sample_size(10);
     g.bench_function("structural_mle_1095", |b| b.iter(|| fit(&spec, &y[..n_pre], &xp, None).unwrap()));
     let f = fit(&spec, &y[..n_pre], &xp, None).unwrap();
-    eprintln!("fit: converged {} ({}), loglik {:.3}, params {:?}", f.optim.converged, f.optim.reason, f.loglik, f.params);
+    eprintln!(
+        "fit: converged {} ({}), loglik {:.3}, params {:?}",
+        f.optim.converged, f.optim.reason, f.loglik, f.params
+    );
     let opts = SimulationOptions { draws: 1000, seed: 1, parameter_uncertainty: true, parameter_sets: 100 };
     g.bench_function("structural_draws_1000x90", |b| b.iter(|| simulate(&f, &y[..n_pre], &x, 0, 90, &opts).unwrap()));
     g.bench_function("structural_mle_plus_1000_draws", |b| {

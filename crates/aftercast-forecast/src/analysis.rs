@@ -82,10 +82,14 @@ fn structural_spec(p: &Prepared, params: &ValidParams) -> StructuralSpec {
 
 fn hw_spec(p: &Prepared, params: &ValidParams) -> (HwSpec, Option<String>) {
     let mut note = None;
-    let ints: Vec<usize> = p.seasons.iter().filter_map(|s| match s.kind() {
-        SeasonKind::Dummy { period } => Some(period),
-        _ => None,
-    }).collect();
+    let ints: Vec<usize> = p
+        .seasons
+        .iter()
+        .filter_map(|s| match s.kind() {
+            SeasonKind::Dummy { period } => Some(period),
+            _ => None,
+        })
+        .collect();
     let period = match (ints.iter().min(), p.seasons.first()) {
         (Some(&m), _) => Some(m),
         (None, Some(s)) => {
@@ -227,9 +231,24 @@ fn in_sample(model: &FittedModel, p: &Prepared, n_fit: usize) -> (Vec<f64>, Vec<
 /// Standard normal quantile (Acklam's rational approximation, relative error < 1.2e-9).
 #[allow(clippy::excessive_precision)]
 pub fn normal_quantile(p: f64) -> f64 {
-    const A: [f64; 6] = [-3.969683028665376e1, 2.209460984245205e2, -2.759285104469687e2, 1.383577518672690e2, -3.066479806614716e1, 2.506628277459239];
-    const B: [f64; 5] = [-5.447609879822406e1, 1.615858368580409e2, -1.556989798598866e2, 6.680131188771972e1, -1.328068155288572e1];
-    const C: [f64; 6] = [-7.784894002430293e-3, -3.223964580411365e-1, -2.400758277161838, -2.549732539343734, 4.374664141464968, 2.938163982698783];
+    const A: [f64; 6] = [
+        -3.969683028665376e1,
+        2.209460984245205e2,
+        -2.759285104469687e2,
+        1.383577518672690e2,
+        -3.066479806614716e1,
+        2.506628277459239,
+    ];
+    const B: [f64; 5] =
+        [-5.447609879822406e1, 1.615858368580409e2, -1.556989798598866e2, 6.680131188771972e1, -1.328068155288572e1];
+    const C: [f64; 6] = [
+        -7.784894002430293e-3,
+        -3.223964580411365e-1,
+        -2.400758277161838,
+        -2.549732539343734,
+        4.374664141464968,
+        2.938163982698783,
+    ];
     const D: [f64; 4] = [7.784695709041462e-3, 3.224671290700398e-1, 2.445134137142996, 3.754408661907416];
     let pl = 0.02425;
     if p <= 0.0 {
@@ -240,7 +259,8 @@ pub fn normal_quantile(p: f64) -> f64 {
     }
     if p < pl {
         let q = (-2.0 * p.ln()).sqrt();
-        (((((C[0] * q + C[1]) * q + C[2]) * q + C[3]) * q + C[4]) * q + C[5]) / ((((D[0] * q + D[1]) * q + D[2]) * q + D[3]) * q + 1.0)
+        (((((C[0] * q + C[1]) * q + C[2]) * q + C[3]) * q + C[4]) * q + C[5])
+            / ((((D[0] * q + D[1]) * q + D[2]) * q + D[3]) * q + 1.0)
     } else if p <= 1.0 - pl {
         let q = p - 0.5;
         let r = q * q;
@@ -440,7 +460,12 @@ impl ValidParams {
     pub fn fit(&self, series: &Series, split: Split, events: Option<&EventCalendar>) -> ForecastResult<Fitted> {
         let (prepared, mut warnings, control_breaks) = prepare(series, &split, self, events)?;
         let kind = if self.get().model == ModelKind::Auto {
-            let bt = run_backtest(&prepared, &split, self, &[ModelKind::Structural, ModelKind::HoltWinters, ModelKind::Harmonic]);
+            let bt = run_backtest(
+                &prepared,
+                &split,
+                self,
+                &[ModelKind::Structural, ModelKind::HoltWinters, ModelKind::Harmonic],
+            );
             choose(&bt, &mut warnings)
         } else {
             self.get().model
@@ -491,9 +516,13 @@ pub fn run_backtest(p: &Prepared, split: &Split, params: &ValidParams, models: &
             });
             match res {
                 Ok(paths) => {
-                    let paths: Vec<Vec<f64>> =
-                        if p.log { paths.into_iter().map(|v| v.into_iter().map(f64::exp).collect()).collect() } else { paths };
-                    let obs: Vec<f64> = (o + skip..o + skip + h).map(|t| if p.log { p.y[t].exp() } else { p.y[t] }).collect();
+                    let paths: Vec<Vec<f64>> = if p.log {
+                        paths.into_iter().map(|v| v.into_iter().map(f64::exp).collect()).collect()
+                    } else {
+                        paths
+                    };
+                    let obs: Vec<f64> =
+                        (o + skip..o + skip + h).map(|t| if p.log { p.y[t].exp() } else { p.y[t] }).collect();
                     let (c, mape, cov) = score(&paths, &obs, pp.level);
                     mine.push(BacktestRow {
                         model: kind.name().into(),
@@ -546,7 +575,8 @@ impl Fitted {
         let pp = self.params.get();
         let s = &self.split;
         let skip = s.post_start - s.pre_end;
-        let paths = draw_paths(&self.model, &self.prepared, &self.params, s.pre_end, skip, s.post_len(), pp.draws, pp.seed)?;
+        let paths =
+            draw_paths(&self.model, &self.prepared, &self.params, s.pre_end, skip, s.post_len(), pp.draws, pp.seed)?;
         let draws = if self.prepared.log {
             paths.into_iter().map(|v| v.into_iter().map(f64::exp).collect()).collect()
         } else {
@@ -690,7 +720,8 @@ pub fn analyse(
     } else {
         vec![pp.model]
     };
-    let backtest = (pp.backtest_folds > 0 || pp.model == ModelKind::Auto).then(|| run_backtest(&prepared, &split, params, &models));
+    let backtest = (pp.backtest_folds > 0 || pp.model == ModelKind::Auto)
+        .then(|| run_backtest(&prepared, &split, params, &models));
     let kind = match (&backtest, pp.model) {
         (Some(bt), ModelKind::Auto) => choose(bt, &mut warnings),
         (_, k) => k,
@@ -715,9 +746,9 @@ pub fn analyse(
             effects.nonfinite_relative
         ));
     }
-    let coverage = backtest.as_ref().and_then(|bt| {
-        bt.summary.iter().find(|s| s.model == kind.name() && s.folds > 0).map(|s| s.coverage)
-    });
+    let coverage = backtest
+        .as_ref()
+        .and_then(|bt| bt.summary.iter().find(|s| s.model == kind.name() && s.folds > 0).map(|s| s.coverage));
     let (diagnostics, pre_path) = fitted.diagnostics(coverage);
     if diagnostics.ljung_box.p_value < 0.01 {
         warnings.push(format!(

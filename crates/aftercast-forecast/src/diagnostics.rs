@@ -22,9 +22,7 @@ pub fn autocorrelations(x: &[f64], h: usize) -> Vec<f64> {
     let mean = v.iter().sum::<f64>() / n.max(1) as f64;
     let d: Vec<f64> = v.iter().map(|x| x - mean).collect();
     let ss: f64 = d.iter().map(|x| x * x).sum();
-    (1..=h)
-        .map(|k| if k >= n || ss == 0.0 { 0.0 } else { (k..n).map(|t| d[t] * d[t - k]).sum::<f64>() / ss })
-        .collect()
+    (1..=h).map(|k| if k >= n || ss == 0.0 { 0.0 } else { (k..n).map(|t| d[t] * d[t - k]).sum::<f64>() / ss }).collect()
 }
 
 /// Ljung & Box (1978, Biometrika 65:297-303) statistic over `lags` lags (finite values only).
@@ -147,48 +145,107 @@ pub fn fit_stats(obs: &[f64], pred: &[f64]) -> FitStats {
 pub struct ControlBreak {
     /// Control name.
     pub control: String,
-    /// Mean of (post value - pre-trend projection).
+    /// Mean departure of the post-period values from the straight line fitted to the window
+    /// before the intervention.
     pub shift: f64,
-    /// `shift / (s / sqrt(n_eff))`, `s` the pre-window residual sd and `n_eff` the post length
-    /// corrected for lag-1 autocorrelation of the residuals.
+    /// `shift` divided by the sd of the same statistic at placebo dates in the pre-period
+    /// (or by its analytic standard error when there are too few placebo dates).
     pub z: f64,
-    /// Whether `|z|` exceeds [`BREAK_Z`].
+    /// Placebo dates used (0 = analytic standard error).
+    pub placebos: usize,
+    /// Share of placebo dates with a departure at least as large in absolute value.
+    pub placebo_p: Option<f64>,
+    /// Whether the control looks touched: `|z| >` [`BREAK_Z`] and (with placebos) larger than
+    /// every placebo departure.
     pub flagged: bool,
 }
 
 /// Threshold of the break check (a common-practice 3-sigma rule, not a calibrated test).
 pub const BREAK_Z: f64 = 3.0;
 
-/// Check a control for a level break at the intervention: fit a straight line to the last
-/// `w = min(pre, max(3 post, 28))` pre-period values, project it over the post-period, and
-/// compare the mean post-period departure with its standard error: the pre-window residual sd
-/// times `sqrt(1/post + 1/w + (t_post - t_pre)^2 / S_tt)` (projection error of the line),
-/// inflated for lag-1 autocorrelation `rho` by `sqrt((1 + rho) / (1 - rho))` (a Chow-type
-/// comparison of the post-period mean against the pre-period fit).
-pub fn control_break(name: &str, x: &[f64], pre_end: usize, post_start: usize, post_end: usize) -> ControlBreak {
-    let post = post_end - post_start;
-    let w = pre_end.min((3 * post).max(28)).max(3.min(pre_end));
-    let start = pre_end - w;
-    let ts: Vec<f64> = (start..pre_end).map(|t| t as f64).collect();
-    let ys = &x[start..pre_end];
-    let tm = ts.iter().sum::<f64>() / w as f64;
+/// Fewest placebo dates for the placebo-based scale.
+pub const MIN_PLACEBOS: usize = 10;
+
+/// Mean departure of `x[at..at + h]` from the line fitted to `x[at - w..at]`, and the line's
+/// analytic standard error of that mean (residual sd, projection spread, lag-1 inflation).
+fn departure(x: &[f64], at: usize, h: usize, w: usize) -> (f64, f64) {
+    let start = at - w;
+    let tm = (start + at - 1) as f64 / 2.0;
+    let ys = &x[start..at];
     let ym = ys.iter().sum::<f64>() / w as f64;
-    let stt: f64 = ts.iter().map(|t| (t - tm).powi(2)).sum();
-    let slope = if stt > 0.0 { ts.iter().zip(ys).map(|(t, y)| (t - tm) * (y - ym)).sum::<f64>() / stt } else { 0.0 };
-    let resid: Vec<f64> = ts.iter().zip(ys).map(|(t, y)| y - ym - slope * (t - tm)).collect();
+    let stt: f64 = (start..at).map(|t| (t as f64 - tm).powi(2)).sum();
+    let slope =
+        if stt > 0.0 { (start..at).zip(ys).map(|(t, y)| (t as f64 - tm) * (y - ym)).sum::<f64>() / stt } else { 0.0 };
+    let resid: Vec<f64> = (start..at).zip(ys).map(|(t, y)| y - ym - slope * (t as f64 - tm)).collect();
     let s = (resid.iter().map(|r| r * r).sum::<f64>() / (w.saturating_sub(2).max(1)) as f64).sqrt();
     let rho = autocorrelations(&resid, 1)[0].clamp(-0.9, 0.95);
-    let shift =
-        (post_start..post_end).map(|t| x[t] - (ym + slope * (t as f64 - tm))).sum::<f64>() / post.max(1) as f64;
-    let tp = (post_start + post_end - 1) as f64 / 2.0;
-    let spread = 1.0 / post.max(1) as f64 + 1.0 / w as f64 + if stt > 0.0 { (tp - tm).powi(2) / stt } else { 0.0 };
-    let se = s * ((1.0 + rho) / (1.0 - rho)).sqrt() * spread.sqrt();
+    let shift = (at..at + h).map(|t| x[t] - (ym + slope * (t as f64 - tm))).sum::<f64>() / h.max(1) as f64;
+    let tp = (2 * at + h - 1) as f64 / 2.0;
+    let spread = 1.0 / h.max(1) as f64 + 1.0 / w as f64 + if stt > 0.0 { (tp - tm).powi(2) / stt } else { 0.0 };
+    (shift, s * ((1.0 + rho) / (1.0 - rho)).sqrt() * spread.sqrt())
+}
+
+/// Check a control for a break at the intervention (a Chow-type comparison of the
+/// post-period mean against a pre-period fit, scaled by the control's own pre-period noise):
+/// fit a straight line to the `w = min(pre, max(3 post, 28))` values before the intervention
+/// and take the mean departure of the post-period values from it. The same statistic at every
+/// placebo date inside the pre-period (same window, same horizon, ending before the
+/// intervention) gives its noise distribution; `z` = departure / sd of the placebo
+/// departures, and the control is flagged when `|z| > 3` and the departure exceeds every
+/// placebo departure. With fewer than [`MIN_PLACEBOS`] placebo dates the analytic standard
+/// error of the line's projection is used instead.
+pub fn control_break(name: &str, x: &[f64], pre_end: usize, post_start: usize, post_end: usize) -> ControlBreak {
+    let h = post_end - post_start;
+    let w = pre_end.min((3 * h).max(28)).max(3.min(pre_end));
+    // the line is fitted on the window ending at pre_end; the post-period starts after the washout
+    let shift = departure_at(x, pre_end, post_start, h, w);
+    let gap = post_start - pre_end;
+    let placebo: Vec<f64> =
+        (w..=pre_end.saturating_sub(gap + h)).map(|at| departure_at(x, at, at + gap, h, w)).collect();
+    if placebo.len() >= MIN_PLACEBOS {
+        let m = placebo.iter().sum::<f64>() / placebo.len() as f64;
+        let sd = (placebo.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (placebo.len() - 1) as f64).sqrt();
+        let z = if sd > 0.0 {
+            shift / sd
+        } else if shift != 0.0 {
+            f64::INFINITY
+        } else {
+            0.0
+        };
+        let beyond = placebo.iter().filter(|v| v.abs() >= shift.abs()).count();
+        let p = beyond as f64 / placebo.len() as f64;
+        return ControlBreak {
+            control: name.to_string(),
+            shift,
+            z,
+            placebos: placebo.len(),
+            placebo_p: Some(p),
+            flagged: z.abs() > BREAK_Z && beyond == 0,
+        };
+    }
+    // analytic fallback (the washout gap is ignored in the projection spread)
+    let (_, se) = departure(x, pre_end, h, w);
     let z = if se > 0.0 {
         shift / se
-    } else if shift.abs() > 0.0 {
+    } else if shift != 0.0 {
         f64::INFINITY
     } else {
         0.0
     };
-    ControlBreak { control: name.to_string(), shift, z, flagged: z.abs() > BREAK_Z }
+    ControlBreak { control: name.to_string(), shift, z, placebos: 0, placebo_p: None, flagged: z.abs() > BREAK_Z }
+}
+
+/// Mean departure of `x[from..from + h]` from the line fitted to `x[line_end - w..line_end]`.
+fn departure_at(x: &[f64], line_end: usize, from: usize, h: usize, w: usize) -> f64 {
+    let start = line_end - w;
+    let tm = (start + line_end - 1) as f64 / 2.0;
+    let ys = &x[start..line_end];
+    let ym = ys.iter().sum::<f64>() / w as f64;
+    let stt: f64 = (start..line_end).map(|t| (t as f64 - tm).powi(2)).sum();
+    let slope = if stt > 0.0 {
+        (start..line_end).zip(ys).map(|(t, y)| (t as f64 - tm) * (y - ym)).sum::<f64>() / stt
+    } else {
+        0.0
+    };
+    (from..from + h).map(|t| x[t] - (ym + slope * (t as f64 - tm))).sum::<f64>() / h.max(1) as f64
 }

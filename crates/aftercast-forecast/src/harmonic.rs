@@ -95,14 +95,25 @@ fn column_names(spec: &HarmonicSpec, reg_names: &[String]) -> Vec<String> {
 /// # Errors
 /// [`ForecastError::TooShort`] when fewer observations than columns + 2 are observed;
 /// [`ForecastError::Singular`] when the penalised normal equations cannot be solved.
-pub fn fit(spec: &HarmonicSpec, y: &[f64], regs: &[Vec<f64>], reg_names: &[String], at: &str) -> ForecastResult<HarmonicFit> {
+pub fn fit(
+    spec: &HarmonicSpec,
+    y: &[f64],
+    regs: &[Vec<f64>],
+    reg_names: &[String],
+    at: &str,
+) -> ForecastResult<HarmonicFit> {
     let n_pre = y.len();
     let rows: Vec<usize> = (0..n_pre).filter(|&t| y[t].is_finite()).collect();
     let mut buf = Vec::new();
     raw_row(spec, 0, n_pre, regs, &mut buf);
     let p_raw = buf.len();
     if rows.len() < p_raw + 3 {
-        return Err(ForecastError::TooShort { model: "harmonic", needed: p_raw + 3, found: rows.len(), at: at.to_string() });
+        return Err(ForecastError::TooShort {
+            model: "harmonic",
+            needed: p_raw + 3,
+            found: rows.len(),
+            at: at.to_string(),
+        });
     }
     let mut raw = DMatrix::zeros(rows.len(), p_raw);
     for (i, &t) in rows.iter().enumerate() {
@@ -113,9 +124,8 @@ pub fn fit(spec: &HarmonicSpec, y: &[f64], regs: &[Vec<f64>], reg_names: &[Strin
     }
     let n = rows.len() as f64;
     let mean: Vec<f64> = (0..p_raw).map(|j| raw.column(j).sum() / n).collect();
-    let sd: Vec<f64> = (0..p_raw)
-        .map(|j| (raw.column(j).iter().map(|v| (v - mean[j]).powi(2)).sum::<f64>() / n).sqrt())
-        .collect();
+    let sd: Vec<f64> =
+        (0..p_raw).map(|j| (raw.column(j).iter().map(|v| (v - mean[j]).powi(2)).sum::<f64>() / n).sqrt()).collect();
     let mut x = DMatrix::zeros(rows.len(), p_raw + 1);
     for i in 0..rows.len() {
         x[(i, 0)] = 1.0;
@@ -128,7 +138,17 @@ pub fn fit(spec: &HarmonicSpec, y: &[f64], regs: &[Vec<f64>], reg_names: &[Strin
     let xty = x.transpose() * &yv;
     let pen_of = |lam: f64| -> Vec<f64> {
         // a zero column (constant regressor) gets a unit penalty so its coefficient is zero
-        (0..=p_raw).map(|j| if j == 0 { 0.0 } else if sd[j - 1] > 0.0 { lam } else { 1.0 }).collect()
+        (0..=p_raw)
+            .map(|j| {
+                if j == 0 {
+                    0.0
+                } else if sd[j - 1] > 0.0 {
+                    lam
+                } else {
+                    1.0
+                }
+            })
+            .collect()
     };
     let gcv = |lam: f64| -> Option<(f64, f64, DVector<f64>)> {
         let pen = pen_of(lam);
@@ -158,7 +178,8 @@ pub fn fit(spec: &HarmonicSpec, y: &[f64], regs: &[Vec<f64>], reg_names: &[Strin
             best.1
         }
     };
-    let (_, tr, b) = gcv(lambda).ok_or_else(|| ForecastError::Singular { what: "the harmonic-regression normal matrix".into() })?;
+    let (_, tr, b) =
+        gcv(lambda).ok_or_else(|| ForecastError::Singular { what: "the harmonic-regression normal matrix".into() })?;
     let fitted_obs = &x * &b;
     let residuals: Vec<f64> = (0..rows.len()).map(|i| yv[i] - fitted_obs[i]).collect();
     let mut fitted = vec![f64::NAN; n_pre];
@@ -171,7 +192,8 @@ pub fn fit(spec: &HarmonicSpec, y: &[f64], regs: &[Vec<f64>], reg_names: &[Strin
         Ok(bl) => bl.stationary.max(1.0),
         Err(e) => {
             let b = (rows.len() as f64).cbrt().max(1.0);
-            warnings.push(format!("harmonic regression: automatic block length unavailable ({e}); using n^(1/3) = {b:.1}"));
+            warnings
+                .push(format!("harmonic regression: automatic block length unavailable ({e}); using n^(1/3) = {b:.1}"));
             b
         }
     };
@@ -211,14 +233,23 @@ impl HarmonicFit {
     ///
     /// # Errors
     /// [`ForecastError::Singular`] if the penalised system cannot be factorised.
-    pub fn simulate(&self, regs: &[Vec<f64>], skip: usize, horizon: usize, draws: usize, seed: u64) -> ForecastResult<Vec<Vec<f64>>> {
+    pub fn simulate(
+        &self,
+        regs: &[Vec<f64>],
+        skip: usize,
+        horizon: usize,
+        draws: usize,
+        seed: u64,
+    ) -> ForecastResult<Vec<Vec<f64>>> {
         let d = &self.design;
         let p = self.beta.len();
         let mut a = d.x.transpose() * &d.x;
         for j in 1..p {
             a[(j, j)] += if d.sd[j - 1] > 0.0 { self.lambda } else { 1.0 };
         }
-        let chol = a.cholesky().ok_or_else(|| ForecastError::Singular { what: "the harmonic-regression normal matrix".into() })?;
+        let chol = a
+            .cholesky()
+            .ok_or_else(|| ForecastError::Singular { what: "the harmonic-regression normal matrix".into() })?;
         let beta = DVector::from_column_slice(&self.beta);
         let fitted_obs = &d.x * &beta;
         let mut buf = Vec::new();

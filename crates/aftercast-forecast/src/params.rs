@@ -113,7 +113,9 @@ impl Season {
         let is_int = (self.period - self.period.round()).abs() < 1e-9;
         match self.harmonics {
             None if is_int => SeasonKind::Dummy { period: self.period.round() as usize },
-            None => SeasonKind::Trig { period: self.period, harmonics: ((self.period / 2.0).floor() as usize).clamp(1, 4) },
+            None => {
+                SeasonKind::Trig { period: self.period, harmonics: ((self.period / 2.0).floor() as usize).clamp(1, 4) }
+            }
             Some(k) => SeasonKind::Trig { period: self.period, harmonics: k },
         }
     }

@@ -16,6 +16,15 @@ use serde::{Deserialize, Serialize};
 /// A variance at the lower edge is, in practice, zero (the component is deterministic).
 pub const LOG_VAR_SPAN: f64 = 30.0;
 
+/// A variance below this share of `scale` counts as zero: the component is treated as
+/// deterministic, listed in `at_lower_edge`, and gets no parameter uncertainty (the
+/// log-likelihood is flat in its log-variance, so the asymptotic normal says nothing).
+pub const ZERO_VARIANCE_RATIO: f64 = 1e-6;
+
+/// Guard on parameter draws: a drawn log-variance departs at most this far from the MLE
+/// (a factor of about 55 in the variance), and stays in the optimiser's box.
+pub const MAX_LOG_VAR_DEVIATION: f64 = 4.0;
+
 /// A fitted structural model.
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct StructuralFit {
@@ -32,7 +41,7 @@ pub struct StructuralFit {
     /// Asymptotic covariance of `theta` (inverse of the numerical Hessian of `-loglik`;
     /// directions with non-positive curvature get zero variance).
     pub theta_cov: Vec<Vec<f64>>,
-    /// Parameters whose log-variance sits at the lower edge (variance effectively zero).
+    /// Parameters whose variance is effectively zero (below [`ZERO_VARIANCE_RATIO`] x scale).
     pub at_lower_edge: Vec<String>,
     /// Number of observations that entered the likelihood.
     pub n_used: usize,
@@ -155,7 +164,7 @@ pub fn fit(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], start: Option<&[f64
         };
         let sub0: Vec<f64> = free.iter().map(|&i| theta[i]).collect();
         let hess = numerical_hessian(&g, &sub0, 1e-3);
-        let (inv, dropped) = sym_pinv(&hess, 1e-8);
+        let (inv, dropped) = sym_pinv(&hess, 1e-6);
         if dropped > 0 {
             warnings.push(format!(
                 "structural model: the likelihood is flat in {dropped} direction(s) at the maximum; parameter uncertainty is not propagated along them"
@@ -223,6 +232,9 @@ pub fn simulate(
     let spec = &fit.spec;
     let n_sets = if opts.parameter_uncertainty { opts.parameter_sets.clamp(1, opts.draws.max(1)) } else { 1 };
     let cov_root = cov_sqrt(&fit.theta_cov);
+    let ls = variance_scale(y).ln();
+    let (lo, hi) = (ls - LOG_VAR_SPAN, ls + 8.0);
+    let n_var = spec.n_params() - usize::from(spec.trend == Trend::DampedTrend);
     let theta_seed = child_seed(opts.seed, "structural-parameters");
     // one filter pass per parameter set: start state distribution after the fitting span
     struct Start {
@@ -236,7 +248,13 @@ pub fn simulate(
         } else {
             let k = fit.theta.len();
             let zs: Vec<f64> = (0..k).map(|_| rng.sample(StandardNormal)).collect();
-            (0..k).map(|r| fit.theta[r] + (0..k).map(|c| cov_root[r][c] * zs[c]).sum::<f64>()).collect()
+            (0..k)
+                .map(|r| {
+                    let dev = (0..k).map(|c| cov_root[r][c] * zs[c]).sum::<f64>();
+                    let v = fit.theta[r] + dev.clamp(-MAX_LOG_VAR_DEVIATION, MAX_LOG_VAR_DEVIATION);
+                    if r < n_var { v.clamp(lo, hi) } else { v }
+                })
+                .collect()
         };
         let p = spec.params_from_theta(&theta);
         let sys = spec.system(&p);

@@ -10,12 +10,14 @@
 //!   `P_inf -= M_inf M_inf' / F_inf`; the log-likelihood term is `-(log 2pi + log F_inf) / 2`;
 //! - if `F_inf = 0`: the usual update with `M_star`, `F_star`.
 //!
-//! The diffuse period ends when `P_inf` is zero (entries below [`DIFFUSE_TOL`]).
+//! The diffuse period ends when `P_inf` is zero: after as many updates with `F_inf > 0` as
+//! there are diffuse states (each lowers its rank by one), or when every entry is below
+//! [`DIFFUSE_TOL`]. `F_inf` counts as zero below `DIFFUSE_TOL * max|P_inf| * (1 + |Z|^2)`.
 
 use super::model::System;
 
 /// Absolute tolerance under which entries of `P_inf` count as zero, and relative tolerance
-/// (times `1 + |Z|^2`) under which `F_inf` counts as zero.
+/// (times `max|P_inf| (1 + |Z|^2)`) under which `F_inf` counts as zero.
 pub const DIFFUSE_TOL: f64 = 1e-9;
 
 /// What the filter keeps per period (only when asked; the likelihood alone needs none).
@@ -67,6 +69,10 @@ pub fn filter(sys: &System, y: &[f64], x: &[Vec<f64>], keep_trace: bool) -> Filt
     let mut pstar = sys.p_star0.clone();
     let mut pinf = sys.p_inf0.clone();
     let mut diffuse = pinf.iter().any(|v| *v != 0.0);
+    // each update with F_inf > 0 lowers the rank of P_inf by one: after as many updates as
+    // there are diffuse states, P_inf is zero in exact arithmetic
+    let rank0 = (0..m).filter(|&i| pinf[i * m + i] != 0.0).count();
+    let mut pinf_scale = 1.0_f64;
     let mut scratch = vec![0.0; m * m];
     let mut vscratch = vec![0.0; m];
     let mut m_inf = vec![0.0; m];
@@ -100,7 +106,7 @@ pub fn filter(sys: &System, y: &[f64], x: &[Vec<f64>], keep_trace: bool) -> Filt
                 *mi = z.iter().map(|&(i, v)| v * row[i]).sum();
             }
             f_inf = z.iter().map(|&(i, v)| v * m_inf[i]).sum();
-            if f_inf <= DIFFUSE_TOL * (1.0 + z2) {
+            if f_inf <= DIFFUSE_TOL * pinf_scale * (1.0 + z2) {
                 f_inf = 0.0;
             }
         }
@@ -165,7 +171,8 @@ pub fn filter(sys: &System, y: &[f64], x: &[Vec<f64>], keep_trace: bool) -> Filt
         }
         if diffuse {
             sys.transition_cov(&mut pinf, &mut scratch);
-            if pinf.iter().all(|v| v.abs() <= DIFFUSE_TOL) {
+            pinf_scale = pinf.iter().fold(0.0_f64, |a, v| a.max(v.abs())).max(1.0);
+            if n_diffuse >= rank0 || pinf.iter().all(|v| v.abs() <= DIFFUSE_TOL) {
                 diffuse = false;
                 pinf.fill(0.0);
             }
