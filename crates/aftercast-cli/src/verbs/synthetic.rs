@@ -1,0 +1,145 @@
+//! `aftercast synthetic`: synthetic control of treated units from a panel of donors.
+
+use crate::common::{Common, DataOptions, comma_list, parse_arg, read_table};
+use crate::failure::{bad_input, bad_input_msg};
+use aftercast_core::panel::{LongPanelSpec, Panel};
+use aftercast_synth::{Aggregation, Method, RunOptions, SynthParams};
+use std::path::PathBuf;
+
+/// Arguments of `synthetic` (flag names are the contract in ../shared/DESIGN.md).
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// Panel in long format (CSV, or Parquet by extension .parquet): one row per unit and period.
+    #[arg(long)]
+    pub data: PathBuf,
+    /// Unit column.
+    #[arg(long)]
+    pub unit: String,
+    /// Time column (ISO dates or integer periods).
+    #[arg(long)]
+    pub time: String,
+    /// Outcome column.
+    #[arg(long)]
+    pub outcome: String,
+    /// Treated unit(s), comma-separated.
+    #[arg(long)]
+    pub treated: String,
+    /// First period of the change (date or integer period, as in the time column).
+    #[arg(long)]
+    pub start: String,
+    /// Last period used (default: the end of the data).
+    #[arg(long)]
+    pub end: Option<String>,
+    /// Estimator: weights, predictors, intercept, ridge, sdid.
+    #[arg(long, default_value = "weights")]
+    pub method: String,
+    /// Covariate columns used as predictors (averaged over the pre-period), comma-separated.
+    #[arg(long, default_value = "")]
+    pub predictors: String,
+    /// Number of pre-period outcome block averages used as predictors.
+    #[arg(long, default_value_t = 3)]
+    pub outcome_blocks: usize,
+    /// Units left out of the donor pool, comma-separated.
+    #[arg(long, default_value = "")]
+    pub exclude: String,
+    /// Drop placebos whose pre-period RMSPE exceeds K times the treated unit's.
+    #[arg(long)]
+    pub placebo_exclude: Option<f64>,
+    /// Fixed ridge penalty for --method ridge (default: cross-validated).
+    #[arg(long)]
+    pub ridge_lambda: Option<f64>,
+    /// Column giving each unit's size: several treated units are averaged with their
+    /// pre-period mean of this column as weights (default: plain mean).
+    #[arg(long)]
+    pub size: Option<String>,
+    /// Skip conformal inference, placebo in time and leave-one-out.
+    #[arg(long)]
+    pub no_robustness: bool,
+    #[command(flatten)]
+    pub data_options: DataOptions,
+    #[command(flatten)]
+    pub common: Common,
+}
+
+/// Run the verb and return the result document plus a one-line headline for the terminal.
+///
+/// # Errors
+/// Bad input (exit 2) for unreadable data, unknown columns, units or options, too few donors or
+/// pre-periods, constant treated series; internal failures otherwise.
+pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
+    let table = read_table(&a.data)?;
+    let mut covariates = comma_list(&a.predictors);
+    if let Some(s) = &a.size {
+        if !covariates.contains(s) {
+            covariates.push(s.clone());
+        }
+    }
+    let spec = LongPanelSpec {
+        unit: a.unit.clone(),
+        time: a.time.clone(),
+        outcome: a.outcome.clone(),
+        covariates: covariates.clone(),
+        date_format: a.data_options.date_format(),
+    };
+    let panel = Panel::from_long(&table, &spec)?;
+    let treated = comma_list(&a.treated);
+    if treated.is_empty() {
+        return Err(bad_input_msg("--treated: name at least one treated unit"));
+    }
+    let start = panel.axis.parse_user_time("--start", &a.start)?;
+    let end = match &a.end {
+        Some(e) => Some(panel.axis.parse_user_time("--end", e)?),
+        None => None,
+    };
+    let method: Method = parse_arg("--method", &a.method)?;
+    let aggregate = match &a.size {
+        None => Aggregation::Mean,
+        Some(col) => {
+            let t0 = panel.axis.first_at_or_after(start).max(1);
+            let (_, m) = panel
+                .covariates
+                .iter()
+                .find(|(n, _)| n == col)
+                .ok_or_else(|| bad_input_msg(format!("--size: no column '{col}'")))?;
+            let mut sizes = Vec::with_capacity(treated.len());
+            for u in &treated {
+                let i = panel.unit_index(u, &a.unit)?;
+                sizes.push(m[i][..t0.min(m[i].len())].iter().sum::<f64>() / t0 as f64);
+            }
+            Aggregation::Weighted(sizes)
+        }
+    };
+    let predictors: Vec<String> = comma_list(&a.predictors);
+    let params = SynthParams::new()
+        .method(method)
+        .level(a.common.level)
+        .seed(a.common.seed)
+        .end(end)
+        .exclude(comma_list(&a.exclude))
+        .placebo_exclude_factor(a.placebo_exclude)
+        .predictors(predictors)
+        .predictor_outcome_blocks(a.outcome_blocks)
+        .ridge_lambda(a.ridge_lambda)
+        .aggregate(aggregate)
+        .sdid_placebo_reps(usize::try_from(a.common.draws).unwrap_or(usize::MAX).clamp(20, 500))
+        .check()
+        .map_err(bad_input)?;
+    let opts = RunOptions {
+        rope: a.common.rope,
+        threshold: a.common.threshold,
+        inputs: vec![table.info()],
+        robustness: !a.no_robustness,
+    };
+    let (fit, result) = aftercast_synth::run(&panel, &treated, start, &params, &opts).map_err(bad_input)?;
+    let headline = format!(
+        "effect on '{}' of {} from {} by synthetic control ({}; {} donors, {} with weight, pre-period RMSPE {:.4})",
+        a.outcome,
+        treated.join(", "),
+        a.start,
+        method.name(),
+        fit.donors.len(),
+        fit.units.iter().map(|u| u.nonzero_donors).max().unwrap_or(0),
+        fit.units.first().map(|u| u.pre_rmspe).unwrap_or(f64::NAN)
+    );
+    Ok(crate::verbs::Outcome { result, headline })
+}
