@@ -1,0 +1,270 @@
+//! The comparison table: every observational method against the experimental truth.
+//!
+//! Per method and setting (pool, or series): the point estimate, its interval (equal-tailed,
+//! at the options' level), `bias = estimate - truth`, `relative_bias = bias / truth`,
+//! `bias_in_truth_sd = bias / sd(truth draws)`, whether the method's interval covers the
+//! truth's point value, and whether its verdict word equals the experiment's.
+
+use crate::error::{CalibrateError, CalibrateResult};
+use crate::estimators::{MethodEstimate, UnitEstimator};
+use crate::history::HistoryRecord;
+use crate::options::DrawOptions;
+use crate::sample::{Pool, UnitCompareSpec, observational_sample};
+use crate::truth::{Metric, Truth, experiment_truth};
+use aftercast_core::result::{AnalysisResult, EffectBlock, EstimateRow, Summary, TOOL_VERSION, Verdict};
+use aftercast_core::table::InputInfo;
+use aftercast_core::units::UnitTable;
+use aftercast_resample::summary::scalar_effects;
+use serde::{Deserialize, Serialize};
+use serde_json::{Map, Value, json};
+
+/// The truth as the table needs it, for unit-level and series-level comparisons alike.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct TruthSummary {
+    /// What the truth is ("difference in means of re78", ...).
+    pub label: String,
+    /// The truth's point value.
+    pub point: f64,
+    /// Summary of its draws.
+    pub summary: Summary,
+    /// Effect block.
+    pub effect: EffectBlock,
+    /// Verdict.
+    pub verdict: Verdict,
+    /// Further numbers (arm values, counts, allocation).
+    pub details: Map<String, Value>,
+}
+
+impl From<&Truth> for TruthSummary {
+    fn from(t: &Truth) -> Self {
+        let mut details = Map::new();
+        details.insert("treated_value".into(), json!(t.treated_value));
+        details.insert("control_value".into(), json!(t.control_value));
+        details.insert("n_treated".into(), json!(t.n_treated));
+        details.insert("n_control".into(), json!(t.n_control));
+        let label = match &t.metric {
+            Metric::Mean { outcome } => format!("difference in means of {outcome}"),
+            Metric::Ratio { numerator, denominator } => format!("difference in {numerator}/{denominator}"),
+        };
+        TruthSummary { label, point: t.point, summary: t.summary, effect: t.effect.clone(), verdict: t.verdict, details }
+    }
+}
+
+/// One row of the comparison table.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct ComparisonRow {
+    /// Method.
+    pub method: String,
+    /// Setting (pool name, series).
+    pub setting: String,
+    /// Estimand the method targets.
+    pub estimand: String,
+    /// Point estimate.
+    pub estimate: f64,
+    /// Summary of the method's draws.
+    pub summary: Summary,
+    /// Estimate minus truth.
+    pub bias: f64,
+    /// Bias divided by the truth (NaN when the truth is 0).
+    pub relative_bias: f64,
+    /// Bias divided by the sd of the truth's draws.
+    pub bias_in_truth_sd: f64,
+    /// Whether the equal-tailed interval `[summary.lower, summary.upper]` holds the truth.
+    pub covers_truth: bool,
+    /// The method's verdict.
+    pub verdict: Verdict,
+    /// Whether it equals the experiment's verdict.
+    pub verdict_agrees: bool,
+    /// Method-specific numbers.
+    pub diagnostics: Map<String, Value>,
+    /// Warnings of the method.
+    pub warnings: Vec<String>,
+}
+
+impl ComparisonRow {
+    /// Build a row from a method's draws. `n_treated` scales the cumulative effect.
+    pub fn new(
+        method: &str,
+        setting: &str,
+        est: MethodEstimate,
+        truth: &TruthSummary,
+        n_treated: Option<usize>,
+        opts: &DrawOptions,
+    ) -> Self {
+        let (effect, verdict) =
+            scalar_effects(&est.draws, est.baseline.as_deref(), n_treated, opts.level, &opts.rope, opts.threshold);
+        let summary = effect.average;
+        let bias = est.point - truth.point;
+        ComparisonRow {
+            method: method.into(),
+            setting: setting.into(),
+            estimand: est.estimand,
+            estimate: est.point,
+            summary,
+            bias,
+            relative_bias: if truth.point != 0.0 { bias / truth.point } else { f64::NAN },
+            bias_in_truth_sd: if truth.summary.sd > 0.0 { bias / truth.summary.sd } else { f64::NAN },
+            covers_truth: summary.lower <= truth.point && truth.point <= summary.upper,
+            verdict,
+            verdict_agrees: verdict == truth.verdict,
+            diagnostics: est.diagnostics,
+            warnings: est.warnings,
+        }
+    }
+
+    /// The row in the shared result's form (`extra` holds every further field).
+    pub fn to_estimate_row(&self) -> EstimateRow {
+        let mut extra = Map::new();
+        let num = |v: f64| if v.is_finite() { json!(v) } else { Value::Null };
+        extra.insert("setting".into(), json!(self.setting));
+        extra.insert("estimand".into(), json!(self.estimand));
+        extra.insert("estimate".into(), num(self.estimate));
+        extra.insert("relative_bias".into(), num(self.relative_bias));
+        extra.insert("bias_in_truth_sd".into(), num(self.bias_in_truth_sd));
+        extra.insert("verdict".into(), json!(self.verdict.word()));
+        extra.insert("verdict_agrees".into(), json!(self.verdict_agrees));
+        extra.insert("diagnostics".into(), Value::Object(self.diagnostics.clone()));
+        if !self.warnings.is_empty() {
+            extra.insert("warnings".into(), json!(self.warnings));
+        }
+        EstimateRow { method: self.method.clone(), summary: self.summary, bias: self.bias, covers_truth: self.covers_truth, extra }
+    }
+}
+
+/// A method that could not run on a setting (the table goes on without it).
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct MethodFailure {
+    /// Method.
+    pub method: String,
+    /// Setting.
+    pub setting: String,
+    /// The error, as text.
+    pub message: String,
+}
+
+/// A finished comparison.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct Comparison {
+    /// The truth.
+    pub truth: TruthSummary,
+    /// One row per method and setting.
+    pub rows: Vec<ComparisonRow>,
+    /// Methods that failed.
+    pub failures: Vec<MethodFailure>,
+    /// Options used.
+    pub options: DrawOptions,
+    /// Input files.
+    pub inputs: Vec<InputInfo>,
+    /// Plain-language warnings.
+    pub warnings: Vec<String>,
+    /// "units" or "series".
+    pub kind: String,
+}
+
+impl Comparison {
+    /// One history record per row.
+    pub fn history_records(&self) -> Vec<HistoryRecord> {
+        self.rows
+            .iter()
+            .map(|r| HistoryRecord {
+                method: r.method.clone(),
+                setting: r.setting.clone(),
+                metric: self.truth.label.clone(),
+                truth: self.truth.point,
+                estimate: r.estimate,
+                lower: r.summary.lower,
+                upper: r.summary.upper,
+                level: self.options.level,
+            })
+            .collect()
+    }
+
+    /// The shared JSON document of the `compare` verb: the truth's effect and verdict on top,
+    /// `truth`, and one `estimates` row per method.
+    pub fn to_result(&self) -> AnalysisResult {
+        let mut diagnostics = Map::new();
+        diagnostics.insert("kind".into(), json!(self.kind));
+        diagnostics.insert("truth_label".into(), json!(self.truth.label));
+        diagnostics.insert("truth_point".into(), json!(self.truth.point));
+        diagnostics.insert("truth_details".into(), Value::Object(self.truth.details.clone()));
+        diagnostics.insert("interval".into(), json!("equal-tailed, at the stated level"));
+        if !self.failures.is_empty() {
+            diagnostics.insert("failed_methods".into(), serde_json::to_value(&self.failures).unwrap_or_default());
+        }
+        let mut warnings = self.warnings.clone();
+        for f in &self.failures {
+            warnings.push(format!("{} could not run on {}: {}", f.method, f.setting, f.message));
+        }
+        AnalysisResult {
+            tool_version: TOOL_VERSION.to_string(),
+            verb: "compare".into(),
+            method: "experiment".into(),
+            level: self.options.level,
+            seed: self.options.seed,
+            inputs: self.inputs.clone(),
+            estimand: Some(if self.kind == "units" { "ATT".into() } else { "effect on the treated arm".into() }),
+            effect: self.truth.effect.clone(),
+            verdict: self.truth.verdict,
+            rope: self.options.rope,
+            diagnostics,
+            warnings,
+            path: None,
+            weights: None,
+            placebo: None,
+            balance: None,
+            sample: None,
+            truth: Some(self.truth.summary),
+            estimates: Some(self.rows.iter().map(ComparisonRow::to_estimate_row).collect()),
+            assumptions: vec![
+                "The experiment's arms were randomized, so their difference is the effect on the treated arm.".into(),
+                "The pools describe the same kind of units as the experiment and none of them received the change.".into(),
+                "Each observational method is judged by how far its answer lands from the experiment's, on this experiment only.".into(),
+            ],
+            extra: Map::new(),
+        }
+    }
+}
+
+/// Compare every method on every pool against the experiment's truth.
+///
+/// The truth is the arm difference of `spec.outcome` in `experiment`; each method sees the
+/// experiment's treated arm plus one pool as untreated units.
+///
+/// # Errors
+/// Errors of the truth ([`experiment_truth`]) and of building the samples. A method that fails
+/// on a pool does not stop the comparison: it is listed in [`Comparison::failures`].
+pub fn compare_units(
+    experiment: &UnitTable,
+    pools: &[Pool],
+    spec: &UnitCompareSpec,
+    methods: &[&dyn UnitEstimator],
+    opts: &DrawOptions,
+) -> CalibrateResult<Comparison> {
+    opts.check()?;
+    if pools.is_empty() {
+        return Err(CalibrateError::BadParameter { name: "--pool", value: String::new(), detail: "at least one pool".into() });
+    }
+    let truth = experiment_truth(experiment, &Metric::Mean { outcome: spec.outcome.clone() }, opts)?;
+    let ts = TruthSummary::from(&truth);
+    let mut rows = Vec::new();
+    let mut failures = Vec::new();
+    let mut inputs = vec![experiment.input.clone()];
+    let mut warnings = Vec::new();
+    if experiment.dropped_rows > 0 {
+        warnings.push(format!("{} experiment rows with empty cells were dropped", experiment.dropped_rows));
+    }
+    for pool in pools {
+        inputs.push(pool.input.clone());
+        if pool.dropped_rows > 0 {
+            warnings.push(format!("{} rows of pool {} with empty cells were dropped", pool.dropped_rows, pool.name));
+        }
+        let sample = observational_sample(experiment, pool, &spec.outcome)?;
+        for m in methods {
+            match m.estimate(&sample, &spec.outcome, &spec.covariates, opts) {
+                Ok(est) => rows.push(ComparisonRow::new(&m.name(), &pool.name, est, &ts, Some(truth.n_treated), opts)),
+                Err(e) => failures.push(MethodFailure { method: m.name(), setting: pool.name.clone(), message: format!("{e}") }),
+            }
+        }
+    }
+    Ok(Comparison { truth: ts, rows, failures, options: *opts, inputs, warnings, kind: "units".into() })
+}
