@@ -2,18 +2,22 @@
 //! non-experimental pool): one customer model shared by all three files.
 //!
 //! Customer model (per customer, in this order): sales area and age band (categorical),
-//! `tenure_months = 1 + floor(Gamma(1.5, mean 30 s))` capped at 240, a hidden engagement
-//! `g ~ Normal(shift + age effect + 0.003 (tenure - 30), 0.8)`, `visits_pre ~ Poisson(exp(0.6 + g))`,
+//! `tenure_months = 1 + floor(Gamma(1.5, mean 30))` capped at 240, a hidden engagement
+//! `g ~ Normal(age effect + 0.003 (tenure - 30), 0.8)`, `visits_pre ~ Poisson(exp(0.6 + g))`,
 //! `spend_pre` zero with probability `1 - logistic(-0.5 + 1.1 g + 0.5 ln(1 + visits_pre))`,
 //! else `Gamma(1.6, mean 45 exp(0.5 g))`. The 90-day spend without treatment is zero with
 //! probability `1 - logistic(-0.7 + 0.9 g + 0.25 ln(1 + spend_pre) + 0.15 ln(1 + visits_pre))`,
 //! else `Gamma(1.8, mean 40 exp(0.45 g + 0.12 ln(1 + spend_pre)) area age)`.
 //!
 //! Treatment assignment depends only on written covariates and independent noise, so
-//! adjustment for the written covariates identifies the effect (no hidden confounding):
-//! - loyalty: `P(join) = logistic(-2.9 + 0.35 ln(1 + spend_pre) + 0.30 ln(1 + visits_pre)
-//!   + 0.006 tenure + age + area)`;
-//! - past test: exactly half of the experiment's customers, by a random permutation.
+//! adjustment for the written covariates identifies the effect (no hidden confounding), and a
+//! propensity model logistic-linear in the written covariates is correctly specified:
+//! - loyalty: `logit P(join) = -2.3 + 0.5 spend_pre / 100 + 0.06 visits_pre + 0.006 tenure
+//!   + age + area` (the `JOIN_*`, `AGE_JOIN`, `AREA_JOIN` constants);
+//! - past test: the test customers were drawn from the same customer base as the pool, each
+//!   kept with `logit P(kept) = 0.3 - 0.8 spend_pre / 100 - 0.25 visits_pre` (lapsing
+//!   customers), then split in half by a random permutation. The pool is a plain sample of the
+//!   base, so given the covariates both files share one outcome model.
 //!
 //! Individual effects are heterogeneous and never negative: `0.06 y0 + 2` for a customer who
 //! would have spent `y0 > 0`, and for a customer who would have spent nothing a Gamma(2, mean 25)
@@ -40,6 +44,21 @@ const AGE_JOIN: [f64; 6] = [-0.3, 0.1, 0.2, 0.1, 0.0, -0.2];
 const AREA_JOIN: [f64; 8] = [0.1, -0.1, 0.0, 0.2, 0.3, -0.2, -0.1, -0.3];
 const AREA_SPEND: [f64; 8] = [0.05, -0.05, 0.0, 0.08, 0.12, -0.08, -0.03, -0.10];
 const AGE_SPEND: [f64; 6] = [-0.15, 0.0, 0.08, 0.10, 0.05, -0.05];
+
+/// Logit of joining the loyalty scheme: intercept.
+pub const JOIN_INTERCEPT: f64 = -2.3;
+/// Logit of joining: per $100 of `spend_pre`.
+pub const JOIN_PER_100_DOLLARS: f64 = 0.5;
+/// Logit of joining: per visit in `visits_pre`.
+pub const JOIN_PER_VISIT: f64 = 0.06;
+/// Logit of joining: per month of tenure.
+pub const JOIN_PER_MONTH: f64 = 0.006;
+/// Logit of a base customer being kept for the past test (a lapsing customer): intercept.
+pub const LAPSING_INTERCEPT: f64 = 0.3;
+/// Logit of being in the past test: per $100 of `spend_pre`.
+pub const LAPSING_PER_100_DOLLARS: f64 = -0.8;
+/// Logit of being in the past test: per visit.
+pub const LAPSING_PER_VISIT: f64 = -0.25;
 
 /// The true sample ATT of the loyalty scheme in `members.csv` (dollars).
 pub const LOYALTY_ATT_CENTS: i64 = 600;
@@ -130,11 +149,6 @@ pub struct PastTestData {
     pub truth: PastTestTruth,
 }
 
-struct Profile {
-    engagement_shift: f64,
-    tenure_scale: f64,
-}
-
 struct Customer {
     area: usize,
     age: usize,
@@ -144,11 +158,11 @@ struct Customer {
     engagement: f64,
 }
 
-fn draw_customer(rng: &mut Stream, p: &Profile) -> anyhow::Result<Customer> {
+fn draw_customer(rng: &mut Stream) -> anyhow::Result<Customer> {
     let area = categorical(rng, &AREA_WEIGHTS);
     let age = categorical(rng, &AGE_WEIGHTS);
-    let tenure = (1.0 + gamma_mean(rng, 1.5, 30.0 * p.tenure_scale)?.floor()).min(240.0) as u32;
-    let engagement = p.engagement_shift + AGE_ENGAGEMENT[age] + 0.003 * (tenure as f64 - 30.0) + 0.8 * std_normal(rng);
+    let tenure = (1.0 + gamma_mean(rng, 1.5, 30.0)?.floor()).min(240.0) as u32;
+    let engagement = AGE_ENGAGEMENT[age] + 0.003 * (tenure as f64 - 30.0) + 0.8 * std_normal(rng);
     let visits_pre = poisson(rng, (0.6 + engagement).exp())?;
     let p_spend = logistic(-0.5 + 1.1 * engagement + 0.5 * (visits_pre as f64).ln_1p());
     let buys = bernoulli(rng, p_spend);
@@ -225,17 +239,16 @@ fn mean_cents(v: impl Iterator<Item = i64>) -> f64 {
 pub fn generate_members(seed: u64, stream: u64) -> anyhow::Result<MembersData> {
     let mut rng = Stream::new(seed, stream);
     let n = 50_000;
-    let profile = Profile { engagement_shift: 0.0, tenure_scale: 1.0 };
     let mut cust = Vec::with_capacity(n);
     let mut joined = Vec::with_capacity(n);
     let mut y0 = Vec::with_capacity(n);
     let mut raw = Vec::with_capacity(n);
     for _ in 0..n {
-        let c = draw_customer(&mut rng, &profile)?;
-        let idx = -2.9
-            + 0.35 * (c.spend_pre as f64 / 100.0).ln_1p()
-            + 0.30 * (c.visits_pre as f64).ln_1p()
-            + 0.006 * c.tenure as f64
+        let c = draw_customer(&mut rng)?;
+        let idx = JOIN_INTERCEPT
+            + JOIN_PER_100_DOLLARS * c.spend_pre as f64 / 10_000.0
+            + JOIN_PER_VISIT * c.visits_pre as f64
+            + JOIN_PER_MONTH * c.tenure as f64
             + AGE_JOIN[c.age]
             + AREA_JOIN[c.area];
         joined.push(bernoulli(&mut rng, logistic(idx)));
@@ -286,18 +299,24 @@ pub fn generate_past_test(seed: u64, stream: u64) -> anyhow::Result<PastTestData
     let mut rng = Stream::new(seed, stream);
     let n = 12_000;
     let n_pool = 20_000;
-    // The test targeted lapsing customers: lower engagement, longer tenure.
-    let lapsing = Profile { engagement_shift: -0.5, tenure_scale: 1.4 };
-    let base = Profile { engagement_shift: 0.2, tenure_scale: 1.0 };
+    // Both files come from the same customer base; the test took lapsing customers, chosen
+    // at random with a probability that falls with written past spend and visits only.
     let mut cust = Vec::with_capacity(n);
     let mut y0 = Vec::with_capacity(n);
     let mut raw = Vec::with_capacity(n);
-    for _ in 0..n {
-        let c = draw_customer(&mut rng, &lapsing)?;
+    while cust.len() < n {
+        let c = draw_customer(&mut rng)?;
+        let logit = LAPSING_INTERCEPT
+            + LAPSING_PER_100_DOLLARS * c.spend_pre as f64 / 10_000.0
+            + LAPSING_PER_VISIT * c.visits_pre as f64;
+        let selected = bernoulli(&mut rng, logistic(logit));
         let y = draw_untreated_spend(&mut rng, &c)?;
-        raw.push(draw_raw_effect(&mut rng, y, 0.04, 1.5, 0.06, 20.0)?);
-        y0.push(y);
-        cust.push(c);
+        let r = draw_raw_effect(&mut rng, y, 0.04, 1.5, 0.06, 20.0)?;
+        if selected {
+            raw.push(r);
+            y0.push(y);
+            cust.push(c);
+        }
     }
     // Complete randomization: a random permutation, first half treated.
     let mut perm: Vec<usize> = (0..n).collect();
@@ -339,7 +358,7 @@ pub fn generate_past_test(seed: u64, stream: u64) -> anyhow::Result<PastTestData
     pool_csv.push('\n');
     let mut pool_y = Vec::with_capacity(n_pool);
     for i in 0..n_pool {
-        let c = draw_customer(&mut rng, &base)?;
+        let c = draw_customer(&mut rng)?;
         let y = draw_untreated_spend(&mut rng, &c)?;
         pool_y.push(y);
         pool_csv.push_str(&row(&format!("P{:06}", i + 1), "control", &c, y));

@@ -7,18 +7,18 @@
 //! a customer visited and ordered in the 56 days before the reference time, the likelier.
 //!
 //! Model per customer: hidden activity `z1, z2, z3 ~ Normal(0, 1)`; visits per day
-//! `0.13 exp(0.7 z1)`, orders per day `0.035 exp(0.5 z1 + 0.4 z2)`, order values
+//! `0.06 exp(0.7 z1)`, orders per day `0.035 exp(0.5 z1 + 0.4 z2)`, order values
 //! `Gamma(2.5, mean 55 exp(0.3 z3))`; a weekly cycle and a time-of-day profile; each order is
-//! refunded in full with probability 0.06 one to 21 days later. Exposure: probability
-//! `logistic(-2.4 + 0.45 ln(1 + visits) + 0.25 ln(1 + order value))` of the customer's visit
-//! count and order value (dollars) in `[reference - 56 days, reference)`; exposed at a
-//! uniform second in `[09:00, 10:00)` that day.
+//! refunded in full with probability 0.06 one to 21 days later. Exposure: `logit P = -1.5
+//! + 0.08 visits + 0.25 order value / 100` of the customer's visit count and order value
+//! (dollars) in `[reference - 56 days, reference)`; exposed at a uniform second in
+//! `[09:00, 10:00)` that day.
 //!
-//! Effect: from its exposure time on, an exposed customer places extra orders at 15% of its own
+//! Effect: from its exposure time on, an exposed customer places extra orders at 18% of its own
 //! order rate and makes extra visits at 10% of its own visit rate. The extra orders' values are
 //! scaled by one common factor (and a few cents moved) so that the exposed customers' extra
 //! order value in the forward window `[exposed_at, exposed_at + 28 days)` averages exactly
-//! $12.00: the true ATT on the 28-day order-value sum.
+//! $15.00: the true ATT on the 28-day order-value sum.
 
 use serde::Serialize;
 
@@ -29,13 +29,19 @@ use super::util::{
 use aftercast_resample::rng::Stream;
 
 /// Customers in the log.
-pub const CUSTOMERS: usize = 5_000;
+pub const CUSTOMERS: usize = 8_000;
 /// Days in the pre-period window.
 pub const PRE_DAYS: i64 = 56;
 /// Days in the forward outcome window.
 pub const FORWARD_DAYS: i64 = 28;
+/// Logit of being exposed: intercept.
+pub const EXPOSURE_INTERCEPT: f64 = -1.5;
+/// Logit of being exposed: per visit in the 56 days before the reference time.
+pub const EXPOSURE_PER_VISIT: f64 = 0.08;
+/// Logit of being exposed: per $100 of order value in those 56 days.
+pub const EXPOSURE_PER_100_DOLLARS: f64 = 0.25;
 /// True ATT on the 28-day order value sum, in cents.
-pub const ATT_CENTS: i64 = 1_200;
+pub const ATT_CENTS: i64 = 1_500;
 
 /// Truth of the Trail Planner exposure.
 #[derive(Debug, Clone, Serialize)]
@@ -59,7 +65,7 @@ pub struct ExposureTruth {
     /// The outcome the truth is stated for.
     pub outcome: String,
     /// Mean over exposed customers of (written 28-day order value minus the value without
-    /// exposure): exactly 12.00.
+    /// exposure): exactly 15.00.
     pub sample_att_order_value: f64,
     /// Mean over exposed customers of the extra orders in their forward window.
     pub sample_att_order_count: f64,
@@ -148,7 +154,7 @@ pub fn generate(seed: u64, stream: u64) -> anyhow::Result<EventsData> {
         let z1 = std_normal(&mut rng);
         let z2 = std_normal(&mut rng);
         let z3 = std_normal(&mut rng);
-        let visit_rate = 0.13 * (0.7 * z1).exp();
+        let visit_rate = 0.06 * (0.7 * z1).exp();
         let order_rate = 0.035 * (0.5 * z1 + 0.4 * z2).exp();
         let value_mean = 55.0 * (0.3 * z3).exp();
 
@@ -184,7 +190,11 @@ pub fn generate(seed: u64, stream: u64) -> anyhow::Result<EventsData> {
             }
         }
 
-        let p = logistic(-2.4 + 0.45 * (pre_visits as f64).ln_1p() + 0.25 * (pre_value as f64 / 100.0).ln_1p());
+        let p = logistic(
+            EXPOSURE_INTERCEPT
+                + EXPOSURE_PER_VISIT * pre_visits as f64
+                + EXPOSURE_PER_100_DOLLARS * pre_value as f64 / 10_000.0,
+        );
         let exposed = bernoulli(&mut rng, p);
         let t0 = reference + ((uniform(&mut rng) * 3600.0) as i64).min(3599);
         if !exposed {
@@ -201,7 +211,7 @@ pub fn generate(seed: u64, stream: u64) -> anyhow::Result<EventsData> {
                     events.push(Event { ts, customer: c, metric: Metric::Visit, value: 1, extra_order: None });
                 }
             }
-            for _ in 0..poisson(&mut rng, 0.15 * order_rate * w)? {
+            for _ in 0..poisson(&mut rng, 0.18 * order_rate * w)? {
                 let ts = time_in_day(&mut rng, day_start);
                 let raw = gamma_mean(&mut rng, 2.5, value_mean)?;
                 let refunded = bernoulli(&mut rng, 0.06);

@@ -44,7 +44,8 @@ pub fn render(t: &ScenarioTruth) -> String {
     line("The true effect of every change is known and stated below, so each analysis of the demo");
     line("can be checked against the truth.");
     line("");
-    line("Regenerate (writes these files, byte for byte, then runs the demo analyses):");
+    line("Regenerate: `aftercast demo --out DIR` writes these files, byte for byte, into `DIR/data/`");
+    line("(with the true effects as JSON in `DIR/truth.json`), then runs the demo analyses:");
     line("");
     line("```");
     line("aftercast demo --out DIR");
@@ -52,9 +53,10 @@ pub fn render(t: &ScenarioTruth) -> String {
     line("");
     line("The generator is `crates/aftercast-cli/src/demo/` (one module per file family; this");
     line("README is written by `readme.rs` from the generated truth). The test");
-    line("`crates/aftercast-cli/tests/demo_data.rs` regenerates everything into a temporary folder,");
+    line("`crates/aftercast-cli/tests/demo_data.rs` regenerates everything into a scratch folder,");
     line("checks that the bytes equal the files committed here, and re-computes each true effect");
-    line("from the files.");
+    line("from the files. After changing the generator, refresh this folder with");
+    line("`AFTERCAST_REGENERATE_DEMO_DATA=1 cargo test -p aftercast-cli --test demo_data` and commit it.");
     line("");
     line("## Seeds");
     line("");
@@ -227,9 +229,10 @@ pub fn render(t: &ScenarioTruth) -> String {
     line("- `spend_90d`: spend in the 90 days after (the outcome; dollars; often 0).");
     line("");
     line("How it is made: a hidden engagement drives past visits and spend and the future spend.");
-    line("Joining is self-selected: its probability is logistic in ln(1 + spend_pre), ln(1 +");
-    line("visits_pre), tenure, age band and area only (plus independent chance), so the written");
-    line("covariates are enough to remove the confounding, but only if they are used.");
+    line("Joining is self-selected: `logit P(join) = -2.3 + 0.5 spend_pre / 100 + 0.06 visits_pre");
+    line("+ 0.006 tenure_months` + an age-band and an area term, plus independent chance. It depends");
+    line("on the written covariates only, so they are enough to remove the confounding, but only if");
+    line("they are used; a propensity model logistic-linear in them is correctly specified.");
     line(&format!("{:.1}% of customers spend nothing in the outcome window.", 100.0 * l.zero_spend_share));
     line("");
     line(&format!(
@@ -270,9 +273,14 @@ pub fn render(t: &ScenarioTruth) -> String {
     line("  covariates and outcome as `members.csv`: `spend_pre`, `visits_pre`, `tenure_months`,");
     line("  `region`, `age_band`, `spend_90d`.");
     line("- `past_test/pool.csv`: the same columns for customers outside the test (`P000001` ...),");
-    line("  who never got the offer; their `arm` is `control` on every row. They are the general");
-    line("  customer base: more engaged, heavier spenders, shorter tenure than the lapsing test");
-    line("  customers. Their spend follows the same model given the covariates.");
+    line("  who never got the offer; their `arm` is `control` on every row.");
+    line("");
+    line("How it is made: test customers and pool customers come from the same customer base. The");
+    line("test kept lapsing customers: each base customer was kept with `logit P = 0.3 - 0.8");
+    line("spend_pre / 100 - 0.25 visits_pre`, then the kept customers were split in half at random.");
+    line("The pool is a plain sample of the base, so it spends and visits far more than the test");
+    line("customers, but given the covariates both files follow one outcome model: adjusting for");
+    line("`spend_pre` and `visits_pre` removes the difference.");
     line("");
     line(&format!(
         "**True effect.** {} customers in the test ({} treated, {} control); pool of {}.",
@@ -332,22 +340,22 @@ pub fn render(t: &ScenarioTruth) -> String {
     line("");
     line("How it is made: each customer has hidden visit and order rates and a typical order value;");
     line("events follow a weekly cycle and a time-of-day profile; 6% of orders are refunded in full");
-    line("1 to 21 days later. The opt-in probability is logistic in ln(1 + visits) and ln(1 + order");
-    line("value) over the 56 days before the reference time, so those pre-period windows remove the");
-    line("confounding.");
+    line("1 to 21 days later. The opt-in probability is `logit P = -1.5 + 0.08 visits + 0.25 order");
+    line("value / 100`, counted over the 56 days before the reference time, so those pre-period");
+    line("windows remove the confounding.");
     line("");
     line(&format!(
         "**True effect.** {} of {} customers were exposed. From its exposure on, an exposed",
         e.n_exposed, e.n_customers
     ));
-    line("customer places extra orders (15% of its own order rate) and makes 10% more visits. The");
+    line("customer places extra orders (18% of its own order rate) and makes 10% more visits. The");
     line("true effect is the *sample ATT* on the 28-day order value: the mean over exposed customers");
     line(&format!(
         "of their extra order value in `[exposed_at, exposed_at + 28d)` = **{}** exactly (the",
         money(e.sample_att_order_value)
     ));
     line(&format!(
-        "extra orders' values were scaled by {:.4} and rounded so that it is exactly $12.00); that",
+        "extra orders' values were scaled by {:.4} and rounded so that it is exactly $15.00); that",
         e.extra_value_scale
     ));
     line(&format!(
