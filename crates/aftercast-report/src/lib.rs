@@ -2,6 +2,7 @@
 //! Charts and the HTML report build on the same [`AnalysisResult`].
 
 pub mod charts;
+pub mod html;
 
 use aftercast_core::result::{AnalysisResult, RopeUnits, Summary};
 use std::io::Write;

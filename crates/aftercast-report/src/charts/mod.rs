@@ -193,7 +193,6 @@ pub(crate) struct PosteriorPlot {
     /// Histogram of the draws: edges (bins + 1) and shares per bin; None = summary only.
     pub histogram: Option<(Vec<f64>, Vec<f64>)>,
     pub summary: Summary,
-    pub level: f64,
     pub rope: Option<(f64, f64)>,
     pub x_label: String,
     pub x_format: ValueFormat,
@@ -842,7 +841,6 @@ pub fn posterior_chart(
         Body::Posterior(PosteriorPlot {
             histogram,
             summary: *summary,
-            level,
             rope,
             x_label: quantity.to_string(),
             x_format: format,

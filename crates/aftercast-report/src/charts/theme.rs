@@ -79,7 +79,7 @@ fn decimals_for(span: f64) -> usize {
         return 2;
     }
     let step = span / 5.0;
-    (1.0 - step.log10().floor()).clamp(0.0, 6.0) as usize
+    if step >= 1.0 { 0 } else { (1.0 - step.log10().floor()).clamp(0.0, 6.0) as usize }
 }
 
 /// Format a tick value on an axis spanning `span`.

@@ -1,0 +1,928 @@
+//! The self-contained HTML report: one file with inline CSS and inline SVG charts, no external
+//! requests, readable on a phone and in print. The markup is XHTML-compatible (every element
+//! closed, attributes quoted) so that it parses as XML as well as HTML5.
+//!
+//! Sections, in order (each a `<section id=...>`): `question`, `data`, one `analysis-<stem>` per
+//! analysis, `triangulation`, `caution`, `reproduce`.
+
+use crate::charts::{self, ChartExtras, EstimateBar, theme::ValueFormat};
+use crate::{CAUTION, ReportError, fmt_pct, fmt_signed, write_atomic};
+use aftercast_core::result::{AnalysisResult, RopeUnits, Summary, Verdict};
+use serde_json::Value;
+use std::fmt::Write as _;
+use std::path::Path;
+
+/// One analysis of a report.
+#[derive(Debug, Clone)]
+pub struct ReportAnalysis {
+    /// Heading, e.g. "Forecast of weekly active users (structural model)".
+    pub label: String,
+    /// Key of the question it answers; analyses sharing a key are triangulated.
+    pub question: Option<String>,
+    /// Its result document.
+    pub result: AnalysisResult,
+    /// Data for charts beyond the result (draws, placebo gaps, backtest grids).
+    pub extras: ChartExtras,
+    /// Short identifier: chart file stem and section id (letters, digits, `-`, `_`).
+    pub stem: String,
+}
+
+/// The study file a run was made from.
+#[derive(Debug, Clone)]
+pub struct StudyFile {
+    /// Its path as given on the command line.
+    pub path: String,
+    /// Its text.
+    pub contents: String,
+}
+
+/// Everything the report shows.
+#[derive(Debug, Clone)]
+pub struct ReportInput {
+    /// Title of the page.
+    pub title: String,
+    /// The question in the analyst's words.
+    pub question: String,
+    /// The analyses, in the order they are shown.
+    pub analyses: Vec<ReportAnalysis>,
+    /// The exact command that reproduces the report.
+    pub command: String,
+    /// The study file, when the run came from one.
+    pub study_file: Option<StudyFile>,
+}
+
+/// How the estimates of several methods relate (see docs/report.md for the definitions).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Agreement {
+    /// All intervals share a common range and all verdict words are the same.
+    Agree,
+    /// All intervals share a common range, the verdict words differ, but none says "up"
+    /// (gain, gain-but-small) while another says "down" (loss, loss-but-small).
+    Compatible,
+    /// No range is common to all intervals, or one verdict says up and another down.
+    Disagree,
+    /// Fewer than two finite intervals: nothing to compare.
+    Undetermined,
+}
+
+impl Agreement {
+    /// The word as printed.
+    pub fn word(self) -> &'static str {
+        match self {
+            Agreement::Agree => "agree",
+            Agreement::Compatible => "compatible",
+            Agreement::Disagree => "disagree",
+            Agreement::Undetermined => "undetermined",
+        }
+    }
+}
+
+/// Which effect the methods are compared on.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Quantity {
+    /// The relative effect (every analysis has one): comparable across series and unit methods.
+    Relative,
+    /// The average effect in outcome units (per period or per unit).
+    Average,
+}
+
+/// The comparison of the analyses that answer one question.
+#[derive(Debug, Clone)]
+pub struct Triangulation {
+    /// The question key.
+    pub question: String,
+    /// The quantity compared.
+    pub quantity: Quantity,
+    /// (label, summary, verdict) per analysis.
+    pub rows: Vec<(String, Summary, Verdict)>,
+    /// The range common to all intervals, if any.
+    pub common: Option<(f64, f64)>,
+    /// Pairs of labels whose intervals do not overlap.
+    pub disjoint_pairs: Vec<(String, String)>,
+    /// Whether one verdict says up and another down.
+    pub opposite_directions: bool,
+    /// The resulting word.
+    pub agreement: Agreement,
+}
+
+fn direction(v: Verdict) -> i8 {
+    match v {
+        Verdict::Gain | Verdict::GainButSmall => 1,
+        Verdict::Loss | Verdict::LossButSmall => -1,
+        _ => 0,
+    }
+}
+
+/// Compare the analyses that answer one question (see [`Agreement`] for the rule).
+pub fn triangulate(question: &str, analyses: &[&ReportAnalysis]) -> Triangulation {
+    let quantity = if !analyses.is_empty() && analyses.iter().all(|a| a.result.effect.relative.is_some()) {
+        Quantity::Relative
+    } else {
+        Quantity::Average
+    };
+    let rows: Vec<(String, Summary, Verdict)> = analyses
+        .iter()
+        .map(|a| {
+            let s = match quantity {
+                Quantity::Relative => a.result.effect.relative.unwrap_or(a.result.effect.average),
+                Quantity::Average => a.result.effect.average,
+            };
+            (a.label.clone(), s, a.result.verdict)
+        })
+        .collect();
+    let finite: Vec<&(String, Summary, Verdict)> =
+        rows.iter().filter(|(_, s, _)| s.lower.is_finite() && s.upper.is_finite() && s.lower <= s.upper).collect();
+    let opposite_directions = rows.iter().any(|r| direction(r.2) == 1) && rows.iter().any(|r| direction(r.2) == -1);
+    let mut disjoint_pairs = Vec::new();
+    for (i, a) in finite.iter().enumerate() {
+        for b in &finite[i + 1..] {
+            if a.1.upper < b.1.lower || b.1.upper < a.1.lower {
+                disjoint_pairs.push((a.0.clone(), b.0.clone()));
+            }
+        }
+    }
+    let common = if finite.len() >= 2 && finite.len() == rows.len() {
+        let lo = finite.iter().map(|r| r.1.lower).fold(f64::NEG_INFINITY, f64::max);
+        let hi = finite.iter().map(|r| r.1.upper).fold(f64::INFINITY, f64::min);
+        (lo <= hi).then_some((lo, hi))
+    } else {
+        None
+    };
+    let agreement = if finite.len() < 2 || finite.len() < rows.len() {
+        Agreement::Undetermined
+    } else if common.is_none() || opposite_directions {
+        Agreement::Disagree
+    } else if rows.iter().all(|r| r.2 == rows[0].2) {
+        Agreement::Agree
+    } else {
+        Agreement::Compatible
+    };
+    Triangulation {
+        question: question.to_string(),
+        quantity,
+        rows,
+        common,
+        disjoint_pairs,
+        opposite_directions,
+        agreement,
+    }
+}
+
+/// Escape text for HTML/XML content and attribute values.
+pub fn escape(s: &str) -> String {
+    let mut out = String::with_capacity(s.len());
+    for c in s.chars() {
+        match c {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '"' => out.push_str("&quot;"),
+            '\'' => out.push_str("&#39;"),
+            c if (c as u32) < 0x20 && c != '\n' && c != '\t' && c != '\r' => {}
+            c => out.push(c),
+        }
+    }
+    out
+}
+
+fn id_of(stem: &str) -> String {
+    let s: String =
+        stem.chars().map(|c| if c.is_ascii_alphanumeric() || c == '-' || c == '_' { c } else { '-' }).collect();
+    if s.is_empty() { "analysis".into() } else { s }
+}
+
+const CSS: &str = r#"
+:root{--paper:#fbf9f4;--ink:#1b2430;--muted:#68707a;--grid:#e2ddd3;--tint:#f2ece0;--clay:#c4543a;--teal:#227a60;--slate:#3a5882;--ochre:#cd9628;--brick:#a8343c}
+*{box-sizing:border-box}
+html{-webkit-text-size-adjust:100%}
+body{margin:0;background:var(--paper);color:var(--ink);font-family:"DejaVu Sans",Verdana,"Segoe UI",system-ui,sans-serif;font-size:16px;line-height:1.55}
+.page{max-width:1080px;margin:0 auto;padding:0 20px 48px}
+.masthead{border-bottom:3px solid var(--ink);padding:28px 0 14px;margin-bottom:8px}
+.brand{font-size:13px;letter-spacing:.18em;text-transform:uppercase;color:var(--muted);margin:0}
+.brand b{color:var(--ochre)}
+h1{font-size:30px;line-height:1.2;margin:6px 0 8px}
+h2{font-size:22px;margin:36px 0 10px;padding-left:12px;border-left:5px solid var(--ochre)}
+h3{font-size:17px;margin:22px 0 8px}
+.lede{font-size:18px;color:var(--ink);margin:4px 0}
+nav.toc{display:flex;flex-wrap:wrap;gap:6px 14px;font-size:14px;padding:10px 0;border-bottom:1px solid var(--grid)}
+nav.toc a{color:var(--slate);text-decoration:none}
+nav.toc a:hover{text-decoration:underline}
+.cards{display:grid;grid-template-columns:repeat(auto-fit,minmax(min(100%,300px),1fr));gap:12px;margin:14px 0}
+.card{background:#fff;border:1px solid var(--grid);border-radius:6px;padding:12px 14px}
+.card h3{margin:0 0 6px;font-size:15px}
+.card p{margin:4px 0;font-size:14px}
+.chip{display:inline-block;font-size:13px;font-weight:bold;letter-spacing:.04em;padding:2px 10px;border-radius:999px;border:1px solid currentColor}
+.v-gain{color:var(--teal)}.v-gain-but-small{color:#4f8a4a}.v-negligible{color:var(--slate)}.v-loss-but-small{color:#b0623a}.v-loss{color:var(--brick)}.v-inconclusive{color:var(--muted)}
+.a-agree{color:var(--teal)}.a-compatible{color:var(--slate)}.a-disagree{color:var(--brick)}.a-undetermined{color:var(--muted)}
+.verdict{background:#fff;border:1px solid var(--grid);border-left:6px solid var(--ink);border-radius:4px;padding:12px 16px;margin:12px 0}
+.verdict p{margin:6px 0}
+.verdict .words{font-size:18px;font-weight:bold}
+.table-wrap{overflow-x:auto;margin:10px 0}
+table{border-collapse:collapse;width:100%;font-size:14px;background:#fff}
+th,td{text-align:left;padding:6px 10px;border-bottom:1px solid var(--grid);vertical-align:top}
+th{font-size:12px;text-transform:uppercase;letter-spacing:.06em;color:var(--muted);background:var(--tint)}
+td.num{text-align:right;font-variant-numeric:tabular-nums;white-space:nowrap}
+code,pre,.hash{font-family:"DejaVu Sans Mono",Menlo,Consolas,monospace;font-size:13px}
+.hash{word-break:break-all}
+pre{background:#fff;border:1px solid var(--grid);border-radius:4px;padding:10px 12px;overflow-x:auto;white-space:pre-wrap;word-break:break-word}
+figure{margin:14px 0;background:#fff;border:1px solid var(--grid);border-radius:6px;padding:12px}
+figure h4{margin:0 0 2px;font-size:16px}
+figcaption{font-size:14px;color:var(--muted);margin:0 0 6px}
+figure svg{display:block;width:100%;height:auto}
+svg.chart text{font-family:"DejaVu Sans",Verdana,sans-serif}
+.figs{display:grid;grid-template-columns:repeat(auto-fit,minmax(min(100%,460px),1fr));gap:14px}
+.figs figure{margin:0}
+.warnings{list-style:none;padding:0;margin:8px 0}
+.warnings li{background:#fbefe9;border-left:5px solid var(--brick);padding:8px 12px;margin:6px 0;border-radius:3px}
+.ok{color:var(--teal)}
+.rests li{margin:4px 0}
+.caution{background:var(--tint);border:1px dashed var(--ochre);padding:10px 14px;border-radius:4px}
+dl.diag{display:grid;grid-template-columns:minmax(140px,max-content) 1fr;gap:4px 16px;font-size:14px;margin:8px 0}
+dl.diag dt{color:var(--muted)}
+dl.diag dd{margin:0;word-break:break-word}
+details{font-size:14px;margin:4px 0}
+details pre{max-height:320px;overflow:auto}
+footer{margin-top:40px;padding-top:10px;border-top:1px solid var(--grid);font-size:13px;color:var(--muted)}
+@media (max-width:640px){
+ body{font-size:15px}
+ .page{padding:0 12px 32px}
+ h1{font-size:24px}
+ h2{font-size:19px}
+ dl.diag{grid-template-columns:1fr}
+ dl.diag dd{margin-bottom:6px}
+ figure{padding:8px}
+}
+@media print{
+ @page{margin:14mm}
+ body{background:#fff;font-size:11pt}
+ .page{max-width:none;padding:0}
+ nav.toc{display:none}
+ h2{break-after:avoid}
+ figure,table,.verdict,.card{break-inside:avoid;background:#fff}
+ .figs{display:block}
+ .figs figure{margin:10px 0}
+ details>*{display:block}
+ pre{white-space:pre-wrap}
+ .chip{border-width:2px}
+}
+"#;
+
+fn verdict_chip(v: Verdict) -> String {
+    format!("<span class=\"chip v-{w}\">{w}</span>", w = v.word())
+}
+
+fn interval_text(s: &Summary, pct: bool) -> String {
+    let f = |v: f64| if pct { fmt_pct(v) } else { fmt_signed(v) };
+    format!("[{}, {}]", f(s.lower), f(s.upper))
+}
+
+fn periods_after(r: &AnalysisResult) -> usize {
+    r.path.as_ref().map_or(0, |p| p.iter().filter(|x| x.post).count())
+}
+
+/// The verdict and the numbers in words.
+fn verdict_words(r: &AnalysisResult) -> String {
+    let lvl = format!("{:.0}%", r.level * 100.0);
+    let avg = &r.effect.average;
+    if !(avg.median.is_finite() || avg.mean.is_finite()) {
+        return "The effect could not be estimated: its summary is not a number. See the warnings and diagnostics."
+            .into();
+    }
+    let point = if avg.median.is_finite() { avg.median } else { avg.mean };
+    let mut s = match r.estimand.as_deref() {
+        Some(est) => format!(
+            "Per treated unit ({est}) the outcome differs by {} ({lvl} interval {}).",
+            fmt_signed(point),
+            interval_text(avg, false)
+        ),
+        None => {
+            let n = periods_after(r);
+            let over = if n > 0 { format!("Over the {n} periods after the change") } else { "After the change".into() };
+            format!(
+                "{over} the outcome was on average {} per period away from the counterfactual ({lvl} interval {}).",
+                fmt_signed(point),
+                interval_text(avg, false)
+            )
+        }
+    };
+    if let Some(rel) = r.effect.relative.as_ref().filter(|x| x.median.is_finite()) {
+        let _ = write!(
+            s,
+            " Relative to the counterfactual that is {} ({lvl} interval {}).",
+            fmt_pct(rel.median),
+            interval_text(rel, true)
+        );
+    }
+    if let Some(c) = r.effect.cumulative.as_ref().filter(|x| x.median.is_finite()) {
+        let what = if r.estimand.is_some() { "Summed over the treated units" } else { "Added up over the post-period" };
+        let _ = write!(s, " {what} it comes to {} ({lvl} interval {}).", fmt_signed(c.median), interval_text(c, false));
+    }
+    if avg.prob_positive.is_finite() {
+        let _ = write!(s, " The chance that the effect is above zero is {:.0}%.", avg.prob_positive * 100.0);
+    }
+    if let Some(p) = avg.prob_above_threshold.filter(|p| p.is_finite()) {
+        let _ = write!(s, " The chance that it exceeds the threshold is {:.0}%.", p * 100.0);
+    }
+    let rope = match r.rope.units {
+        RopeUnits::Percent => {
+            format!("between {} and {} of the counterfactual", fmt_pct(r.rope.low), fmt_pct(r.rope.high))
+        }
+        RopeUnits::Outcome => {
+            format!("between {} and {} in outcome units", fmt_signed(r.rope.low), fmt_signed(r.rope.high))
+        }
+    };
+    let _ = write!(s, " Effects {rope} are treated as too small to matter (the ROPE).");
+    s
+}
+
+/// Plain-language warnings derived from the result itself, beside the estimator's own.
+fn derived_warnings(r: &AnalysisResult) -> Vec<String> {
+    let mut w = Vec::new();
+    let avg = &r.effect.average;
+    if [avg.mean, avg.lower, avg.upper].iter().any(|v| !v.is_finite()) {
+        w.push("The effect summary contains values that are not numbers; treat this analysis as failed.".into());
+    }
+    if r.verdict == Verdict::Inconclusive {
+        w.push("The interval includes both no effect and effects large enough to matter: the data cannot settle the question yet.".into());
+    }
+    if let Some(path) = &r.path {
+        let pre: Vec<_> =
+            path.iter().filter(|p| !p.post && p.observed.is_some_and(f64::is_finite) && p.upper > p.lower).collect();
+        if pre.len() >= 10 {
+            let outside = pre.iter().filter(|p| p.observed.is_some_and(|o| o < p.lower || o > p.upper)).count();
+            let share = outside as f64 / pre.len() as f64;
+            let expected = 1.0 - r.level;
+            if share > 2.0 * expected + 0.02 {
+                w.push(format!(
+                    "Before the change, {:.0}% of the observations fell outside the model's {:.0}% band (about {:.0}% expected): the model fits the past poorly and the band may be too narrow.",
+                    share * 100.0,
+                    r.level * 100.0,
+                    expected * 100.0
+                ));
+            }
+        }
+        if path.iter().all(|p| !p.post) {
+            w.push("The path has no period after the change.".into());
+        }
+    }
+    if let Some(b) = &r.balance {
+        for row in b.iter().filter(|x| x.smd_after.abs() > 0.1) {
+            w.push(format!(
+                "'{}' is still imbalanced after adjustment (|SMD| = {:.2}, above the 0.1 commonly used as the limit).",
+                row.covariate,
+                row.smd_after.abs()
+            ));
+        }
+    }
+    if let Some(p) = &r.placebo
+        && p.p_value > 0.1
+    {
+        w.push(format!(
+            "The treated unit's gap is not unusual among the placebo units (rank {} of {}, p = {:.2}): an effect of this size also appears where nothing happened.",
+            p.rank, p.units, p.p_value
+        ));
+    }
+    if let Some(s) = &r.sample
+        && s.treated_dropped > 0
+    {
+        w.push(format!(
+            "{} of {} treated units were left out (no comparable control); the estimate describes the rest only.",
+            s.treated_dropped, s.treated
+        ));
+    }
+    if let Some(est) = &r.estimates {
+        for e in est.iter().filter(|e| !e.covers_truth) {
+            w.push(format!(
+                "'{}' misses the experimental answer: its interval does not contain it (bias {}).",
+                e.method,
+                fmt_signed(e.bias)
+            ));
+        }
+    }
+    w
+}
+
+fn humanise(key: &str) -> String {
+    let s = key.replace(['_', '-'], " ");
+    let mut c = s.chars();
+    match c.next() {
+        Some(f) => f.to_uppercase().collect::<String>() + c.as_str(),
+        None => String::new(),
+    }
+}
+
+fn number_text(f: f64) -> String {
+    if !f.is_finite() {
+        "n/a".into()
+    } else if f.abs() >= 1000.0 {
+        let g = crate::fmt_abs(f.abs());
+        if f < 0.0 { format!("-{g}") } else { g }
+    } else if f != 0.0 && f.abs() < 0.001 {
+        format!("{f:.3e}")
+    } else {
+        format!("{}", (f * 1e4).round() / 1e4)
+    }
+}
+
+fn scalar_text(v: &Value) -> Option<String> {
+    match v {
+        Value::Null => Some("none".into()),
+        Value::Bool(b) => Some(if *b { "yes" } else { "no" }.into()),
+        Value::Number(n) => Some(match n.as_f64() {
+            Some(f) if n.is_f64() => number_text(f),
+            _ => n.to_string(),
+        }),
+        Value::String(s) => Some(s.clone()),
+        _ => None,
+    }
+}
+
+fn diagnostics_html(out: &mut String, map: &serde_json::Map<String, Value>) {
+    if map.is_empty() {
+        out.push_str("<p>This method reports no diagnostics.</p>\n");
+        return;
+    }
+    let mut dl = String::new();
+    let mut nested = String::new();
+    for (k, v) in map {
+        match scalar_text(v) {
+            Some(t) => {
+                let _ = writeln!(dl, "<dt>{}</dt><dd>{}</dd>", escape(&humanise(k)), escape(&t));
+            }
+            None => {
+                let (kind, n) = match v {
+                    Value::Array(a) => ("items", a.len()),
+                    Value::Object(o) => ("fields", o.len()),
+                    _ => ("values", 0),
+                };
+                let pretty = serde_json::to_string_pretty(v).unwrap_or_default();
+                let pretty = if pretty.len() > 20_000 {
+                    format!(
+                        "{} …(cut; the full value is in result.json)",
+                        &pretty[..(0..=20_000).rev().find(|i| pretty.is_char_boundary(*i)).unwrap_or(0)]
+                    )
+                } else {
+                    pretty
+                };
+                let _ = writeln!(
+                    nested,
+                    "<details><summary>{} ({n} {kind})</summary><pre>{}</pre></details>",
+                    escape(&humanise(k)),
+                    escape(&pretty)
+                );
+            }
+        }
+    }
+    if !dl.is_empty() {
+        let _ = writeln!(out, "<dl class=\"diag\">\n{dl}</dl>");
+    }
+    out.push_str(&nested);
+}
+
+fn effects_table(out: &mut String, r: &AnalysisResult) {
+    let lvl = format!("{:.0}%", r.level * 100.0);
+    let _ = writeln!(
+        out,
+        "<div class=\"table-wrap\"><table><thead><tr><th>effect</th><th>median</th><th>mean</th><th>{lvl} interval</th><th>{lvl} HDI</th><th>chance above zero</th></tr></thead><tbody>"
+    );
+    let per = if r.estimand.is_some() { "average per unit" } else { "average per period" };
+    let total = if r.estimand.is_some() { "total over treated units" } else { "total over the post-period" };
+    let rows: [(&str, Option<&Summary>, bool); 3] = [
+        (per, Some(&r.effect.average), false),
+        (total, r.effect.cumulative.as_ref(), false),
+        ("relative", r.effect.relative.as_ref(), true),
+    ];
+    for (name, s, pct) in rows {
+        let Some(s) = s else { continue };
+        let f = |v: f64| if pct { fmt_pct(v) } else { fmt_signed(v) };
+        let prob = if s.prob_positive.is_finite() { format!("{:.1}%", s.prob_positive * 100.0) } else { "n/a".into() };
+        let _ = writeln!(
+            out,
+            "<tr><td>{name}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">[{}, {}]</td><td class=\"num\">[{}, {}]</td><td class=\"num\">{prob}</td></tr>",
+            f(s.median),
+            f(s.mean),
+            f(s.lower),
+            f(s.upper),
+            f(s.hdi_lower),
+            f(s.hdi_upper)
+        );
+    }
+    out.push_str("</tbody></table></div>\n");
+}
+
+fn verb_tables(out: &mut String, r: &AnalysisResult) {
+    if let Some(w) = r.weights.as_ref().filter(|w| !w.is_empty()) {
+        let mut w = w.clone();
+        w.sort_by(|a, b| b.weight.total_cmp(&a.weight));
+        out.push_str("<h3>Donor weights</h3><div class=\"table-wrap\"><table><thead><tr><th>donor</th><th>weight</th></tr></thead><tbody>\n");
+        for u in w.iter().filter(|u| u.weight > 0.0005) {
+            let _ =
+                writeln!(out, "<tr><td>{}</td><td class=\"num\">{:.1}%</td></tr>", escape(&u.unit), u.weight * 100.0);
+        }
+        let zero = w.iter().filter(|u| u.weight <= 0.0005).count();
+        if zero > 0 {
+            let _ = writeln!(out, "<tr><td>{zero} donors with no weight</td><td class=\"num\">0%</td></tr>");
+        }
+        out.push_str("</tbody></table></div>\n");
+    }
+    if let Some(p) = &r.placebo {
+        let _ = writeln!(
+            out,
+            "<p>Placebo test: of {} units treated as if they had been treated, the real one ranks {} by its post/pre fit ratio (p = {:.3}).</p>",
+            p.units, p.rank, p.p_value
+        );
+    }
+    if let Some(s) = &r.sample {
+        let _ = writeln!(
+            out,
+            "<p>Sample: {} treated units, {} controls used, {} treated units left out.</p>",
+            s.treated, s.controls_used, s.treated_dropped
+        );
+    }
+    if let Some(b) = r.balance.as_ref().filter(|b| !b.is_empty()) {
+        out.push_str("<h3>Balance</h3><div class=\"table-wrap\"><table><thead><tr><th>covariate</th><th>SMD before</th><th>SMD after</th><th>variance ratio after</th></tr></thead><tbody>\n");
+        for row in b {
+            let _ = writeln!(
+                out,
+                "<tr><td>{}</td><td class=\"num\">{:.3}</td><td class=\"num\">{:.3}</td><td class=\"num\">{:.2}</td></tr>",
+                escape(&row.covariate),
+                row.smd_before,
+                row.smd_after,
+                row.var_ratio_after
+            );
+        }
+        out.push_str("</tbody></table></div>\n");
+    }
+    if let (Some(t), Some(est)) = (&r.truth, &r.estimates) {
+        let lvl = format!("{:.0}%", r.level * 100.0);
+        let _ = writeln!(
+            out,
+            "<h3>Against the experiment</h3><p>The randomized experiment's answer: {} ({lvl} interval {}).</p>",
+            fmt_signed(t.median),
+            interval_text(t, false)
+        );
+        out.push_str("<div class=\"table-wrap\"><table><thead><tr><th>method</th><th>estimate</th><th>interval</th><th>bias</th><th>covers the experiment</th></tr></thead><tbody>\n");
+        for e in est {
+            let _ = writeln!(
+                out,
+                "<tr><td>{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td>{}</td></tr>",
+                escape(&e.method),
+                fmt_signed(e.summary.median),
+                interval_text(&e.summary, false),
+                fmt_signed(e.bias),
+                if e.covers_truth { "yes" } else { "no" }
+            );
+        }
+        out.push_str("</tbody></table></div>\n");
+    }
+}
+
+/// An inline SVG figure; a drawing failure becomes a visible note.
+fn figure(out: &mut String, c: &charts::Chart) {
+    let _ = writeln!(out, "<figure id=\"fig-{}\">", id_of(&c.name));
+    let _ = writeln!(out, "<h4>{}</h4><figcaption>{}</figcaption>", escape(&c.title), escape(&c.caption));
+    match c.to_svg(false) {
+        Ok(svg) => {
+            let start = svg.find("<svg").unwrap_or(0);
+            let body = &svg[start..];
+            let tagged = body.replacen(
+                "<svg",
+                &format!("<svg class=\"chart\" role=\"img\" aria-label=\"{}\"", escape(&c.title)),
+                1,
+            );
+            out.push_str(&tagged);
+            out.push('\n');
+        }
+        Err(e) => {
+            let _ = writeln!(out, "<p class=\"caution\">This chart could not be drawn: {}</p>", escape(&e.to_string()));
+        }
+    }
+    out.push_str("</figure>\n");
+}
+
+fn data_section(out: &mut String, input: &ReportInput) {
+    out.push_str("<section id=\"data\">\n<h2>The data</h2>\n");
+    let mut seen: Vec<(String, String, usize)> = Vec::new();
+    for a in &input.analyses {
+        for i in &a.result.inputs {
+            if !seen.iter().any(|(p, h, _)| *p == i.path && *h == i.sha256) {
+                seen.push((i.path.clone(), i.sha256.clone(), i.rows));
+            }
+        }
+    }
+    if seen.is_empty() {
+        out.push_str("<p>The results name no input files.</p>\n");
+    } else {
+        out.push_str("<div class=\"table-wrap\"><table><thead><tr><th>file</th><th>rows</th><th>SHA-256</th></tr></thead><tbody>\n");
+        for (p, h, n) in &seen {
+            let _ = writeln!(
+                out,
+                "<tr><td><code>{}</code></td><td class=\"num\">{}</td><td class=\"hash\">{}</td></tr>",
+                escape(p),
+                crate::fmt_abs(*n as f64),
+                escape(h)
+            );
+        }
+        out.push_str("</tbody></table></div>\n<p>The SHA-256 fingerprint changes if a single byte of a file changes: compare it to be sure a rerun reads the same data.</p>\n");
+    }
+    out.push_str(
+        "<div class=\"table-wrap\"><table><thead><tr><th>analysis</th><th>periods or units</th></tr></thead><tbody>\n",
+    );
+    for a in &input.analyses {
+        let r = &a.result;
+        let desc = if let Some(path) = r.path.as_ref().filter(|p| !p.is_empty()) {
+            let pre = path.iter().filter(|p| !p.post).count();
+            let post = path.len() - pre;
+            let first_post = path.iter().find(|p| p.post).map_or("none".to_string(), |p| p.time.to_string());
+            format!(
+                "{} periods from {} to {}: {pre} before the change, {post} after (first period after the change: {first_post})",
+                path.len(),
+                path[0].time,
+                path[path.len() - 1].time
+            )
+        } else if let Some(s) = &r.sample {
+            format!(
+                "{} treated units, {} controls used, {} treated units left out",
+                s.treated, s.controls_used, s.treated_dropped
+            )
+        } else if let Some(est) = &r.estimates {
+            format!("{} observational methods compared with a randomized experiment", est.len())
+        } else {
+            "no period or unit counts in the result".into()
+        };
+        let _ = writeln!(out, "<tr><td>{}</td><td>{}</td></tr>", escape(&a.label), escape(&desc));
+    }
+    out.push_str("</tbody></table></div>\n</section>\n");
+}
+
+fn analysis_section(out: &mut String, a: &ReportAnalysis) {
+    let r = &a.result;
+    let _ = writeln!(out, "<section id=\"analysis-{}\" class=\"analysis\">", id_of(&a.stem));
+    let _ = writeln!(out, "<h2>{}</h2>", escape(&a.label));
+    let est = r.estimand.as_deref().map(|e| format!(", estimand {e}")).unwrap_or_default();
+    let _ = writeln!(
+        out,
+        "<p>Method: <code>{} {}</code>{}, seed {}, {:.0}% intervals.</p>",
+        escape(&r.verb),
+        escape(&r.method),
+        escape(&est),
+        r.seed,
+        r.level * 100.0
+    );
+    let _ = writeln!(
+        out,
+        "<div class=\"verdict\"><p class=\"words\">{} {}</p><p>{}</p></div>",
+        verdict_chip(r.verdict),
+        escape(r.verdict.sentence()),
+        escape(&verdict_words(r))
+    );
+    effects_table(out, r);
+    let charts = charts::charts_for(r, &a.extras, &a.stem);
+    let (lead, rest) = charts.split_first().map_or((None, &[][..]), |(f, r)| (Some(f), r));
+    if let Some(c) = lead {
+        figure(out, c);
+    }
+    if !rest.is_empty() {
+        out.push_str("<div class=\"figs\">\n");
+        for c in rest {
+            figure(out, c);
+        }
+        out.push_str("</div>\n");
+    }
+    verb_tables(out, r);
+    out.push_str("<h3>Warnings</h3>\n");
+    let mut warnings: Vec<String> = r.warnings.clone();
+    for w in derived_warnings(r) {
+        if !warnings.contains(&w) {
+            warnings.push(w);
+        }
+    }
+    if warnings.is_empty() {
+        out.push_str("<p class=\"ok\">No warnings: the checks this method runs found nothing to flag.</p>\n");
+    } else {
+        out.push_str("<ul class=\"warnings\">\n");
+        for w in &warnings {
+            let _ = writeln!(out, "<li>{}</li>", escape(w));
+        }
+        out.push_str("</ul>\n");
+    }
+    out.push_str("<h3>Diagnostics</h3>\n");
+    diagnostics_html(out, &r.diagnostics);
+    let extra: serde_json::Map<String, Value> = r.extra.iter().map(|(k, v)| (k.clone(), v.clone())).collect();
+    if !extra.is_empty() {
+        out.push_str("<h3>Further results</h3>\n");
+        diagnostics_html(out, &extra);
+    }
+    out.push_str("<h3>What this rests on</h3>\n");
+    if r.assumptions.is_empty() {
+        out.push_str(
+            "<p>The method listed no assumptions; every observational estimate rests on some (see below).</p>\n",
+        );
+    } else {
+        out.push_str("<ul class=\"rests\">\n");
+        for s in &r.assumptions {
+            let _ = writeln!(out, "<li>{}</li>", escape(s));
+        }
+        out.push_str("</ul>\n");
+    }
+    let _ = writeln!(out, "<p class=\"caution\">{}</p>", escape(CAUTION));
+    out.push_str("</section>\n");
+}
+
+fn triangulation_section(out: &mut String, input: &ReportInput) {
+    out.push_str("<section id=\"triangulation\">\n<h2>Do the methods agree?</h2>\n");
+    let mut keys: Vec<&str> = Vec::new();
+    for a in &input.analyses {
+        if let Some(q) = a.question.as_deref()
+            && !keys.contains(&q)
+        {
+            keys.push(q);
+        }
+    }
+    let mut any = false;
+    for key in keys {
+        let group: Vec<&ReportAnalysis> =
+            input.analyses.iter().filter(|a| a.question.as_deref() == Some(key)).collect();
+        if group.len() < 2 {
+            continue;
+        }
+        any = true;
+        let t = triangulate(key, &group);
+        let pct = t.quantity == Quantity::Relative;
+        let what =
+            if pct { "relative effect (percent of the counterfactual)" } else { "average effect in outcome units" };
+        let _ = writeln!(out, "<h3>Question: {}</h3>", escape(key));
+        let _ = writeln!(out, "<p>{} methods answer it; they are compared on the {what}.</p>", group.len());
+        if !pct {
+            out.push_str("<p>Not every method reports a relative effect, so the comparison uses the average effect; series methods report it per period and unit-level methods per unit, so check that the estimands match before reading agreement into it.</p>\n");
+        }
+        out.push_str("<div class=\"table-wrap\"><table><thead><tr><th>method</th><th>estimate</th><th>interval</th><th>verdict</th></tr></thead><tbody>\n");
+        for (label, s, v) in &t.rows {
+            let f = |x: f64| if pct { fmt_pct(x) } else { fmt_signed(x) };
+            let _ = writeln!(
+                out,
+                "<tr><td>{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td>{}</td></tr>",
+                escape(label),
+                f(s.median),
+                interval_text(s, pct),
+                verdict_chip(*v)
+            );
+        }
+        out.push_str("</tbody></table></div>\n");
+        let f = |x: f64| if pct { fmt_pct(x) } else { fmt_signed(x) };
+        let mut sentence = format!("<p><span class=\"chip a-{w}\">{w}</span> ", w = t.agreement.word());
+        sentence.push_str(&escape(&match t.agreement {
+            Agreement::Agree => format!(
+                "Every interval contains the range {} to {}, and every method reaches the same verdict.",
+                f(t.common.map_or(f64::NAN, |c| c.0)),
+                f(t.common.map_or(f64::NAN, |c| c.1))
+            ),
+            Agreement::Compatible => format!(
+                "Every interval contains the range {} to {}, so the methods are consistent with one common effect, but their verdicts differ (none points the opposite way).",
+                f(t.common.map_or(f64::NAN, |c| c.0)),
+                f(t.common.map_or(f64::NAN, |c| c.1))
+            ),
+            Agreement::Disagree => {
+                let mut s = String::from("The methods disagree:");
+                if t.opposite_directions {
+                    s.push_str(" one finds a gain where another finds a loss.");
+                }
+                if t.common.is_none() {
+                    s.push_str(" no single value lies inside every interval");
+                    if !t.disjoint_pairs.is_empty() {
+                        let pairs: Vec<String> = t.disjoint_pairs.iter().map(|(a, b)| format!("{a} / {b}")).collect();
+                        s.push_str(&format!(" (intervals that do not overlap: {})", pairs.join("; ")));
+                    }
+                    s.push('.');
+                }
+                s.push_str(" At least one method's assumptions fail here; see the warnings of each analysis.");
+                s
+            }
+            Agreement::Undetermined => "Fewer than two methods have a finite interval, so agreement cannot be judged.".into(),
+        }));
+        sentence.push_str("</p>\n");
+        out.push_str(&sentence);
+        let bars: Vec<EstimateBar> =
+            t.rows.iter().map(|(l, s, _)| EstimateBar { label: l.clone(), summary: *s }).collect();
+        let level = group[0].result.level;
+        let quantity = if pct { "relative effect" } else { "average effect" };
+        let c = charts::estimates_chart(
+            &format!("triangulation-{}", id_of(key)),
+            &bars,
+            None,
+            level,
+            quantity,
+            if pct { ValueFormat::Percent } else { ValueFormat::Number },
+        );
+        figure(out, &c);
+    }
+    if !any {
+        out.push_str("<p>Each question here is answered by one method only, so there is nothing to set side by side. Answering the same question with a second, independent method (for example a forecast and a synthetic control) is the best check an observational study has.</p>\n");
+    }
+    out.push_str(
+        "<p>How agreement is judged: each method's equal-tailed interval is taken at its stated level. The methods <b>agree</b> when one range lies inside every interval and all verdict words are the same; they are <b>compatible</b> when such a range exists but the verdicts differ without pointing in opposite directions; they <b>disagree</b> when no value lies inside every interval or one verdict is a gain and another a loss.</p>\n",
+    );
+    out.push_str("</section>\n");
+}
+
+/// Render the whole report as one self-contained HTML document.
+pub fn render(input: &ReportInput) -> String {
+    let mut out = String::with_capacity(256 * 1024);
+    out.push_str("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\" />\n");
+    out.push_str("<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\" />\n");
+    let _ = writeln!(out, "<title>{}</title>", escape(&input.title));
+    let _ = writeln!(out, "<style>{CSS}</style>\n</head>\n<body>\n<div class=\"page\">");
+    let _ = writeln!(
+        out,
+        "<header class=\"masthead\"><p class=\"brand\"><b>&#9632;</b> aftercast report</p><h1>{}</h1><p class=\"lede\">{}</p></header>",
+        escape(&input.title),
+        escape(&input.question)
+    );
+    out.push_str("<nav class=\"toc\"><a href=\"#question\">Question</a><a href=\"#data\">Data</a>");
+    for a in &input.analyses {
+        let _ = write!(out, "<a href=\"#analysis-{}\">{}</a>", id_of(&a.stem), escape(&a.label));
+    }
+    out.push_str("<a href=\"#triangulation\">Agreement</a><a href=\"#caution\">Caution</a><a href=\"#reproduce\">Reproduce</a></nav>\n<main>\n");
+
+    // the question and the answers at a glance
+    out.push_str("<section id=\"question\">\n<h2>The question</h2>\n");
+    let _ = writeln!(out, "<p>{}</p>", escape(&input.question));
+    if input.analyses.is_empty() {
+        out.push_str("<p>This report holds no analyses.</p>\n");
+    } else {
+        out.push_str("<div class=\"cards\">\n");
+        for a in &input.analyses {
+            let r = &a.result;
+            let headline = match r.effect.relative.as_ref().filter(|s| s.median.is_finite()) {
+                Some(rel) => format!(
+                    "{} relative, {:.0}% interval {}",
+                    fmt_pct(rel.median),
+                    r.level * 100.0,
+                    interval_text(rel, true)
+                ),
+                None => format!(
+                    "{} on average, {:.0}% interval {}",
+                    fmt_signed(r.effect.average.median),
+                    r.level * 100.0,
+                    interval_text(&r.effect.average, false)
+                ),
+            };
+            let _ = writeln!(
+                out,
+                "<div class=\"card\"><h3><a href=\"#analysis-{}\">{}</a></h3><p>{}</p><p>{}</p></div>",
+                id_of(&a.stem),
+                escape(&a.label),
+                verdict_chip(r.verdict),
+                escape(&headline)
+            );
+        }
+        out.push_str("</div>\n");
+    }
+    out.push_str("</section>\n");
+    data_section(&mut out, input);
+    for a in &input.analyses {
+        analysis_section(&mut out, a);
+    }
+    triangulation_section(&mut out, input);
+    out.push_str("<section id=\"caution\">\n<h2>How much to trust this</h2>\n");
+    out.push_str("<p class=\"caution\">These are observational estimates. Each rests on assumptions, listed with each analysis, that no data can prove: that nothing else changed at the same time, that the comparison series or units were untouched, that the past pattern would have continued. A randomized test with a held-out control group is stronger evidence wherever one is possible; where one exists, compare against it.</p>\n");
+    out.push_str("<p>The intervals describe the uncertainty of each method given its assumptions; they do not cover the risk that the assumptions are wrong. Agreement between independent methods makes that risk smaller, not zero.</p>\n</section>\n");
+    out.push_str("<section id=\"reproduce\">\n<h2>Reproduce this report</h2>\n<p>This command, run on the same files (same SHA-256 fingerprints), writes the same numbers:</p>\n");
+    let _ = writeln!(out, "<pre><code>{}</code></pre>", escape(&input.command));
+    if let Some(s) = &input.study_file {
+        let _ = writeln!(
+            out,
+            "<p>Study file <code>{}</code>:</p>\n<pre><code>{}</code></pre>",
+            escape(&s.path),
+            escape(&s.contents)
+        );
+    }
+    out.push_str("<div class=\"table-wrap\"><table><thead><tr><th>analysis</th><th>verb and method</th><th>seed</th><th>version</th></tr></thead><tbody>\n");
+    for a in &input.analyses {
+        let r = &a.result;
+        let _ = writeln!(
+            out,
+            "<tr><td>{}</td><td><code>{} {}</code></td><td class=\"num\">{}</td><td>{}</td></tr>",
+            escape(&a.label),
+            escape(&r.verb),
+            escape(&r.method),
+            r.seed,
+            escape(&r.tool_version)
+        );
+    }
+    out.push_str("</tbody></table></div>\n</section>\n</main>\n");
+    let _ = writeln!(
+        out,
+        "<footer>Made by aftercast {}. Self-contained page: no scripts, no fonts or images fetched from anywhere.</footer>\n</div>\n</body>\n</html>",
+        escape(aftercast_core::result::TOOL_VERSION)
+    );
+    out
+}
+
+/// Render and write the report atomically.
+///
+/// # Errors
+/// [`ReportError::Write`].
+pub fn write(input: &ReportInput, path: &Path) -> Result<(), ReportError> {
+    write_atomic(path, render(input).as_bytes())
+}

@@ -1,0 +1,209 @@
+//! HTML report: well-formed (parsed as XML), every section present, no external URL, charts
+//! inline, the numbers and words of each analysis shown, and the triangulation rule.
+//!
+//! Set `AFTERCAST_REPORT_OUT=/some/report.html` to keep the page for looking at it.
+
+mod common;
+
+use aftercast_core::result::{AnalysisResult, Verdict};
+use aftercast_report::charts::{self, ChartExtras};
+use aftercast_report::html::{self, Agreement, Quantity, ReportAnalysis, ReportInput, StudyFile};
+
+fn analysis(label: &str, stem: &str, question: Option<&str>, result: AnalysisResult) -> ReportAnalysis {
+    let extras = if stem == "forecast" {
+        let (rel, avg) = common::forecast_draws(4000);
+        ChartExtras { relative_draws: Some(rel), average_draws: Some(avg), ..Default::default() }
+    } else {
+        ChartExtras::default()
+    };
+    ReportAnalysis { label: label.into(), question: question.map(str::to_string), result, extras, stem: stem.into() }
+}
+
+fn study() -> ReportInput {
+    let mut second = common::forecast();
+    second.method = "holt-winters".into();
+    second.effect.relative = Some(common::summary(0.03, 0.007));
+    ReportInput {
+        title: "Did the new onboarding move weekly active users?".into(),
+        question: "We released the new onboarding to everyone on 1 May 2025. Did weekly active users move, by how much, and how sure are we?".into(),
+        analyses: vec![
+            analysis("Forecast: structural model", "forecast", Some("onboarding"), common::forecast()),
+            analysis("Forecast: Holt-Winters", "forecast-hw", Some("onboarding"), second),
+            analysis("Synthetic control of the sale regions <north & west>", "synthetic", Some("sale"), common::synthetic()),
+            analysis("Loyalty scheme: nearest-neighbour matching", "match", None, common::matching()),
+            analysis("Check against last year's holdout", "compare", None, common::compare()),
+            analysis("How long to wait: placebo backtests", "backtest", None, common::backtest()),
+        ],
+        command: "aftercast run study.toml --out report".into(),
+        study_file: Some(StudyFile { path: "study.toml".into(), contents: "[data.users]\npath = \"users.csv\"\n\n[[analysis]]\nverb = \"forecast\"\n".into() }),
+    }
+}
+
+/// Parse as XML; the HTML5 doctype is allowed.
+fn parse(text: &str) -> Result<roxmltree::Document<'_>, roxmltree::Error> {
+    roxmltree::Document::parse_with_options(text, roxmltree::ParsingOptions { allow_dtd: true, ..Default::default() })
+}
+
+/// Attributes that would make a browser fetch something.
+const FETCHING_ATTRS: [&str; 6] = ["src", "href", "action", "poster", "data", "srcset"];
+
+#[test]
+fn report_is_well_formed_complete_and_self_contained() {
+    let input = study();
+    let page = html::render(&input);
+    if let Some(p) = std::env::var_os("AFTERCAST_REPORT_OUT") {
+        std::fs::write(p, &page).expect("keep the page");
+    }
+    let doc = parse(&page).expect("the report parses as XML");
+    assert_eq!(doc.root_element().tag_name().name(), "html");
+
+    // every section, in order
+    let ids: Vec<&str> =
+        doc.descendants().filter(|n| n.has_tag_name("section")).filter_map(|n| n.attribute("id")).collect();
+    let mut expected = vec!["question", "data"];
+    let analysis_ids: Vec<String> = input.analyses.iter().map(|a| format!("analysis-{}", a.stem)).collect();
+    expected.extend(analysis_ids.iter().map(String::as_str));
+    expected.extend(["triangulation", "caution", "reproduce"]);
+    assert_eq!(ids, expected);
+
+    // no external requests: no fetching attribute leaves the page, no @import / url() in CSS, no scripts
+    for n in doc.descendants().filter(|n| n.is_element()) {
+        for a in n.attributes() {
+            if FETCHING_ATTRS.contains(&a.name()) {
+                let v = a.value();
+                assert!(v.starts_with('#'), "<{} {}=\"{v}\"> points outside the page", n.tag_name().name(), a.name());
+            }
+        }
+        assert!(
+            !n.has_tag_name("script") && !n.has_tag_name("link") && !n.has_tag_name("img") && !n.has_tag_name("iframe")
+        );
+    }
+    let css: String = doc.descendants().filter(|n| n.has_tag_name("style")).filter_map(|n| n.text()).collect();
+    assert!(!css.contains("@import") && !css.contains("url("), "CSS fetches nothing");
+    assert!(css.contains("@media print") && css.contains("@media (max-width"), "print and phone rules");
+    assert!(!page.contains("https://"), "no https URL anywhere");
+    assert_eq!(
+        page.matches("http://").count(),
+        page.matches("xmlns=\"http://www.w3.org/2000/svg\"").count(),
+        "the only http:// is the SVG namespace"
+    );
+    assert!(doc.descendants().any(|n| n.has_tag_name("meta") && n.attribute("name") == Some("viewport")));
+
+    // internal links resolve
+    let all_ids: Vec<&str> = doc.descendants().filter_map(|n| n.attribute("id")).collect();
+    for n in doc.descendants().filter(|n| n.has_tag_name("a")) {
+        let target = n.attribute("href").expect("href").trim_start_matches('#');
+        assert!(all_ids.contains(&target), "link to missing #{target}");
+    }
+
+    // every chart of every analysis is inline, plus one triangulation chart per multi-method question
+    let planned: usize = input.analyses.iter().map(|a| charts::charts_for(&a.result, &a.extras, &a.stem).len()).sum();
+    let svgs = doc.descendants().filter(|n| n.has_tag_name("svg")).count();
+    assert_eq!(svgs, planned + 1, "inline SVG charts");
+    for f in doc.descendants().filter(|n| n.has_tag_name("figure")) {
+        assert!(f.descendants().any(|n| n.has_tag_name("figcaption")), "each figure has its caption");
+    }
+
+    // the words and numbers
+    let text: String = doc.descendants().filter(|n| n.is_text()).filter_map(|n| n.text()).collect();
+    for a in &input.analyses {
+        assert!(text.contains(&a.label), "label {}", a.label);
+        for s in &a.result.assumptions {
+            assert!(text.contains(s.as_str()), "assumption '{s}'");
+        }
+        for w in &a.result.warnings {
+            assert!(text.contains(w.as_str()), "warning '{w}'");
+        }
+        for i in &a.result.inputs {
+            assert!(text.contains(&i.sha256), "hash of {}", i.path);
+        }
+        assert!(text.contains(a.result.verdict.sentence()));
+    }
+    assert!(text.contains(aftercast_report::CAUTION));
+    assert!(text.contains("weaker") || text.contains("stronger evidence"), "observational caution");
+    assert!(text.contains("aftercast run study.toml --out report"), "the command");
+    assert!(text.contains("[[analysis]]"), "the study file");
+    assert!(text.contains("+3.52%"), "the forecast's relative effect in words");
+    assert!(text.contains("'spend_pre' is still imbalanced"), "derived plain-language warning");
+    assert!(text.contains("'naive difference' misses the experimental answer"));
+    assert!(text.contains("Question: onboarding"), "the triangulated question");
+    assert!(!text.contains("Question: sale"), "a single-method question is not triangulated");
+}
+
+#[test]
+fn labels_are_escaped() {
+    let mut input = study();
+    input.title = "<script>alert(1)</script> & \"quotes\"".into();
+    let page = html::render(&input);
+    assert!(!page.contains("<script>"));
+    let doc = parse(&page).expect("parses");
+    let title = doc.descendants().find(|n| n.has_tag_name("title")).and_then(|n| n.text()).expect("title");
+    assert_eq!(title, input.title);
+}
+
+#[test]
+fn an_empty_report_still_has_every_section() {
+    let input = ReportInput {
+        title: "Empty".into(),
+        question: "Nothing yet?".into(),
+        analyses: vec![],
+        command: "aftercast run s.toml --out o".into(),
+        study_file: None,
+    };
+    let page = html::render(&input);
+    let doc = parse(&page).expect("parses");
+    let ids: Vec<&str> =
+        doc.descendants().filter(|n| n.has_tag_name("section")).filter_map(|n| n.attribute("id")).collect();
+    assert_eq!(ids, ["question", "data", "triangulation", "caution", "reproduce"]);
+}
+
+#[test]
+fn the_report_is_written_atomically() {
+    let tmp = tempfile::tempdir().expect("tempdir");
+    let p = tmp.path().join("out").join("report.html");
+    html::write(&study(), &p).expect("write");
+    let text = std::fs::read_to_string(&p).expect("read");
+    parse(&text).expect("parses");
+    assert_eq!(std::fs::read_dir(p.parent().expect("dir")).expect("dir").count(), 1, "no temporary file left");
+}
+
+fn with(mean: f64, sd: f64, verdict: Verdict) -> ReportAnalysis {
+    let mut r = common::forecast();
+    r.effect.relative = Some(common::summary(mean, sd));
+    r.verdict = verdict;
+    analysis(&format!("m{mean}"), "x", Some("q"), r)
+}
+
+#[test]
+fn triangulation_follows_the_documented_rule() {
+    // overlapping intervals, same verdict
+    let (a, b) = (with(0.035, 0.005, Verdict::Gain), with(0.03, 0.007, Verdict::Gain));
+    let t = html::triangulate("q", &[&a, &b]);
+    assert_eq!(t.quantity, Quantity::Relative);
+    assert_eq!(t.agreement, Agreement::Agree);
+    let (lo, hi) = t.common.expect("common range");
+    // common range = [max lower, min upper] of the 90% equal-tailed intervals
+    let z = 1.6448536269514722;
+    assert!((lo - (0.035 - z * 0.005)).abs() < 1e-12 && (hi - (0.03 + z * 0.007)).abs() < 1e-12);
+    // overlapping, different verdicts in the same direction or none
+    let c = with(0.02, 0.008, Verdict::Inconclusive);
+    assert_eq!(html::triangulate("q", &[&a, &c]).agreement, Agreement::Compatible);
+    // disjoint intervals
+    let d = with(-0.05, 0.005, Verdict::Loss);
+    let t = html::triangulate("q", &[&a, &b, &d]);
+    assert_eq!(t.agreement, Agreement::Disagree);
+    assert!(t.common.is_none());
+    assert_eq!(t.disjoint_pairs.len(), 2);
+    // overlapping intervals but a gain against a loss
+    let e = with(0.02, 0.02, Verdict::LossButSmall);
+    let t = html::triangulate("q", &[&a, &e]);
+    assert!(t.common.is_some() && t.opposite_directions);
+    assert_eq!(t.agreement, Agreement::Disagree);
+    // a NaN interval cannot be judged
+    let f = with(f64::NAN, 0.01, Verdict::Inconclusive);
+    assert_eq!(html::triangulate("q", &[&a, &f]).agreement, Agreement::Undetermined);
+    // without a relative effect everywhere the average effect is compared
+    let mut g = with(0.03, 0.01, Verdict::Gain);
+    g.result.effect.relative = None;
+    assert_eq!(html::triangulate("q", &[&a, &g]).quantity, Quantity::Average);
+}
