@@ -27,6 +27,8 @@ pub(crate) enum Verb {
     Demo(verbs::demo::Args),
     /// Run every analysis a study file lists; write result.json, charts and report.html.
     Run(verbs::run::Args),
+    /// Propensity-score matching and weighting on a unit table (changes units opted into).
+    Match(verbs::match_::Args),
     /// Turn an event log into per-unit metric windows and per-group series (native or Spark).
     Windows(verbs::windows::Args),
 }
@@ -37,6 +39,7 @@ fn threads_of(verb: &Verb) -> Option<u64> {
         Verb::Inspect(_) => None,
         Verb::Run(a) => a.threads,
         Verb::Demo(a) => a.threads,
+        Verb::Match(a) => a.common.threads,
     }
 }
 
@@ -45,6 +48,7 @@ pub(crate) fn analyze(verb: &Verb) -> Option<anyhow::Result<verbs::Outcome>> {
     match verb {
         Verb::Windows(_) => None,
         Verb::Inspect(_) | Verb::Run(_) | Verb::Demo(_) => None,
+        Verb::Match(a) => Some(verbs::match_::run(a)),
     }
 }
 
@@ -54,6 +58,7 @@ fn dispatch(verb: &Verb) -> anyhow::Result<()> {
         Verb::Inspect(a) => verbs::inspect::run(a),
         Verb::Run(a) => verbs::run::run(a),
         Verb::Demo(a) => verbs::demo::run(a),
+        Verb::Match(a) => verbs::finish(&a.common, verbs::match_::run(a)?),
     }
 }
 

@@ -2,6 +2,7 @@
 
 pub mod demo;
 pub mod inspect;
+pub mod match_;
 pub mod run;
 pub mod windows;
 
