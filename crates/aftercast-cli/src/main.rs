@@ -29,6 +29,8 @@ pub(crate) enum Verb {
     Run(verbs::run::Args),
     /// Propensity-score matching and weighting on a unit table (changes units opted into).
     Match(verbs::match_::Args),
+    /// Counterfactual of one series from its own past and control series (seasonal forecast).
+    Forecast(verbs::forecast::Args),
     /// Turn an event log into per-unit metric windows and per-group series (native or Spark).
     Windows(verbs::windows::Args),
 }
@@ -36,6 +38,7 @@ pub(crate) enum Verb {
 fn threads_of(verb: &Verb) -> Option<u64> {
     match verb {
         Verb::Windows(a) => a.threads,
+        Verb::Forecast(a) => a.common.threads,
         Verb::Inspect(_) => None,
         Verb::Run(a) => a.threads,
         Verb::Demo(a) => a.threads,
@@ -47,6 +50,7 @@ fn threads_of(verb: &Verb) -> Option<u64> {
 pub(crate) fn analyze(verb: &Verb) -> Option<anyhow::Result<verbs::Outcome>> {
     match verb {
         Verb::Windows(_) => None,
+        Verb::Forecast(a) => Some(verbs::forecast::run(a)),
         Verb::Inspect(_) | Verb::Run(_) | Verb::Demo(_) => None,
         Verb::Match(a) => Some(verbs::match_::run(a)),
     }
@@ -55,6 +59,7 @@ pub(crate) fn analyze(verb: &Verb) -> Option<anyhow::Result<verbs::Outcome>> {
 fn dispatch(verb: &Verb) -> anyhow::Result<()> {
     match verb {
         Verb::Windows(a) => verbs::windows::run_verb(a),
+        Verb::Forecast(a) => verbs::finish(&a.common, verbs::forecast::run(a)?),
         Verb::Inspect(a) => verbs::inspect::run(a),
         Verb::Run(a) => verbs::run::run(a),
         Verb::Demo(a) => verbs::demo::run(a),

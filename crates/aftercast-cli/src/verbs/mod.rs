@@ -1,6 +1,7 @@
 //! One module per verb. See README.md in this folder for the pattern a verb follows.
 
 pub mod demo;
+pub mod forecast;
 pub mod inspect;
 pub mod match_;
 pub mod run;

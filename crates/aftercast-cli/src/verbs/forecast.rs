@@ -1,0 +1,160 @@
+//! `aftercast forecast`: counterfactual of one series from its own past and control series.
+
+use crate::common::{Common, DataOptions, comma_list, parse_arg, read_table};
+use crate::failure::bad_input;
+use aftercast_core::series::{Series, SeriesSpec};
+use aftercast_forecast::holt_winters::Seasonality;
+use aftercast_forecast::structural::Trend;
+use aftercast_forecast::{EventCalendar, ForecastParams, ModelKind, Season, analyse};
+use std::path::PathBuf;
+
+/// Arguments of `forecast` (flag names are the contract in ../shared/DESIGN.md).
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// Series file (CSV, or Parquet by extension .parquet): one row per period.
+    #[arg(long)]
+    pub data: PathBuf,
+    /// Time column (ISO dates or integer periods).
+    #[arg(long)]
+    pub time: String,
+    /// Outcome column.
+    #[arg(long)]
+    pub outcome: String,
+    /// Control series the change did not touch, comma-separated.
+    #[arg(long, default_value = "")]
+    pub controls: String,
+    /// First period of the change (date or integer period, as in the time column).
+    #[arg(long)]
+    pub start: String,
+    /// Last period of the post-period (default: the end of the data).
+    #[arg(long)]
+    pub end: Option<String>,
+    /// Periods just before --start left out of the fit (washout gap).
+    #[arg(long, default_value_t = 0)]
+    pub washout: usize,
+    /// Model: structural, holt-winters, harmonic or auto (rolling backtest, lowest CRPS).
+    #[arg(long, default_value = "structural")]
+    pub model: String,
+    /// Seasonal component, repeatable: `7` (dummy seasonal) or `365.25:4` (trigonometric with
+    /// 4 harmonics). Without it the seasons follow the data's frequency.
+    #[arg(long)]
+    pub season: Vec<String>,
+    /// No seasonal component at all.
+    #[arg(long, conflicts_with = "season")]
+    pub no_season: bool,
+    /// Structural trend: level, linear-trend or damped-trend.
+    #[arg(long, default_value = "linear-trend")]
+    pub trend: String,
+    /// Holt-Winters seasonality: additive or multiplicative.
+    #[arg(long, default_value = "additive")]
+    pub hw_seasonality: String,
+    /// Damped Holt-Winters trend.
+    #[arg(long)]
+    pub damped: bool,
+    /// Calendar of known events or holidays: CSV with columns date,name (one indicator per name).
+    #[arg(long)]
+    pub events: Option<PathBuf>,
+    /// Model the log of the outcome (multiplicative effects).
+    #[arg(long)]
+    pub log: bool,
+    /// Rolling origins of the pre-period backtest (0 = none; auto needs at least 1).
+    #[arg(long, default_value_t = 3)]
+    pub folds: usize,
+    #[command(flatten)]
+    pub data_options: DataOptions,
+    #[command(flatten)]
+    pub common: Common,
+}
+
+/// Errors of the model caused by the input exit 2; optimiser and linear-algebra failures exit 1.
+fn classify(e: aftercast_forecast::ForecastError) -> anyhow::Error {
+    use aftercast_forecast::ForecastError as E;
+    match e {
+        E::Optimiser { .. } | E::Singular { .. } => anyhow::Error::new(e),
+        other => bad_input(other),
+    }
+}
+
+fn trend_of(s: &str) -> anyhow::Result<Trend> {
+    match s {
+        "level" => Ok(Trend::Level),
+        "linear-trend" | "trend" => Ok(Trend::LinearTrend),
+        "damped-trend" | "damped" => Ok(Trend::DampedTrend),
+        _ => Err(crate::failure::bad_input_msg(format!(
+            "--trend '{s}': use level, linear-trend or damped-trend"
+        ))),
+    }
+}
+
+fn seasonality_of(s: &str) -> anyhow::Result<Seasonality> {
+    match s {
+        "additive" | "add" => Ok(Seasonality::Additive),
+        "multiplicative" | "mul" => Ok(Seasonality::Multiplicative),
+        _ => Err(crate::failure::bad_input_msg(format!(
+            "--hw-seasonality '{s}': use additive or multiplicative"
+        ))),
+    }
+}
+
+/// Run the verb and return the result document plus a one-line headline for the terminal.
+///
+/// # Errors
+/// Bad input (exit 2) for unreadable data, unknown columns, bad options, too short a
+/// pre-period, non-positive values under --log, an unidentified model; internal failures
+/// otherwise.
+pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
+    let table = read_table(&a.data)?;
+    let spec = SeriesSpec {
+        time: a.time.clone(),
+        outcome: a.outcome.clone(),
+        controls: comma_list(&a.controls),
+        date_format: a.data_options.date_format(),
+        missing: a.data_options.missing,
+        gaps: a.data_options.gaps,
+    };
+    let series = Series::from_table(&table, &spec).map_err(bad_input)?;
+    let split = series.split(&a.start, a.end.as_deref(), a.washout, 8).map_err(bad_input)?;
+    let model: ModelKind = a.model.parse().map_err(bad_input)?;
+    let mut params = ForecastParams::builder()
+        .model(model)
+        .trend(trend_of(&a.trend)?)
+        .log(a.log)
+        .level(a.common.level)
+        .draws(usize::try_from(a.common.draws).unwrap_or(usize::MAX))
+        .seed(a.common.seed)
+        .backtest_folds(if model == ModelKind::Auto { a.folds.max(1) } else { a.folds })
+        .rope(a.common.rope);
+    params.threshold = a.common.threshold;
+    params.hw_seasonality = seasonality_of(&a.hw_seasonality)?;
+    params.hw_damped = a.damped;
+    if a.no_season {
+        params = params.no_seasons();
+    }
+    for s in &a.season {
+        let season: Season = parse_arg("--season", s)?;
+        params = params.season(season);
+    }
+    let params = params.check().map_err(bad_input)?;
+    let mut inputs = vec![table.info()];
+    let events = match &a.events {
+        Some(p) => {
+            let t = read_table(p)?;
+            inputs.push(t.info());
+            Some(EventCalendar::from_table(&t).map_err(bad_input)?)
+        }
+        None => None,
+    };
+    let run = analyse(&series, split, &params, events.as_ref()).map_err(classify)?;
+    let mut result = run.to_result(inputs);
+    result.warnings.splice(0..0, series.notes.iter().cloned());
+    let headline = format!(
+        "{} of '{}' from {} ({} model, {} pre-periods, {} post-periods)",
+        if a.log { "Multiplicative effect" } else { "Effect" },
+        a.outcome,
+        a.start,
+        run.fitted.model.name(),
+        split.pre_end,
+        split.post_len()
+    );
+    Ok(crate::verbs::Outcome { result, headline })
+}
