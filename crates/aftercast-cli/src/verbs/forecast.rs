@@ -80,9 +80,7 @@ fn trend_of(s: &str) -> anyhow::Result<Trend> {
         "level" => Ok(Trend::Level),
         "linear-trend" | "trend" => Ok(Trend::LinearTrend),
         "damped-trend" | "damped" => Ok(Trend::DampedTrend),
-        _ => Err(crate::failure::bad_input_msg(format!(
-            "--trend '{s}': use level, linear-trend or damped-trend"
-        ))),
+        _ => Err(crate::failure::bad_input_msg(format!("--trend '{s}': use level, linear-trend or damped-trend"))),
     }
 }
 
@@ -90,9 +88,7 @@ fn seasonality_of(s: &str) -> anyhow::Result<Seasonality> {
     match s {
         "additive" | "add" => Ok(Seasonality::Additive),
         "multiplicative" | "mul" => Ok(Seasonality::Multiplicative),
-        _ => Err(crate::failure::bad_input_msg(format!(
-            "--hw-seasonality '{s}': use additive or multiplicative"
-        ))),
+        _ => Err(crate::failure::bad_input_msg(format!("--hw-seasonality '{s}': use additive or multiplicative"))),
     }
 }
 
