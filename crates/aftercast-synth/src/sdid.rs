@@ -79,7 +79,9 @@ pub(crate) fn noise_level(y: &[Vec<f64>], controls: &[usize], t0: usize) -> f64 
     (d.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (n - 1.0)).sqrt()
 }
 
-/// One SDID estimate with weights re-estimated.
+/// One SDID estimate with weights re-estimated, straight from the definitions (the reference
+/// the cached version is tested against).
+#[cfg(test)]
 #[allow(clippy::too_many_arguments)]
 pub(crate) fn estimate(
     y: &[Vec<f64>],
@@ -132,6 +134,113 @@ pub(crate) fn estimate(
     Some(assemble(y, controls, &tr, t0, unit_sol, time_sol))
 }
 
+/// Quantities shared by the main SDID fit and every placebo replication, so that each
+/// replication costs two QPs: the pre-period Gram matrix of all units demeaned over time (plus
+/// the unit-weight ridge on its diagonal), and for the time weights the second moments of the
+/// original controls' pre-period vectors, shifted by their per-period mean (which leaves the
+/// cross-unit centring unchanged and avoids cancellation).
+pub(crate) struct Cache {
+    h_units: DMatrix<f64>,
+    controls: Vec<usize>,
+    /// Shifted pre-period vectors (all units; only controls are used).
+    pre: Vec<Vec<f64>>,
+    /// Post-period means (shifted by the controls' mean of post means).
+    post: Vec<f64>,
+    s_full: DMatrix<f64>,
+    q_full: Vec<f64>,
+    sum_pre: Vec<f64>,
+    sum_post: f64,
+    t0: usize,
+    zl2: f64,
+}
+
+impl Cache {
+    pub fn new(y: &[Vec<f64>], controls: &[usize], t0: usize, zeta: f64, sigma: f64) -> Self {
+        let n = y.len();
+        let nt = y[controls[0]].len();
+        let t1 = nt - t0;
+        let mut a = DMatrix::<f64>::zeros(t0, n);
+        for (u, row) in y.iter().enumerate() {
+            let m = row[..t0].iter().sum::<f64>() / t0 as f64;
+            for t in 0..t0 {
+                a[(t, u)] = if row[t].is_finite() { row[t] - m } else { 0.0 };
+            }
+        }
+        let mut h_units = a.tr_mul(&a);
+        for u in 0..n {
+            h_units[(u, u)] += zeta * zeta * t0 as f64;
+        }
+        let nc = controls.len() as f64;
+        let shift: Vec<f64> = (0..t0).map(|t| controls.iter().map(|&j| y[j][t]).sum::<f64>() / nc).collect();
+        let raw_post: Vec<f64> = y.iter().map(|r| r[t0..].iter().sum::<f64>() / t1 as f64).collect();
+        let post_shift = controls.iter().map(|&j| raw_post[j]).sum::<f64>() / nc;
+        let pre: Vec<Vec<f64>> = y.iter().map(|r| (0..t0).map(|t| r[t] - shift[t]).collect()).collect();
+        let post: Vec<f64> = raw_post.iter().map(|v| v - post_shift).collect();
+        let mut s_full = DMatrix::<f64>::zeros(t0, t0);
+        let mut q_full = vec![0.0; t0];
+        let mut sum_pre = vec![0.0; t0];
+        let mut sum_post = 0.0;
+        for &j in controls {
+            let v = nalgebra::DVector::from_column_slice(&pre[j]);
+            s_full.ger(1.0, &v, &v, 1.0);
+            for t in 0..t0 {
+                q_full[t] += pre[j][t] * post[j];
+                sum_pre[t] += pre[j][t];
+            }
+            sum_post += post[j];
+        }
+        let zl = 1e-6 * sigma;
+        Self { h_units, controls: controls.to_vec(), pre, post, s_full, q_full, sum_pre, sum_post, t0, zl2: zl * zl }
+    }
+
+    /// SDID estimate with `controls` (a subset of the cached controls) and `treated`.
+    pub fn estimate(
+        &self,
+        y: &[Vec<f64>],
+        controls: &[usize],
+        treated: &[usize],
+        shares: &[f64],
+        p: &SynthParams,
+    ) -> Option<Core> {
+        let t0 = self.t0;
+        let nt = y[controls[0]].len();
+        let tr: Vec<f64> = (0..nt).map(|t| treated.iter().zip(shares).map(|(&u, s)| s * y[u][t]).sum()).collect();
+        let b: Vec<f64> = controls
+            .iter()
+            .map(|&j| treated.iter().zip(shares).map(|(&u, s)| s * self.h_units[(j, u)]).sum())
+            .collect();
+        let unit_sol = simplex::solve_indexed(&self.h_units, &b, controls, &p.solver)?;
+        let mut s = self.s_full.clone();
+        let mut q = self.q_full.clone();
+        let mut sp = self.sum_pre.clone();
+        let mut spost = self.sum_post;
+        for &j in &self.controls {
+            if !controls.contains(&j) {
+                let v = nalgebra::DVector::from_column_slice(&self.pre[j]);
+                s.ger(-1.0, &v, &v, 1.0);
+                for t in 0..t0 {
+                    q[t] -= self.pre[j][t] * self.post[j];
+                    sp[t] -= self.pre[j][t];
+                }
+                spost -= self.post[j];
+            }
+        }
+        let n0 = controls.len() as f64;
+        let m: Vec<f64> = sp.iter().map(|v| v / n0).collect();
+        let pbar = spost / n0;
+        let mut ht = s;
+        for r in 0..t0 {
+            for c in 0..t0 {
+                ht[(r, c)] -= n0 * m[r] * m[c];
+            }
+            ht[(r, r)] += self.zl2 * n0;
+        }
+        let bt: Vec<f64> = (0..t0).map(|t| q[t] - n0 * m[t] * pbar).collect();
+        let time_sol = simplex::solve(&ht, &bt, &p.solver)?;
+        Some(assemble(y, controls, &tr, t0, unit_sol, time_sol))
+    }
+}
+
 fn assemble(
     y: &[Vec<f64>],
     controls: &[usize],
@@ -174,7 +283,9 @@ pub(crate) fn fit_sdid(prep: &Prepared, p: &SynthParams, outcome: &str, shares: 
     let sigma = noise_level(&prep.y, controls, t0);
     let t1 = nt - t0;
     let zeta = ((n1 * t1) as f64).powf(0.25) * sigma;
-    let core = estimate(&prep.y, controls, &prep.treated, &shares, t0, zeta, sigma, p)
+    let cache = Cache::new(&prep.y, controls, t0, zeta, sigma);
+    let core = cache
+        .estimate(&prep.y, controls, &prep.treated, &shares, p)
         .ok_or(SynthError::TooFewDonors { found: controls.len(), needed: 2 })?;
     let label = if n1 == 1 { prep.units[prep.treated[0]].clone() } else { format!("average of {n1} treated units") };
     check_solver(&label, &core.unit_sol, p.solver.tolerance)?;
@@ -196,7 +307,7 @@ pub(crate) fn fit_sdid(prep: &Prepared, p: &SynthParams, outcome: &str, shares: 
             }
             let (pt, pc) = pool.split_at(n1);
             let eq = vec![1.0 / n1 as f64; n1];
-            estimate(&prep.y, pc, pt, &eq, t0, zeta, sigma, p).map(|c| c.tau_path)
+            cache.estimate(&prep.y, pc, pt, &eq, p).map(|c| c.tau_path)
         });
         let ok: Vec<Vec<f64>> = res.into_iter().flatten().collect();
         ("placebo", ok.len(), ok)
@@ -316,4 +427,39 @@ pub(crate) fn fit_sdid(prep: &Prepared, p: &SynthParams, outcome: &str, shares: 
         sdid: Some(sd),
         warnings,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn cached_estimate_equals_direct_estimate() {
+        let mut state = 5u64;
+        let mut u = move || {
+            state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            (state >> 11) as f64 / (1u64 << 53) as f64 - 0.5
+        };
+        let (n, nt, t0) = (12, 16, 12);
+        let y: Vec<Vec<f64>> =
+            (0..n).map(|i| (0..nt).map(|t| 1000.0 + 10.0 * i as f64 + t as f64 + 3.0 * u()).collect()).collect();
+        let p = SynthParams::default();
+        let controls: Vec<usize> = (0..10).collect();
+        let sigma = noise_level(&y, &controls, t0);
+        let zeta = 2.0 * sigma;
+        let cache = Cache::new(&y, &controls, t0, zeta, sigma);
+        for (ctrl, tr) in
+            [(controls.clone(), vec![11usize]), ((0..10).filter(|&j| j != 4).collect::<Vec<_>>(), vec![4usize])]
+        {
+            let a = estimate(&y, &ctrl, &tr, &[1.0], t0, zeta, sigma, &p).unwrap();
+            let b = cache.estimate(&y, &ctrl, &tr, &[1.0], &p).unwrap();
+            assert!((a.tau - b.tau).abs() < 1e-7, "{} vs {}", a.tau, b.tau);
+            for (x, z) in a.omega.iter().zip(&b.omega) {
+                assert!((x - z).abs() < 1e-7);
+            }
+            for (x, z) in a.lambda.iter().zip(&b.lambda) {
+                assert!((x - z).abs() < 1e-6);
+            }
+        }
+    }
 }

@@ -69,10 +69,10 @@ pub struct Args {
 pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     let table = read_table(&a.data)?;
     let mut covariates = comma_list(&a.predictors);
-    if let Some(s) = &a.size {
-        if !covariates.contains(s) {
-            covariates.push(s.clone());
-        }
+    if let Some(s) = &a.size
+        && !covariates.contains(s)
+    {
+        covariates.push(s.clone());
     }
     let spec = LongPanelSpec {
         unit: a.unit.clone(),
