@@ -217,13 +217,13 @@ impl Acc {
         for (a, b) in self.sums.iter_mut().zip(other.sums) {
             match a.checked_add(b) {
                 Some(s) => *a = s,
-                None => self.overflow = self.overflow.or(Some((0, 0))),
+                None => self.overflow = self.overflow.or(Some((usize::MAX, 0))),
             }
         }
         for (a, b) in self.counts.iter_mut().zip(other.counts) {
             match a.checked_add(b) {
                 Some(c) => *a = c,
-                None => self.overflow = self.overflow.or(Some((0, 0))),
+                None => self.overflow = self.overflow.or(Some((usize::MAX, 0))),
             }
         }
         for (a, b) in self.days.iter_mut().zip(other.days) {
@@ -232,7 +232,7 @@ impl Acc {
         for (a, b) in self.series_sums.iter_mut().zip(other.series_sums) {
             match a.checked_add(b) {
                 Some(s) => *a = s,
-                None => self.overflow = self.overflow.or(Some((0, 0))),
+                None => self.overflow = self.overflow.or(Some((usize::MAX, 0))),
             }
         }
         for (a, b) in self.series_counts.iter_mut().zip(other.series_counts) {

@@ -152,7 +152,9 @@ pub enum WindowsError {
     },
     /// A sum left the range the exact accumulator holds (about +-7.4e19), or a count passed
     /// 4 294 967 295 events of one unit, window and metric.
-    #[error("sum or count of metric '{metric}' for unit '{unit}' exceeds the accumulator range (|sum| < 7.4e19, count < 2^32)")]
+    #[error(
+        "sum or count of metric '{metric}' for unit '{unit}' exceeds the accumulator range (|sum| < 7.4e19, count < 2^32)"
+    )]
     Overflow {
         /// The metric.
         metric: String,
