@@ -210,6 +210,7 @@ nav.toc a:hover{text-decoration:underline}
 .cards{display:grid;grid-template-columns:repeat(auto-fit,minmax(min(100%,300px),1fr));gap:12px;margin:14px 0}
 .card{background:#fff;border:1px solid var(--grid);border-radius:6px;padding:12px 14px}
 .card h3{margin:0 0 6px;font-size:15px}
+.card h3 a{color:var(--ink);text-decoration:none;border-bottom:2px solid var(--ochre)}
 .card p{margin:4px 0;font-size:14px}
 .chip{display:inline-block;font-size:13px;font-weight:bold;letter-spacing:.04em;padding:2px 10px;border-radius:999px;border:1px solid currentColor}
 .v-gain{color:var(--teal)}.v-gain-but-small{color:#4f8a4a}.v-negligible{color:var(--slate)}.v-loss-but-small{color:#b0623a}.v-loss{color:var(--brick)}.v-inconclusive{color:var(--muted)}
@@ -230,7 +231,7 @@ figure h4{margin:0 0 2px;font-size:16px}
 figcaption{font-size:14px;color:var(--muted);margin:0 0 6px}
 figure svg{display:block;width:100%;height:auto}
 svg.chart text{font-family:"DejaVu Sans",Verdana,sans-serif}
-.figs{display:grid;grid-template-columns:repeat(auto-fit,minmax(min(100%,460px),1fr));gap:14px}
+.figs{display:grid;grid-template-columns:repeat(auto-fit,minmax(min(100%,760px),1fr));gap:14px}
 .figs figure{margin:0}
 .warnings{list-style:none;padding:0;margin:8px 0}
 .warnings li{background:#fbefe9;border-left:5px solid var(--brick);padding:8px 12px;margin:6px 0;border-radius:3px}
@@ -600,6 +601,18 @@ fn figure(out: &mut String, c: &charts::Chart) {
     out.push_str("</figure>\n");
 }
 
+fn group_int(n: usize) -> String {
+    let digits = n.to_string();
+    let mut out = String::new();
+    for (i, c) in digits.chars().enumerate() {
+        if i > 0 && (digits.len() - i).is_multiple_of(3) {
+            out.push(',');
+        }
+        out.push(c);
+    }
+    out
+}
+
 fn data_section(out: &mut String, input: &ReportInput) {
     out.push_str("<section id=\"data\">\n<h2>The data</h2>\n");
     let mut seen: Vec<(String, String, usize)> = Vec::new();
@@ -619,7 +632,7 @@ fn data_section(out: &mut String, input: &ReportInput) {
                 out,
                 "<tr><td><code>{}</code></td><td class=\"num\">{}</td><td class=\"hash\">{}</td></tr>",
                 escape(p),
-                crate::fmt_abs(*n as f64),
+                group_int(*n),
                 escape(h)
             );
         }

@@ -5,7 +5,7 @@
 //!   ([`counterfactual_chart`], [`effect_chart`], [`running_total_chart`], [`placebo_gap_chart`],
 //!   [`weights_chart`], [`propensity_chart`], [`balance_chart`], [`rosenbaum_chart`],
 //!   [`posterior_chart`], [`estimates_chart`], [`power_chart`], [`mde_chart`]);
-//! - [`charts_for`] / [`write_all`], which pick what to draw from an [`AnalysisResult`] plus the
+//! - [`charts_for`] / [`write_all`], which pick what to draw from an [`AnalysisResult`](aftercast_core::result::AnalysisResult) plus the
 //!   [`ChartExtras`] a verb can hand over (draws, placebo gaps, backtest grids).
 //!
 //! A chart is written with [`Chart::to_png`], [`Chart::to_svg`] or [`Chart::write`]. Odd data

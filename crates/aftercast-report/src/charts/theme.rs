@@ -174,7 +174,7 @@ mod tests {
         assert_eq!(fmt_tick(0.25, 1.0, ValueFormat::Number), "0.25");
         assert_eq!(fmt_tick(-0.0, 1.0, ValueFormat::Number), "0.00");
         assert_eq!(fmt_tick(0.05, 0.2, ValueFormat::Percent), "5%");
-        assert_eq!(fmt_tick(2_500_000.0, 3_000_000.0, ValueFormat::Number), "2.5M");
+        assert_eq!(fmt_tick(2_500_000.0, 3_000_000.0, ValueFormat::Number), "2.50M");
         assert_eq!(fmt_day(0.0, 30.0), "1 Jan");
         assert_eq!(fmt_day(365.0, 500.0), "Jan 1971");
         assert_eq!(wrap("a bb ccc dddd", 6), vec!["a bb", "ccc", "dddd"]);
