@@ -31,6 +31,8 @@ pub(crate) enum Verb {
     Match(verbs::match_::Args),
     /// Counterfactual of one series from its own past and control series (seasonal forecast).
     Forecast(verbs::forecast::Args),
+    /// Synthetic control: a weighted mix of untouched units as the counterfactual of treated units.
+    Synthetic(verbs::synthetic::Args),
     /// Turn an event log into per-unit metric windows and per-group series (native or Spark).
     Windows(verbs::windows::Args),
 }
@@ -43,6 +45,7 @@ fn threads_of(verb: &Verb) -> Option<u64> {
         Verb::Run(a) => a.threads,
         Verb::Demo(a) => a.threads,
         Verb::Match(a) => a.common.threads,
+        Verb::Synthetic(a) => a.common.threads,
     }
 }
 
@@ -53,6 +56,7 @@ pub(crate) fn analyze(verb: &Verb) -> Option<anyhow::Result<verbs::Outcome>> {
         Verb::Forecast(a) => Some(verbs::forecast::run(a)),
         Verb::Inspect(_) | Verb::Run(_) | Verb::Demo(_) => None,
         Verb::Match(a) => Some(verbs::match_::run(a)),
+        Verb::Synthetic(a) => Some(verbs::synthetic::run(a)),
     }
 }
 
@@ -64,6 +68,7 @@ fn dispatch(verb: &Verb) -> anyhow::Result<()> {
         Verb::Run(a) => verbs::run::run(a),
         Verb::Demo(a) => verbs::demo::run(a),
         Verb::Match(a) => verbs::finish(&a.common, verbs::match_::run(a)?),
+        Verb::Synthetic(a) => verbs::finish(&a.common, verbs::synthetic::run(a)?),
     }
 }
 

@@ -57,7 +57,7 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
             let _ = writeln!(s, "truth = {}\ntruth_of = \"relative\"", t.app_launch.orders.relative_effect);
             let _ = writeln!(s, "[analysis.flags]\ndata = \"data/app_daily.csv\"\ntime = \"date\"\noutcome = \"app_orders\"");
             let _ = writeln!(s, "controls = \"catalogue_orders,weather_index\"\nevents = \"data/calendar.csv\"");
-            let _ = writeln!(s, "start = {}\nmodel = {}\n", q(&t.app_launch.launch_date), q(model));
+            let _ = writeln!(s, "start = {}\nmodel = {}\nlog = true\n", q(&t.app_launch.launch_date), q(model));
         }
     }
     if has_verb("synthetic") {
@@ -77,7 +77,8 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
             let _ = writeln!(s, "describe = \"90-day spend of scheme members against similar non-members ({method})\"");
             let _ = writeln!(s, "truth = {}\ntruth_of = \"average\"", t.loyalty.sample_att);
             let _ = writeln!(s, "[analysis.flags]\ndata = \"data/members.csv\"\ntreatment = \"joined\"\noutcome = \"spend_90d\"");
-            let _ = writeln!(s, "covariates = \"spend_pre,visits_pre,tenure_months,region,age_band\"\nmethod = \"{method}\"\nestimand = \"att\"\nrope = \"1\"\n");
+            let _ = writeln!(s, "covariates = \"spend_pre,visits_pre,tenure_months\"\ncategorical = \"region,age_band\"");
+            let _ = writeln!(s, "method = \"{method}\"\nestimand = \"att\"\nrope = \"1\"\n");
         }
     }
     if has_verb("compare") {

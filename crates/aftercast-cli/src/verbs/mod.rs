@@ -5,6 +5,7 @@ pub mod forecast;
 pub mod inspect;
 pub mod match_;
 pub mod run;
+pub mod synthetic;
 pub mod windows;
 
 use crate::common::{Common, write_outputs};
