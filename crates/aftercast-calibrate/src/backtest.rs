@@ -305,8 +305,7 @@ pub fn placebo_origins(n: usize, min_train: usize, horizon: usize, k: usize) -> 
     if k == 1 {
         return vec![hi];
     }
-    let mut v: Vec<usize> =
-        (0..k).map(|i| lo + ((i as f64) * span as f64 / (k - 1) as f64).round() as usize).collect();
+    let mut v: Vec<usize> = (0..k).map(|i| lo + ((i as f64) * span as f64 / (k - 1) as f64).round() as usize).collect();
     v.dedup();
     v
 }
@@ -323,10 +322,8 @@ fn evaluate_origin(
     let tail = (1.0 - spec.level) / 2.0;
     let sums = |len: usize| -> (f64, Vec<f64>) {
         let sy: f64 = y[..len].iter().filter(|v| v.is_finite()).sum();
-        let scf: Vec<f64> = paths
-            .iter()
-            .map(|p| (0..len).filter(|&t| y[t].is_finite()).map(|t| p[t]).sum::<f64>())
-            .collect();
+        let scf: Vec<f64> =
+            paths.iter().map(|p| (0..len).filter(|&t| y[t].is_finite()).map(|t| p[t]).sum::<f64>()).collect();
         (sy, scf)
     };
     let ratio_hdi = |len: usize| -> (f64, f64) {
@@ -454,7 +451,10 @@ pub fn aggregate(
         warnings.push(format!("{} placebo fits failed and are left out", failures.len()));
     }
     if k > 0 && k < 30 {
-        warnings.push(format!("{k} placebo origins give rates with a standard error near {:.0}%", 50.0 / (k as f64).sqrt()));
+        warnings.push(format!(
+            "{k} placebo origins give rates with a standard error near {:.0}%",
+            50.0 / (k as f64).sqrt()
+        ));
     }
     BacktestReport {
         model: model.into(),
@@ -606,7 +606,9 @@ pub fn run(
     if let Some(pw) = &partial
         && let Ok(mut w) = pw.lock()
     {
-        w.write(&json!({"record": "summary", "interrupted": interrupted, "origins_completed": report.origins_completed}))?;
+        w.write(
+            &json!({"record": "summary", "interrupted": interrupted, "origins_completed": report.origins_completed}),
+        )?;
     }
     Ok(report)
 }

@@ -46,7 +46,14 @@ impl From<&Truth> for TruthSummary {
             Metric::Mean { outcome } => format!("difference in means of {outcome}"),
             Metric::Ratio { numerator, denominator } => format!("difference in {numerator}/{denominator}"),
         };
-        TruthSummary { label, point: t.point, summary: t.summary, effect: t.effect.clone(), verdict: t.verdict, details }
+        TruthSummary {
+            label,
+            point: t.point,
+            summary: t.summary,
+            effect: t.effect.clone(),
+            verdict: t.verdict,
+            details,
+        }
     }
 }
 
@@ -127,7 +134,13 @@ impl ComparisonRow {
         if !self.warnings.is_empty() {
             extra.insert("warnings".into(), json!(self.warnings));
         }
-        EstimateRow { method: self.method.clone(), summary: self.summary, bias: self.bias, covers_truth: self.covers_truth, extra }
+        EstimateRow {
+            method: self.method.clone(),
+            summary: self.summary,
+            bias: self.bias,
+            covers_truth: self.covers_truth,
+            extra,
+        }
     }
 }
 
@@ -242,7 +255,11 @@ pub fn compare_units(
 ) -> CalibrateResult<Comparison> {
     opts.check()?;
     if pools.is_empty() {
-        return Err(CalibrateError::BadParameter { name: "--pool", value: String::new(), detail: "at least one pool".into() });
+        return Err(CalibrateError::BadParameter {
+            name: "--pool",
+            value: String::new(),
+            detail: "at least one pool".into(),
+        });
     }
     let truth = experiment_truth(experiment, &Metric::Mean { outcome: spec.outcome.clone() }, opts)?;
     let ts = TruthSummary::from(&truth);
@@ -262,7 +279,11 @@ pub fn compare_units(
         for m in methods {
             match m.estimate(&sample, &spec.outcome, &spec.covariates, opts) {
                 Ok(est) => rows.push(ComparisonRow::new(&m.name(), &pool.name, est, &ts, Some(truth.n_treated), opts)),
-                Err(e) => failures.push(MethodFailure { method: m.name(), setting: pool.name.clone(), message: format!("{e}") }),
+                Err(e) => failures.push(MethodFailure {
+                    method: m.name(),
+                    setting: pool.name.clone(),
+                    message: format!("{e}"),
+                }),
             }
         }
     }

@@ -68,7 +68,13 @@ impl UnitEstimator for Naive {
         "naive".into()
     }
 
-    fn estimate(&self, s: &UnitTable, outcome: &str, _c: &[String], opts: &DrawOptions) -> CalibrateResult<MethodEstimate> {
+    fn estimate(
+        &self,
+        s: &UnitTable,
+        outcome: &str,
+        _c: &[String],
+        opts: &DrawOptions,
+    ) -> CalibrateResult<MethodEstimate> {
         let y = outcome_of(s, outcome)?;
         let (mut t, mut c) = (Vec::new(), Vec::new());
         for (v, &tr) in y.iter().zip(&s.treated) {
@@ -127,7 +133,7 @@ fn standardised(s: &UnitTable, covariates: &[String]) -> CalibrateResult<Vec<Vec
         let n = v.len() as f64;
         let m = v.iter().sum::<f64>() / n;
         let sd = (v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / n).sqrt();
-        if !(sd > 0.0) {
+        if sd.is_nan() || sd <= 0.0 {
             return Err(CalibrateError::Singular { columns: covariates.to_vec() });
         }
         out.push(v.iter().map(|x| (x - m) / sd).collect());
@@ -173,7 +179,13 @@ impl UnitEstimator for Regression {
         }
     }
 
-    fn estimate(&self, s: &UnitTable, outcome: &str, covariates: &[String], opts: &DrawOptions) -> CalibrateResult<MethodEstimate> {
+    fn estimate(
+        &self,
+        s: &UnitTable,
+        outcome: &str,
+        covariates: &[String],
+        opts: &DrawOptions,
+    ) -> CalibrateResult<MethodEstimate> {
         let y = outcome_of(s, outcome)?;
         let n = s.len();
         let xs = standardised(s, covariates)?;

@@ -70,7 +70,8 @@ impl HistoryRecord {
 /// # Errors
 /// [`CalibrateError::Io`] when the file cannot be opened or written.
 pub fn append(path: &Path, records: &[HistoryRecord]) -> CalibrateResult<()> {
-    let io = |source| CalibrateError::Io { path: path.to_path_buf(), what: "cannot append to the history file", source };
+    let io =
+        |source| CalibrateError::Io { path: path.to_path_buf(), what: "cannot append to the history file", source };
     let mut text = String::new();
     for r in records {
         text.push_str(&serde_json::to_string(r).unwrap_or_default());

@@ -76,7 +76,7 @@ fn outcome_model(units: &UnitTable, outcome: &str, covariates: &[String]) -> Cal
         })?;
         let m = v.iter().sum::<f64>() / n as f64;
         let sd = (v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / n as f64).sqrt();
-        if !(sd > 0.0) {
+        if sd.is_nan() || sd <= 0.0 {
             return Err(CalibrateError::Singular { columns: covariates.to_vec() });
         }
         cols.push(v.iter().map(|x| (x - m) / sd).collect());

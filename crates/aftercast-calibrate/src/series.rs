@@ -51,9 +51,15 @@ pub struct ArmSeries {
 impl ArmSeries {
     fn check(&self) -> CalibrateResult<()> {
         let n = self.treated.len();
-        let bad = |name: &'static str, value: String, detail: String| Err(CalibrateError::BadParameter { name, value, detail });
+        let bad = |name: &'static str, value: String, detail: String| {
+            Err(CalibrateError::BadParameter { name, value, detail })
+        };
         if self.control.len() != n {
-            return bad("--control-arm", self.control.len().to_string(), format!("needs {n} periods like the treated arm"));
+            return bad(
+                "--control-arm",
+                self.control.len().to_string(),
+                format!("needs {n} periods like the treated arm"),
+            );
         }
         for (what, s) in [("treated share", self.treated_share), ("control share", self.control_share)] {
             if !(s > 0.0 && s < 1.0) {
@@ -115,7 +121,8 @@ pub fn series_truth(arms: &ArmSeries, opts: &DrawOptions) -> CalibrateResult<Tru
         (e, b)
     });
     let (draws, baseline): (Vec<f64>, Vec<f64>) = pairs.into_iter().unzip();
-    let (effect, verdict) = scalar_effects(&draws, Some(&baseline), Some(d.len()), opts.level, &opts.rope, opts.threshold);
+    let (effect, verdict) =
+        scalar_effects(&draws, Some(&baseline), Some(d.len()), opts.level, &opts.rope, opts.threshold);
     let mut details = Map::new();
     details.insert("window_periods".into(), json!(d.len()));
     details.insert("allocation_ratio".into(), json!(r));
@@ -148,7 +155,11 @@ fn model_estimate(
         .paths(&arms.treated[..s], &ctrl, h, opts.draws, child_seed(opts.seed, &model.name()))
         .map_err(|source| CalibrateError::Method { method: model.name(), setting: arms.name.clone(), source })?;
     if paths.is_empty() || paths.iter().any(|p| p.len() != h || p.iter().any(|v| !v.is_finite())) {
-        return Err(CalibrateError::BadPaths { model: model.name(), origin: s, detail: format!("expected finite paths of length {h}") });
+        return Err(CalibrateError::BadPaths {
+            model: model.name(),
+            origin: s,
+            detail: format!("expected finite paths of length {h}"),
+        });
     }
     let y = &arms.treated[s..e];
     let (draws, baseline): (Vec<f64>, Vec<f64>) = paths
@@ -162,7 +173,14 @@ fn model_estimate(
     let mut diagnostics = Map::new();
     diagnostics.insert("paths".into(), json!(paths.len()));
     diagnostics.insert("fitted_on_periods".into(), json!(s));
-    Ok(MethodEstimate { point, draws, baseline: Some(baseline), estimand: "effect on the treated arm".into(), diagnostics, warnings: Vec::new() })
+    Ok(MethodEstimate {
+        point,
+        draws,
+        baseline: Some(baseline),
+        estimand: "effect on the treated arm".into(),
+        diagnostics,
+        warnings: Vec::new(),
+    })
 }
 
 /// Compare forecast models (fitted on the treated arm's pre-period, with `arms.controls`) and
@@ -193,8 +211,18 @@ pub fn compare_series(
     for (m, c) in runs {
         match model_estimate(m, arms, c, opts) {
             Ok(est) => rows.push(ComparisonRow::new(&m.name(), &arms.name, est, &truth, Some(h), opts)),
-            Err(e) => failures.push(MethodFailure { method: m.name(), setting: arms.name.clone(), message: e.to_string() }),
+            Err(e) => {
+                failures.push(MethodFailure { method: m.name(), setting: arms.name.clone(), message: e.to_string() })
+            }
         }
     }
-    Ok(Comparison { truth, rows, failures, options: *opts, inputs: arms.inputs.clone(), warnings, kind: "series".into() })
+    Ok(Comparison {
+        truth,
+        rows,
+        failures,
+        options: *opts,
+        inputs: arms.inputs.clone(),
+        warnings,
+        kind: "series".into(),
+    })
 }

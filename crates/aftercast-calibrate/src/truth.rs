@@ -134,9 +134,7 @@ pub fn experiment_truth(units: &UnitTable, metric: &Metric, opts: &DrawOptions) 
             let (t, c) = split(units, y);
             let tv = t.iter().sum::<f64>() / t.len() as f64;
             let cv = c.iter().sum::<f64>() / c.len() as f64;
-            let d = BayesBootstrap::new(opts.draws, seed)
-                .two_groups(&t, &c)
-                .map_err(boot_err("experiment arms"))?;
+            let d = BayesBootstrap::new(opts.draws, seed).two_groups(&t, &c).map_err(boot_err("experiment arms"))?;
             (tv, cv, d.difference, d.control_mean)
         }
         Metric::Ratio { numerator, denominator } => {

@@ -27,7 +27,10 @@ fn no_effect_series_false_positive_rate_power_and_mde() {
     let r = backtest::run(&model, &data, &spec(), &RunControl::default()).unwrap();
     assert_eq!(r.origins_completed, 120);
     assert!(!r.interrupted);
-    eprintln!("fpr {} window cov {} pointwise {} rmse {}", r.false_positive_rate, r.window_coverage, r.pointwise_coverage, r.rmse);
+    eprintln!(
+        "fpr {} window cov {} pointwise {} rmse {}",
+        r.false_positive_rate, r.window_coverage, r.pointwise_coverage, r.rmse
+    );
     // Nominal 10% at level 0.9 (exact predictive intervals): within 4%-16% over 120 placebo dates.
     assert!(
         r.false_positive_rate >= tol::FPR_RANGE.0 && r.false_positive_rate <= tol::FPR_RANGE.1,
@@ -60,9 +63,17 @@ fn no_effect_series_false_positive_rate_power_and_mde() {
     eprintln!("mde {mde:?}");
     assert!(mde[0] > mde[1] && mde[1] > mde[2]);
     for (m, len) in mde.iter().zip([7, 14, 28]) {
-        let d = r.origins.iter().filter(|o| backtest::detected(o.windows.iter().find(|w| w.length == len).unwrap(), m * 1.000001)).count();
+        let d = r
+            .origins
+            .iter()
+            .filter(|o| backtest::detected(o.windows.iter().find(|w| w.length == len).unwrap(), m * 1.000001))
+            .count();
         assert!(d as f64 / 120.0 >= 0.8, "power just above the MDE {m} at {len}: {d}");
-        let d = r.origins.iter().filter(|o| backtest::detected(o.windows.iter().find(|w| w.length == len).unwrap(), m * 0.999)).count();
+        let d = r
+            .origins
+            .iter()
+            .filter(|o| backtest::detected(o.windows.iter().find(|w| w.length == len).unwrap(), m * 0.999))
+            .count();
         assert!((d as f64 / 120.0) < 0.8, "power just below the MDE {m} at {len}: {d}");
     }
     // Analytic check of the scale: sd of a 28-day relative mean error ~ 5/100 * sqrt(1/28 + 1/40),
@@ -109,7 +120,8 @@ fn interruption_keeps_finished_origins_in_the_partial_file() {
     let dir = tempfile::tempdir().unwrap();
     let partial = dir.path().join("partial.jsonl");
     let flag = AtomicBool::new(false);
-    let model = StopsAfter { inner: NormalPredictive { window: 40 }, calls: AtomicUsize::new(0), after: 5, flag: &flag };
+    let model =
+        StopsAfter { inner: NormalPredictive { window: 40 }, calls: AtomicUsize::new(0), after: 5, flag: &flag };
     let control = RunControl { stop: Some(&flag), partial: Some(&partial), progress: false };
     let r = backtest::run(&model, &data, &spec(), &control).unwrap();
     assert!(r.interrupted);

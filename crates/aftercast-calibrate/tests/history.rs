@@ -43,10 +43,7 @@ fn coverage_and_inflation_factor_by_hand() {
     assert!((b.coverage - 0.25).abs() < tol::ARITH);
     assert!((b.inflation_factor - 1.5).abs() < tol::ARITH, "{}", b.inflation_factor);
     // widening b's intervals by the factor reaches the nominal 50%: 2 of 4
-    let widened = rs[10..]
-        .iter()
-        .filter(|r| (r.truth - 10.0).abs() <= b.inflation_factor * 1.0)
-        .count();
+    let widened = rs[10..].iter().filter(|r| (r.truth - 10.0).abs() <= b.inflation_factor * 1.0).count();
     assert_eq!(widened, 2);
     // bias = 10 - truth: -0.5, -1.5, -2, -3 -> mean -1.75, RMSE sqrt((0.25+2.25+4+9)/4)
     assert!((b.mean_bias + 1.75).abs() < tol::ARITH);

@@ -38,7 +38,8 @@ fn ratio_metric_truth_is_the_difference_of_ratios() {
     // ratio of sums is well defined: sum re78 / sum re75 per arm.
     let u = nsw();
     let opts = DrawOptions { draws: 500, ..Default::default() };
-    let t = experiment_truth(&u, &Metric::Ratio { numerator: "re78".into(), denominator: "re75".into() }, &opts).unwrap();
+    let t =
+        experiment_truth(&u, &Metric::Ratio { numerator: "re78".into(), denominator: "re75".into() }, &opts).unwrap();
     let sums = |g: bool, c: &str| -> f64 {
         let v = u.outcome(c).or_else(|| u.numeric(c)).unwrap();
         v.iter().zip(&u.treated).filter(|(_, t)| **t == g).map(|(v, _)| *v).sum()
@@ -52,7 +53,10 @@ fn ratio_metric_truth_is_the_difference_of_ratios() {
 fn comparison_table_against_cps1_method_by_method() {
     let opts = DrawOptions { draws: 100, ..Default::default() };
     let terms: Vec<aftercast_match::design::Term> =
-        ["age^2", "age^3", "educ^2", "zero(re74)", "zero(re75)", "educ:re74"].iter().map(|t| t.parse().unwrap()).collect();
+        ["age^2", "age^3", "educ^2", "zero(re74)", "zero(re75)", "educ:re74"]
+            .iter()
+            .map(|t| t.parse().unwrap())
+            .collect();
     let mut methods: Vec<Box<dyn UnitEstimator>> = vec![
         Box::new(Naive),
         Box::new(Regression { kind: RegressionKind::Coefficient }),
@@ -71,7 +75,16 @@ fn comparison_table_against_cps1_method_by_method() {
     let names: Vec<&str> = rows.iter().map(|r| r.method.as_str()).collect();
     assert_eq!(
         names,
-        ["naive", "regression", "regression-imputation", "match:nearest", "match:strata", "match:ipw", "match:overlap", "match:aipw"]
+        [
+            "naive",
+            "regression",
+            "regression-imputation",
+            "match:nearest",
+            "match:strata",
+            "match:ipw",
+            "match:overlap",
+            "match:aipw"
+        ]
     );
     let truth = doc.truth.unwrap();
     assert!((c.truth.point - 1794.34).abs() < tol::TRUTH_DOLLARS);
@@ -82,7 +95,12 @@ fn comparison_table_against_cps1_method_by_method() {
         assert!((rel - r.bias / c.truth.point).abs() < tol::ARITH, "{}", r.method);
         let bsd = r.extra["bias_in_truth_sd"].as_f64().unwrap();
         assert!((bsd - r.bias / truth.sd).abs() < tol::ARITH, "{}", r.method);
-        assert_eq!(r.covers_truth, r.summary.lower <= c.truth.point && c.truth.point <= r.summary.upper, "{}", r.method);
+        assert_eq!(
+            r.covers_truth,
+            r.summary.lower <= c.truth.point && c.truth.point <= r.summary.upper,
+            "{}",
+            r.method
+        );
         let agrees = r.extra["verdict"].as_str().unwrap() == doc.verdict.word();
         assert_eq!(r.extra["verdict_agrees"].as_bool().unwrap(), agrees, "{}", r.method);
     }
@@ -108,6 +126,15 @@ fn comparison_table_against_cps1_method_by_method() {
     }
     assert_eq!(row("match:overlap").extra["estimand"], "ATO");
     for r in &c.rows {
-        eprintln!("{:22} {:9.1} [{:9.1}, {:9.1}] bias {:9.1} covers {} {}", r.method, r.estimate, r.summary.lower, r.summary.upper, r.bias, r.covers_truth, r.verdict.word());
+        eprintln!(
+            "{:22} {:9.1} [{:9.1}, {:9.1}] bias {:9.1} covers {} {}",
+            r.method,
+            r.estimate,
+            r.summary.lower,
+            r.summary.upper,
+            r.bias,
+            r.covers_truth,
+            r.verdict.word()
+        );
     }
 }

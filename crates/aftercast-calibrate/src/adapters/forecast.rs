@@ -53,7 +53,14 @@ impl PathModel for StructuralModel {
         s
     }
 
-    fn paths(&self, y: &[f64], controls: &[Vec<f64>], horizon: usize, draws: usize, seed: u64) -> Result<Vec<Vec<f64>>, ModelError> {
+    fn paths(
+        &self,
+        y: &[f64],
+        controls: &[Vec<f64>],
+        horizon: usize,
+        draws: usize,
+        seed: u64,
+    ) -> Result<Vec<Vec<f64>>, ModelError> {
         let spec = StructuralSpec {
             trend: self.trend,
             seasons: self.seasons.clone(),

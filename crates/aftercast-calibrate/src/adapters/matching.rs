@@ -43,7 +43,13 @@ impl UnitEstimator for MatchEstimator {
         format!("match:{}", self.params.method.name())
     }
 
-    fn estimate(&self, s: &UnitTable, outcome: &str, covariates: &[String], opts: &DrawOptions) -> CalibrateResult<MethodEstimate> {
+    fn estimate(
+        &self,
+        s: &UnitTable,
+        outcome: &str,
+        covariates: &[String],
+        opts: &DrawOptions,
+    ) -> CalibrateResult<MethodEstimate> {
         let mut p = self.params.clone();
         if p.covariates.is_empty() {
             p.covariates = covariates.to_vec();
@@ -63,10 +69,7 @@ impl UnitEstimator for MatchEstimator {
         d.insert("ess_controls".into(), json!(fitted.counts.ess_controls));
         let worst = fitted.balance.iter().map(|b| b.row().smd_after.abs()).fold(0.0, f64::max);
         d.insert("max_abs_smd_after".into(), json!(worst));
-        d.insert(
-            "terms".into(),
-            Value::from(p.terms.iter().map(|t| Value::from(t.label())).collect::<Vec<_>>()),
-        );
+        d.insert("terms".into(), Value::from(p.terms.iter().map(|t| Value::from(t.label())).collect::<Vec<_>>()));
         Ok(MethodEstimate {
             point: fitted.estimate,
             draws: fitted.draws,

@@ -29,7 +29,14 @@ impl PathModel for SyntheticModel {
         format!("synthetic({})", self.method.name())
     }
 
-    fn paths(&self, y: &[f64], controls: &[Vec<f64>], horizon: usize, _draws: usize, seed: u64) -> Result<Vec<Vec<f64>>, ModelError> {
+    fn paths(
+        &self,
+        y: &[f64],
+        controls: &[Vec<f64>],
+        horizon: usize,
+        _draws: usize,
+        seed: u64,
+    ) -> Result<Vec<Vec<f64>>, ModelError> {
         let n = y.len();
         let total = n + horizon;
         let axis = TimeAxis::regular(Frequency::Period, TimePoint::Period(0), total)?;
@@ -53,12 +60,11 @@ impl PathModel for SyntheticModel {
             covariates: Vec::new(),
             input: InputInfo { path: "backtest".into(), sha256: String::new(), rows: total * (controls.len() + 1) },
         };
-        let fit = SynthParams::new()
-            .method(self.method)
-            .level(self.level)
-            .seed(seed)
-            .check()?
-            .fit(&panel, &["target".to_string()], TimePoint::Period(n as i64))?;
+        let fit = SynthParams::new().method(self.method).level(self.level).seed(seed).check()?.fit(
+            &panel,
+            &["target".to_string()],
+            TimePoint::Period(n as i64),
+        )?;
         let draws = fit.draws.counterfactual;
         if draws.is_empty() {
             return Err(format!("the synthetic control gave no counterfactual draws ({})", fit.draws.source).into());

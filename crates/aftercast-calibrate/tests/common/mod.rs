@@ -63,7 +63,14 @@ impl PathModel for NormalPredictive {
         "normal-predictive".into()
     }
 
-    fn paths(&self, y: &[f64], _c: &[Vec<f64>], horizon: usize, draws: usize, seed: u64) -> Result<Vec<Vec<f64>>, ModelError> {
+    fn paths(
+        &self,
+        y: &[f64],
+        _c: &[Vec<f64>],
+        horizon: usize,
+        draws: usize,
+        seed: u64,
+    ) -> Result<Vec<Vec<f64>>, ModelError> {
         let w: Vec<f64> = y[y.len().saturating_sub(self.window)..].iter().copied().filter(|v| v.is_finite()).collect();
         let n = w.len();
         if n < 3 {
