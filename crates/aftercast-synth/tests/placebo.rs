@@ -67,6 +67,7 @@ fn no_effect_simulations_reject_at_about_the_nominal_rate() {
         }
     }
     let share = f64::from(hits) / runs as f64;
+    eprintln!("share of no-effect panels with placebo p < 0.1: {share}");
     assert!(share >= tol::PLACEBO_SIZE.0 && share <= tol::PLACEBO_SIZE.1, "share with p < 0.1: {share}");
 }
 

@@ -30,6 +30,7 @@ fn grunfeld_weights_match_scipy_slsqp() {
     let panel = common::grunfeld();
     let params = SynthParams::new().placebo(false).check().unwrap();
     assert_eq!(r.fits.len(), 11);
+    let (mut max_w, mut max_rel) = (0.0_f64, 0.0_f64);
     for f in &r.fits {
         let fit = params.fit(&panel, std::slice::from_ref(&f.treated), TimePoint::Period(1950)).unwrap();
         let u = &fit.units[0];
@@ -46,6 +47,10 @@ fn grunfeld_weights_match_scipy_slsqp() {
             );
         }
         let mspe = u.pre_rmspe * u.pre_rmspe;
+        for (w, rw) in u.weights.iter().zip(&f.weights) {
+            max_w = max_w.max((w.weight - rw).abs());
+        }
+        max_rel = max_rel.max((mspe - f.mspe).abs() / f.mspe);
         assert!(
             (mspe - f.mspe).abs() <= tol::SCIPY_OBJECTIVE_REL * f.mspe,
             "{}: mspe {mspe} vs scipy {}",
@@ -57,4 +62,5 @@ fn grunfeld_weights_match_scipy_slsqp() {
         assert!(u.solver.kkt_relative < tol::KKT_REL, "{}: kkt {}", f.treated, u.solver.kkt_relative);
         assert_eq!(u.solver.stop, "optimal");
     }
+    eprintln!("largest weight difference to scipy {max_w:.2e}, largest relative MSPE difference {max_rel:.2e}");
 }
