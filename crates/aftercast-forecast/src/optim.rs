@@ -57,7 +57,7 @@ impl<F: Fn(&[f64]) -> f64> CostFunction for Problem<'_, F> {
     }
 }
 
-impl<F: Fn(&[f64]) -> f64> Gradient for Problem<'_, F> {
+impl<F: Fn(&[f64]) -> f64 + Sync> Gradient for Problem<'_, F> {
     type Param = Vec<f64>;
     type Gradient = Vec<f64>;
     fn gradient(&self, p: &Self::Param) -> Result<Vec<f64>, ArgminError> {
@@ -65,47 +65,63 @@ impl<F: Fn(&[f64]) -> f64> Gradient for Problem<'_, F> {
     }
 }
 
-/// Central-difference gradient with step `h * max(1, |x_i|)`.
-pub fn numerical_gradient(f: &dyn Fn(&[f64]) -> f64, x: &[f64], h: f64) -> Vec<f64> {
-    let mut xp = x.to_vec();
-    (0..x.len())
-        .map(|i| {
+/// Central-difference gradient with step `h * max(1, |x_i|)`. The `2n` evaluations run in
+/// parallel (rayon); each is a pure function of its point, so the result does not depend on
+/// the number of threads.
+pub fn numerical_gradient(f: &(dyn Fn(&[f64]) -> f64 + Sync), x: &[f64], h: f64) -> Vec<f64> {
+    use rayon::prelude::*;
+    let evals: Vec<f64> = (0..2 * x.len())
+        .into_par_iter()
+        .map(|k| {
+            let i = k / 2;
             let hi = h * x[i].abs().max(1.0);
-            xp[i] = x[i] + hi;
-            let fp = f(&xp);
-            xp[i] = x[i] - hi;
-            let fm = f(&xp);
-            xp[i] = x[i];
-            (fp - fm) / (2.0 * hi)
+            let mut xp = x.to_vec();
+            xp[i] = if k % 2 == 0 { x[i] + hi } else { x[i] - hi };
+            f(&xp)
         })
-        .collect()
+        .collect();
+    (0..x.len()).map(|i| (evals[2 * i] - evals[2 * i + 1]) / (2.0 * h * x[i].abs().max(1.0))).collect()
 }
 
-/// Central-difference Hessian from function values, step `h` (absolute).
-pub fn numerical_hessian(f: &dyn Fn(&[f64]) -> f64, x: &[f64], h: f64) -> Vec<Vec<f64>> {
+/// Central-difference Hessian from function values, step `h` (absolute); evaluations in
+/// parallel (thread-count independent).
+pub fn numerical_hessian(f: &(dyn Fn(&[f64]) -> f64 + Sync), x: &[f64], h: f64) -> Vec<Vec<f64>> {
+    use rayon::prelude::*;
     let n = x.len();
-    let f0 = f(x);
-    let mut hess = vec![vec![0.0; n]; n];
-    let mut xp = x.to_vec();
+    // points: (i, j, di, dj); i == j uses (+h, 0) and (-h, 0)
+    let mut pts: Vec<(usize, usize, f64, f64)> = Vec::new();
     for i in 0..n {
-        xp[i] = x[i] + h;
-        let fp = f(&xp);
-        xp[i] = x[i] - h;
-        let fm = f(&xp);
-        xp[i] = x[i];
-        hess[i][i] = (fp - 2.0 * f0 + fm) / (h * h);
+        pts.push((i, i, h, 0.0));
+        pts.push((i, i, -h, 0.0));
         for j in 0..i {
-            let mut e = |di: f64, dj: f64| {
-                xp[i] = x[i] + di;
-                xp[j] = x[j] + dj;
-                let v = f(&xp);
-                xp[i] = x[i];
-                xp[j] = x[j];
-                v
-            };
-            let v = (e(h, h) - e(h, -h) - e(-h, h) + e(-h, -h)) / (4.0 * h * h);
+            for (a, b) in [(h, h), (h, -h), (-h, h), (-h, -h)] {
+                pts.push((i, j, a, b));
+            }
+        }
+    }
+    let f0 = f(x);
+    let vals: Vec<f64> = pts
+        .par_iter()
+        .map(|&(i, j, di, dj)| {
+            let mut xp = x.to_vec();
+            xp[i] += di;
+            if i != j {
+                xp[j] += dj;
+            }
+            f(&xp)
+        })
+        .collect();
+    let mut hess = vec![vec![0.0; n]; n];
+    let mut k = 0;
+    #[allow(clippy::needless_range_loop)] // symmetric fill: both hess[i][j] and hess[j][i]
+    for i in 0..n {
+        hess[i][i] = (vals[k] - 2.0 * f0 + vals[k + 1]) / (h * h);
+        k += 2;
+        for j in 0..i {
+            let v = (vals[k] - vals[k + 1] - vals[k + 2] + vals[k + 3]) / (4.0 * h * h);
             hess[i][j] = v;
             hess[j][i] = v;
+            k += 4;
         }
     }
     hess
@@ -117,7 +133,12 @@ pub fn numerical_hessian(f: &dyn Fn(&[f64]) -> f64, x: &[f64], h: f64) -> Vec<Ve
 ///
 /// # Errors
 /// Returns argmin's error text when both solvers fail outright.
-pub fn minimise(f: &dyn Fn(&[f64]) -> f64, x0: &[f64], max_iters: u64, tol_grad: f64) -> Result<OptimOutcome, String> {
+pub fn minimise(
+    f: &(dyn Fn(&[f64]) -> f64 + Sync),
+    x0: &[f64],
+    max_iters: u64,
+    tol_grad: f64,
+) -> Result<OptimOutcome, String> {
     let problem = Problem { f: &f, step: 1e-5 };
     let ls = MoreThuenteLineSearch::new();
     let lbfgs = LBFGS::new(ls, 7)
@@ -150,7 +171,7 @@ pub fn minimise(f: &dyn Fn(&[f64]) -> f64, x0: &[f64], max_iters: u64, tol_grad:
     }
 }
 
-fn nelder_mead<F: Fn(&[f64]) -> f64>(
+fn nelder_mead<F: Fn(&[f64]) -> f64 + Sync>(
     problem: &Problem<'_, F>,
     start: &[f64],
     max_iters: u64,
