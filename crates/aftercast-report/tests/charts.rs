@@ -168,6 +168,19 @@ fn posterior_marks_hdi_and_rope_from_draws_and_from_summary_alone() {
         "HDI bar drawn from the summary"
     );
     assert!(luminance_variance(&d2) > tol::MIN_VARIANCE);
+    let bare = charts::posterior_chart(
+        "b",
+        PosteriorSource::SummaryOnly,
+        &s,
+        0.9,
+        None,
+        "relative effect",
+        theme::ValueFormat::Percent,
+    );
+    assert!(!bare.caption.contains("ROPE"), "no ROPE, no ROPE in the caption");
+    // the header (title) is in standalone files, left to the page in the report
+    assert!(only.to_svg(true).expect("svg").contains(&only.title));
+    assert!(!only.to_svg(false).expect("svg").contains(&only.title));
     // a ready histogram works too
     let edges = [0.0, 0.01, 0.02, 0.03, 0.04, 0.05];
     let counts = [1.0, 5.0, 9.0, 4.0, 1.0];

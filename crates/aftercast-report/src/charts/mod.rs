@@ -818,8 +818,11 @@ pub fn posterior_chart(
         (Some(_), None) => format!(
             "How the {quantity} is spread over the bootstrap draws; the dark bars hold the {pct} highest-density interval."
         ),
-        (None, _) => format!(
+        (None, Some(_)) => format!(
             "The {pct} highest-density interval (thick) and equal-tailed interval (thin) of the {quantity}, drawn from the summary because no draws were kept; the ochre strip is the ROPE."
+        ),
+        (None, None) => format!(
+            "The {pct} highest-density interval (thick) and equal-tailed interval (thin) of the {quantity}, drawn from the summary because no draws were kept."
         ),
     };
     let v = |x: f64| theme::fmt_value(x, format);
