@@ -106,19 +106,47 @@ pub fn check_out_dir(dir: &Path, force: bool) -> anyhow::Result<()> {
     Ok(())
 }
 
-/// Write a verb's outputs: `--json FILE` and `--out DIR/result.json`.
+/// Write a verb's outputs: `--json FILE`, and with `--out DIR` the result, its charts and a
+/// one-analysis report (DIR/result.json, DIR/charts/, DIR/report.html).
 ///
 /// # Errors
 /// Write failures (internal) and a non-empty `--out` without `--force` (bad input).
-pub fn write_outputs(common: &Common, result: &AnalysisResult) -> anyhow::Result<()> {
+pub fn write_outputs(common: &Common, result: &AnalysisResult, headline: &str) -> anyhow::Result<()> {
     if let Some(p) = &common.json {
         aftercast_report::write_json(p, result)?;
     }
     if let Some(dir) = &common.out {
         check_out_dir(dir, common.force)?;
         aftercast_report::write_json(&dir.join("result.json"), result)?;
+        let analysis = report_analysis(result.clone(), headline, None, &result.verb);
+        aftercast_report::charts::write_all(&analysis.result, &analysis.extras, &dir.join("charts"), &analysis.stem)?;
+        let command = crate::study::shell_line(&std::env::args().collect::<Vec<_>>());
+        let input = aftercast_report::html::ReportInput {
+            title: format!("aftercast {}: {}", result.verb, headline),
+            question: headline.to_string(),
+            analyses: vec![analysis],
+            command,
+            study_file: None,
+        };
+        aftercast_report::html::write(&input, &dir.join("report.html"))?;
     }
     Ok(())
+}
+
+/// One analysis as the report shows it.
+pub fn report_analysis(
+    result: AnalysisResult,
+    label: &str,
+    question: Option<String>,
+    stem: &str,
+) -> aftercast_report::html::ReportAnalysis {
+    aftercast_report::html::ReportAnalysis {
+        label: label.to_string(),
+        question,
+        result,
+        extras: aftercast_report::charts::ChartExtras::default(),
+        stem: stem.to_string(),
+    }
 }
 
 /// Parse a value or report it as bad input.

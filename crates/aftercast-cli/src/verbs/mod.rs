@@ -1,5 +1,7 @@
 //! One module per verb. See README.md in this folder for the pattern a verb follows.
 
+pub mod backtest;
+pub mod compare;
 pub mod demo;
 pub mod forecast;
 pub mod inspect;
@@ -25,7 +27,7 @@ pub struct Outcome {
 /// # Errors
 /// Output failures.
 pub fn finish(common: &Common, outcome: Outcome) -> anyhow::Result<()> {
-    write_outputs(common, &outcome.result)?;
+    write_outputs(common, &outcome.result, &outcome.headline)?;
     if !common.quiet {
         print!("{}", aftercast_report::terminal_summary(&outcome.result, &outcome.headline));
     }

@@ -123,6 +123,25 @@ pub fn run_study(study_path: &Path, out: &Path, force: bool, quiet: bool) -> any
         analyses: entries,
     };
     aftercast_report::write_json(&out.join("result.json"), &doc)?;
+    let charts = out.join("charts");
+    let mut analyses = Vec::new();
+    for e in &doc.analyses {
+        let label = e.describe.clone().unwrap_or_else(|| e.headline.clone());
+        let a = crate::common::report_analysis(e.result.clone(), &label, e.question.clone(), &e.name);
+        aftercast_report::charts::write_all(&a.result, &a.extras, &charts, &a.stem)?;
+        analyses.push(a);
+    }
+    let input = aftercast_report::html::ReportInput {
+        title: doc.title.clone(),
+        question: doc.summary.clone().unwrap_or_else(|| doc.title.clone()),
+        analyses,
+        command: doc.command.clone(),
+        study_file: Some(aftercast_report::html::StudyFile {
+            path: study_path.display().to_string(),
+            contents: doc.study_file.clone(),
+        }),
+    };
+    aftercast_report::html::write(&input, &out.join("report.html"))?;
     Ok(doc)
 }
 
