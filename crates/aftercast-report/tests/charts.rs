@@ -281,3 +281,34 @@ fn weights_beyond_the_row_limit_are_summed() {
     assert!(svg.contains("21 other donors"), "the tail is summed into one row");
     parse_svg(&svg);
 }
+
+#[test]
+fn shapes_written_by_the_estimator_crates_are_read() {
+    // synthetic: `diagnostics.placebo_runs` is the whole placebo object with its `runs`
+    let mut s = common::synthetic();
+    let runs = s.extra.remove("placebo_runs").expect("runs");
+    s.diagnostics.insert("placebo_runs".into(), serde_json::json!({"exclude_factor": null, "ranks": [], "runs": runs}));
+    let c = charts::charts_for(&s, &ChartExtras::default(), "s");
+    let gaps = c.iter().find(|c| c.name == "s-placebo-gaps").expect("placebo chart");
+    assert!(gaps.caption.contains("among 11 placebo gaps"), "{}", gaps.caption);
+    // backtest: the table under `extra.backtest` with `length`, `lift`, `increase`
+    let mut b = common::backtest();
+    b.extra.clear();
+    let power: Vec<serde_json::Value> = [7, 28]
+        .iter()
+        .flat_map(|len| (0..5).map(move |k| serde_json::json!({"length": len, "lift": 0.01 * f64::from(k), "power": 0.2 * f64::from(k), "detected": k, "origins": 5})))
+        .collect();
+    b.extra.insert(
+        "backtest".into(),
+        serde_json::json!({"power": power, "mde": [{"length": 7, "increase": 0.04, "decrease": 0.05}, {"length": 28, "increase": null, "decrease": 0.02}]}),
+    );
+    let c = charts::charts_for(&b, &ChartExtras::default(), "b");
+    for view in ["b-power", "b-mde"] {
+        let chart = c.iter().find(|c| c.name == view).expect(view);
+        assert!(!chart.is_note(), "{view} drawn");
+        let svg = chart.to_svg(true).expect("svg");
+        parse_svg(&svg);
+        assert!(svg.contains('%'), "{view}: lifts are fractions, labelled in percent");
+    }
+    assert!(c.iter().find(|c| c.name == "b-power").expect("power").to_svg(true).expect("svg").contains("28 periods"));
+}

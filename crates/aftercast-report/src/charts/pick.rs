@@ -61,10 +61,15 @@ fn num(v: &Value, keys: &[&str]) -> f64 {
     keys.iter().find_map(|k| v.get(*k).and_then(Value::as_f64)).unwrap_or(f64::NAN)
 }
 
-/// Placebo gaps stored by the synthetic verb: `placebo_runs` or `placebo.runs` (an array of
-/// `{unit, gap: [..], kept}`); runs with `kept: false` are left out.
+/// Placebo gaps stored by the synthetic verb: `placebo_runs` (an array of runs, or an object
+/// with `runs`) or `placebo.runs`; each run is `{unit, gap: [..], kept}` and runs with
+/// `kept: false` are left out.
 fn placebo_from_result(r: &AnalysisResult) -> Vec<(String, Vec<f64>)> {
-    let runs = lookup(r, "placebo_runs").or_else(|| lookup(r, "placebo").and_then(|p| p.get("runs")));
+    let runs = match lookup(r, "placebo_runs") {
+        Some(Value::Object(o)) => o.get("runs"),
+        Some(v) => Some(v),
+        None => lookup(r, "placebo").and_then(|p| p.get("runs")),
+    };
     let Some(Value::Array(runs)) = runs else { return Vec::new() };
     runs.iter()
         .filter(|run| run.get("kept").and_then(Value::as_bool).unwrap_or(true))
@@ -75,20 +80,38 @@ fn placebo_from_result(r: &AnalysisResult) -> Vec<(String, Vec<f64>)> {
         .collect()
 }
 
-fn power_from_result(r: &AnalysisResult) -> Vec<PowerPoint> {
-    let Some(Value::Array(a)) = lookup(r, "power") else { return Vec::new() };
-    a.iter()
-        .map(|p| PowerPoint {
-            post_length: num(p, &["post_length", "length"]),
-            effect: num(p, &["effect", "effect_size"]),
-            power: num(p, &["power"]),
-        })
-        .collect()
+/// A backtest table: `key` at the top of `extra`/`diagnostics`, or inside `backtest`.
+fn backtest_table<'a>(r: &'a AnalysisResult, key: &str) -> Option<&'a Vec<Value>> {
+    lookup(r, key).or_else(|| lookup(r, "backtest").and_then(|b| b.get(key))).and_then(Value::as_array)
 }
 
-fn mde_from_result(r: &AnalysisResult) -> Vec<MdePoint> {
-    let Some(Value::Array(a)) = lookup(r, "mde") else { return Vec::new() };
-    a.iter().map(|p| MdePoint { post_length: num(p, &["post_length", "length"]), mde: num(p, &["mde"]) }).collect()
+/// Power rows; the flag tells whether effects are lifts (fractions of the counterfactual).
+fn power_from_result(r: &AnalysisResult) -> (Vec<PowerPoint>, bool) {
+    let Some(a) = backtest_table(r, "power") else { return (Vec::new(), false) };
+    let lift = a.iter().any(|p| p.get("lift").is_some());
+    let rows = a
+        .iter()
+        .map(|p| PowerPoint {
+            post_length: num(p, &["post_length", "length"]),
+            effect: num(p, &["effect", "effect_size", "lift"]),
+            power: num(p, &["power"]),
+        })
+        .collect();
+    (rows, lift)
+}
+
+/// MDE rows (`mde`, or the smallest detected `increase`, else `decrease`, as fractions).
+fn mde_from_result(r: &AnalysisResult) -> (Vec<MdePoint>, bool) {
+    let Some(a) = backtest_table(r, "mde") else { return (Vec::new(), false) };
+    let lift = a.iter().any(|p| p.get("increase").is_some() || p.get("decrease").is_some());
+    let rows = a
+        .iter()
+        .map(|p| MdePoint {
+            post_length: num(p, &["post_length", "length"]),
+            mde: num(p, &["mde", "increase", "decrease"]),
+        })
+        .collect();
+    (rows, lift)
 }
 
 /// The charts of one result, named `<stem>-<view>`:
@@ -175,8 +198,14 @@ pub fn charts_for(r: &AnalysisResult, extras: &ChartExtras, stem: &str) -> Vec<C
             est.iter().map(|e| EstimateBar { label: e.method.clone(), summary: e.summary }).collect();
         out.push(estimates_chart(&name("versus-truth"), &rows, Some(truth), r.level, "effect", ValueFormat::Number));
     }
-    let power = if extras.power.is_empty() { power_from_result(r) } else { extras.power.clone() };
-    let effect_format = if r.rope.units == RopeUnits::Percent { ValueFormat::Percent } else { ValueFormat::Number };
+    let rope_format = if r.rope.units == RopeUnits::Percent { ValueFormat::Percent } else { ValueFormat::Number };
+    let as_format = |lift: bool| if lift { ValueFormat::Percent } else { rope_format };
+    let (power, effect_format) = if extras.power.is_empty() {
+        let (p, lift) = power_from_result(r);
+        (p, as_format(lift))
+    } else {
+        (extras.power.clone(), rope_format)
+    };
     if !power.is_empty() {
         let mut lengths: Vec<f64> = power.iter().map(|p| p.post_length).filter(|v| v.is_finite()).collect();
         lengths.sort_by(f64::total_cmp);
@@ -195,13 +224,18 @@ pub fn charts_for(r: &AnalysisResult, extras: &ChartExtras, stem: &str) -> Vec<C
             .collect();
         out.push(power_chart(&name("power"), &curves, 0.8, effect_format));
     }
-    let mde = if extras.mde.is_empty() { mde_from_result(r) } else { extras.mde.clone() };
+    let (mde, mde_format) = if extras.mde.is_empty() {
+        let (m, lift) = mde_from_result(r);
+        (m, as_format(lift))
+    } else {
+        (extras.mde.clone(), rope_format)
+    };
     if !mde.is_empty() {
         let mut m = mde.clone();
         m.sort_by(|a, b| a.post_length.total_cmp(&b.post_length));
         let l: Vec<f64> = m.iter().map(|p| p.post_length).collect();
         let v: Vec<f64> = m.iter().map(|p| p.mde).collect();
-        out.push(mde_chart(&name("mde"), &l, &v, effect_format));
+        out.push(mde_chart(&name("mde"), &l, &v, mde_format));
     }
     out.push(posterior_for(r, extras, &name("posterior")));
     out
