@@ -81,3 +81,30 @@ fn placebo_results_do_not_depend_on_thread_count() {
     let b = two.install(|| params.fit(&panel, &["IBM".into()], TimePoint::Period(1950)).unwrap());
     assert_eq!(serde_json::to_string(&a).unwrap(), serde_json::to_string(&b).unwrap());
 }
+
+#[test]
+fn placebo_scaled_intervals_cover_zero_near_nominal_when_nothing_happened() {
+    // Interval property of the placebo-based draws (docs/synthetic.md): on no-effect panels the
+    // 90% interval of the average effect should cover zero in roughly 90% of runs. 100 seeded
+    // panels, 30 donors; accept 78%-99% (binomial sd 3% around 90%, plus the coarseness of 30
+    // draws).
+    use aftercast_core::result::Rope;
+    use aftercast_synth::result::{ResultOptions, to_analysis_result};
+    let params = SynthParams::new().check().unwrap();
+    let runs = 100;
+    let mut covered = 0;
+    for r in 0..runs {
+        let mut sim = Sim(5000 + r);
+        let (names, y) = common::factor_panel(&mut sim, 31, 30, 1.0);
+        let panel = common::panel_from_matrix(&names, &y);
+        let fit = params.fit(&panel, &[names[30].clone()], TimePoint::Period(24)).unwrap();
+        let opts = ResultOptions { level: 0.9, rope: Rope::default(), threshold: None, seed: 1, inputs: vec![] };
+        let doc = to_analysis_result(&fit, &opts, serde_json::Map::new());
+        if doc.effect.average.lower <= 0.0 && 0.0 <= doc.effect.average.upper {
+            covered += 1;
+        }
+    }
+    let share = f64::from(covered) / runs as f64;
+    eprintln!("coverage of zero by the 90% interval of the average effect: {share}");
+    assert!((0.78..=0.99).contains(&share), "coverage {share}");
+}
