@@ -136,6 +136,11 @@ pub fn run_spark(
     if !output.status.success() {
         let err = String::from_utf8_lossy(&output.stderr);
         let input = err.contains("events: bad row") || err.contains("exposures: ");
+        if let Some(line) = err.lines().find(|l| l.contains("events: bad row") || l.contains("exposures: ")) {
+            let start = line.find("events: bad row").or_else(|| line.find("exposures: ")).unwrap_or(0);
+            let msg = line[start..].trim_end_matches(" SQLSTATE: P0001").to_string();
+            return Err(WindowsError::Spark { message: msg, input: true });
+        }
         let tail: Vec<&str> = err.lines().filter(|l| !l.trim().is_empty()).collect();
         let picked: Vec<&str> = tail
             .iter()
