@@ -427,3 +427,31 @@ fn outputs_and_sidecar_are_written() {
     assert!(s.starts_with("group,day,units,orders_total,orders_events,orders_per_unit,revenue_total"));
     assert!(s.contains("\nnorth,2024-03-05,2,11,3,5.5,0,0,0\n"), "{s}");
 }
+
+#[test]
+fn fixture_weekly_series_keeps_full_monday_weeks() {
+    use Aggregation::*;
+    let spec = WindowSpec::params()
+        .window(WindowKind::parse("7d").unwrap())
+        .metric("orders", &[Sum])
+        .offset(plus2())
+        .start(ts("2024-02-01T00:00:00"))
+        .end(ts("2024-03-20T00:00:00"))
+        .series(SeriesFrequency::Weekly)
+        .check()
+        .unwrap();
+    let ex = exposures(&spec);
+    let out = run(&EventSource::new(fixture("events.csv"), spec.columns().clone()), &ex, &spec, 2).unwrap();
+    let s = out.series.unwrap();
+    // 2024-02-01 is a Thursday and 2024-03-20 a Wednesday: the full weeks start on the Mondays
+    // 02-05, 02-12, 02-19, 02-26, 03-04, 03-11 (the week of 03-18 ends after the end).
+    let north: Vec<&SeriesRow> = s.rows.iter().filter(|r| r.group == "north").collect();
+    let days: Vec<&str> = north.iter().map(|r| r.day.as_str()).collect();
+    assert_eq!(days, ["2024-02-05", "2024-02-12", "2024-02-19", "2024-02-26", "2024-03-04", "2024-03-11"]);
+    // Week of 02-26 (local 02-26 .. 03-03): a's #1, #2, #3, #6, #7 = 1+2+4+32+32 and b's #19 = 64.
+    assert_eq!((north[3].total[0], north[3].events[0]), (135.0, 6));
+    // Week of 03-04: b's #13, #14, #15, #16, #18, #21 = 1+2+4+8+32+128 and a's #4, #5 = 8+16.
+    assert_eq!((north[4].total[0], north[4].events[0]), (199.0, 8));
+    // Week of 03-11: b's #17 (16) and a's #10 (03-18) is in the incomplete week: 16.
+    assert_eq!((north[5].total[0], north[5].events[0]), (16.0, 1));
+}
