@@ -33,6 +33,10 @@ pub(crate) enum Verb {
     Forecast(verbs::forecast::Args),
     /// Synthetic control: a weighted mix of untouched units as the counterfactual of treated units.
     Synthetic(verbs::synthetic::Args),
+    /// Observational estimates against a randomized experiment's answer; history of comparisons.
+    Compare(verbs::compare::Args),
+    /// Placebo dates before a change: false positives, coverage, power and minimum detectable effect.
+    Backtest(verbs::backtest::Args),
     /// Turn an event log into per-unit metric windows and per-group series (native or Spark).
     Windows(verbs::windows::Args),
 }
@@ -46,6 +50,8 @@ fn threads_of(verb: &Verb) -> Option<u64> {
         Verb::Demo(a) => a.threads,
         Verb::Match(a) => a.common.threads,
         Verb::Synthetic(a) => a.common.threads,
+        Verb::Compare(a) => a.common.threads,
+        Verb::Backtest(a) => a.common.threads,
     }
 }
 
@@ -57,6 +63,8 @@ pub(crate) fn analyze(verb: &Verb) -> Option<anyhow::Result<verbs::Outcome>> {
         Verb::Inspect(_) | Verb::Run(_) | Verb::Demo(_) => None,
         Verb::Match(a) => Some(verbs::match_::run(a)),
         Verb::Synthetic(a) => Some(verbs::synthetic::run(a)),
+        Verb::Compare(a) => Some(verbs::compare::run(a)),
+        Verb::Backtest(a) => Some(verbs::backtest::run(a)),
     }
 }
 
@@ -69,6 +77,8 @@ fn dispatch(verb: &Verb) -> anyhow::Result<()> {
         Verb::Demo(a) => verbs::demo::run(a),
         Verb::Match(a) => verbs::finish(&a.common, verbs::match_::run(a)?),
         Verb::Synthetic(a) => verbs::finish(&a.common, verbs::synthetic::run(a)?),
+        Verb::Compare(a) => verbs::finish(&a.common, verbs::compare::run(a)?),
+        Verb::Backtest(a) => verbs::finish(&a.common, verbs::backtest::run(a)?),
     }
 }
 

@@ -1,0 +1,189 @@
+//! `aftercast compare`: observational estimates against a randomized experiment's answer, and
+//! the per-method summary of a comparison history.
+
+use crate::common::{Common, DataOptions, comma_list, read_table};
+use crate::failure::{bad_input, bad_input_msg};
+use aftercast_calibrate::adapters::matching::MatchEstimator;
+use aftercast_calibrate::history;
+use aftercast_calibrate::sample::{UnitCompareSpec, read_experiment, read_pool};
+use aftercast_calibrate::{CalibrateError, DrawOptions, Naive, Regression, RegressionKind, UnitEstimator, compare_units};
+use aftercast_core::result::{AnalysisResult, EffectBlock, TOOL_VERSION};
+use aftercast_match::Method;
+use serde_json::{Map, json};
+use std::path::PathBuf;
+
+/// Arguments of `compare` (flag names are the contract in ../shared/DESIGN.md).
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// The randomized experiment: one row per unit with the arm, outcome and covariates.
+    #[arg(long, required_unless_present = "summarize")]
+    pub experiment: Option<PathBuf>,
+    /// Randomized arm column of the experiment (treated/control, 1/0, ...).
+    #[arg(long, required_unless_present = "summarize")]
+    pub arm: Option<String>,
+    /// Outcome column (in the experiment and in every pool).
+    #[arg(long, required_unless_present = "summarize")]
+    pub outcome: Option<String>,
+    /// A non-experimental pool of untreated units (repeat for several pools).
+    #[arg(long, required_unless_present = "summarize")]
+    pub pool: Vec<PathBuf>,
+    /// Numeric covariates, comma-separated (in the experiment and in every pool).
+    #[arg(long, required_unless_present = "summarize")]
+    pub covariates: Option<String>,
+    /// Observational methods, comma-separated: naive, regression, regression-imputation,
+    /// nearest, strata, ipw, overlap, aipw.
+    #[arg(long, default_value = "naive,regression,regression-imputation,nearest,strata,ipw,overlap,aipw")]
+    pub methods: String,
+    /// Extra propensity-model terms for the matching methods: `age^2`, `zero(re74)`, `educ:re74`.
+    #[arg(long, default_value = "")]
+    pub terms: String,
+    /// Append each comparison (method, setting, truth, estimate, interval) to this JSON-lines file.
+    #[arg(long)]
+    pub history: Option<PathBuf>,
+    /// Summarise a history file per method instead (mean bias, RMSE, coverage, inflation factor).
+    #[arg(long)]
+    pub summarize: Option<PathBuf>,
+    #[command(flatten)]
+    pub data_options: DataOptions,
+    #[command(flatten)]
+    pub common: Common,
+}
+
+/// Exit code 2 for the errors the input causes; internal failure otherwise.
+pub(crate) fn classify(e: CalibrateError) -> anyhow::Error {
+    match e {
+        CalibrateError::Io { .. } | CalibrateError::Interrupted => anyhow::Error::new(e),
+        CalibrateError::Data(d) => anyhow::Error::new(d),
+        other => bad_input(other),
+    }
+}
+
+fn options(c: &Common) -> DrawOptions {
+    DrawOptions {
+        level: c.level,
+        draws: usize::try_from(c.draws).unwrap_or(usize::MAX),
+        seed: c.seed,
+        rope: c.rope,
+        threshold: c.threshold,
+    }
+}
+
+fn summarize_history(a: &Args, path: &PathBuf) -> anyhow::Result<crate::verbs::Outcome> {
+    let records = history::read(path).map_err(|e| match e {
+        CalibrateError::Io { .. } => bad_input(e),
+        other => classify(other),
+    })?;
+    if records.is_empty() {
+        return Err(bad_input_msg(format!("{}: the history holds no comparison", path.display())));
+    }
+    let rows = history::summarize(&records);
+    let bias: Vec<f64> = records.iter().map(|r| r.estimate - r.truth).collect();
+    let average = aftercast_resample::summarize(&bias, a.common.level, None);
+    let mut extra = Map::new();
+    extra.insert("history_summary".into(), serde_json::to_value(&rows)?);
+    let mut diagnostics = Map::new();
+    diagnostics.insert("effect_is".into(), json!("estimate minus truth over every recorded comparison"));
+    diagnostics.insert("records".into(), json!(records.len()));
+    let result = AnalysisResult {
+        tool_version: TOOL_VERSION.to_string(),
+        verb: "compare".into(),
+        method: "history-summary".into(),
+        level: a.common.level,
+        seed: a.common.seed,
+        inputs: Vec::new(),
+        estimand: Some("bias of observational methods".into()),
+        effect: EffectBlock { average, cumulative: None, relative: None },
+        verdict: aftercast_resample::verdict((average.hdi_lower, average.hdi_upper), (a.common.rope.low, a.common.rope.high)),
+        rope: a.common.rope,
+        diagnostics,
+        warnings: Vec::new(),
+        path: None,
+        weights: None,
+        placebo: None,
+        balance: None,
+        sample: None,
+        truth: None,
+        estimates: None,
+        assumptions: vec!["Past experiments are a fair sample of the situations the methods will be used in.".into()],
+        extra,
+    };
+    let mut headline = format!("history of {} comparisons:", records.len());
+    for r in &rows {
+        headline.push_str(&format!(
+            " {} mean bias {:.4}, RMSE {:.4}, coverage {:.0}% at {:.0}%, widen intervals x{:.2};",
+            r.method,
+            r.mean_bias,
+            r.rmse,
+            100.0 * r.coverage,
+            100.0 * r.level,
+            r.inflation_factor
+        ));
+    }
+    headline.pop();
+    Ok(crate::verbs::Outcome { result, headline })
+}
+
+/// Run the verb and return the result document plus a one-line headline for the terminal.
+///
+/// # Errors
+/// Bad input (exit 2) for unreadable files, unknown columns, unknown methods, empty arms;
+/// internal failures (exit 1) for an unwritable history file.
+pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
+    if let Some(p) = &a.summarize {
+        return summarize_history(a, p);
+    }
+    let need = |v: &Option<String>, flag: &str| v.clone().ok_or_else(|| bad_input_msg(format!("{flag} is required")));
+    let spec = UnitCompareSpec {
+        arm: need(&a.arm, "--arm")?,
+        outcome: need(&a.outcome, "--outcome")?,
+        covariates: comma_list(&need(&a.covariates, "--covariates")?),
+        missing: a.data_options.missing,
+    };
+    let exp_path = a.experiment.clone().ok_or_else(|| bad_input_msg("--experiment is required"))?;
+    let experiment = read_experiment(&read_table(&exp_path)?, &spec).map_err(classify)?;
+    let mut pools = Vec::new();
+    for p in &a.pool {
+        pools.push(read_pool(&read_table(p)?, &spec, None).map_err(classify)?);
+    }
+    let terms: Vec<aftercast_match::design::Term> =
+        comma_list(&a.terms).iter().map(|t| t.parse()).collect::<Result<_, _>>().map_err(bad_input)?;
+    let mut methods: Vec<Box<dyn UnitEstimator>> = Vec::new();
+    for m in comma_list(&a.methods) {
+        methods.push(match m.as_str() {
+            "naive" => Box::new(Naive),
+            "regression" => Box::new(Regression { kind: RegressionKind::Coefficient }),
+            "regression-imputation" => Box::new(Regression { kind: RegressionKind::Imputation }),
+            other => {
+                let method: Method = other.parse().map_err(|_| {
+                    bad_input_msg(format!(
+                        "--methods: unknown method '{other}' (naive, regression, regression-imputation, nearest, strata, ipw, overlap, aipw)"
+                    ))
+                })?;
+                Box::new(MatchEstimator::new(method, terms.clone()))
+            }
+        });
+    }
+    let refs: Vec<&dyn UnitEstimator> = methods.iter().map(|m| m.as_ref()).collect();
+    let c = compare_units(&experiment, &pools, &spec, &refs, &options(&a.common)).map_err(classify)?;
+    if let Some(h) = &a.history {
+        history::append(h, &c.history_records()).map_err(classify)?;
+    }
+    let result = c.to_result();
+    let worst = c.rows.iter().max_by(|x, y| x.bias.abs().total_cmp(&y.bias.abs()));
+    let best = c.rows.iter().min_by(|x, y| x.bias.abs().total_cmp(&y.bias.abs()));
+    let mut headline = format!(
+        "experimental truth for '{}': {:.4} ({} treated, {} control); {} observational estimates",
+        spec.outcome,
+        c.truth.point,
+        experiment.n_treated(),
+        experiment.len() - experiment.n_treated(),
+        c.rows.len()
+    );
+    if let (Some(b), Some(w)) = (best, worst) {
+        headline.push_str(&format!(
+            "; closest {} on {} (bias {:.4}), farthest {} on {} (bias {:.4})",
+            b.method, b.setting, b.bias, w.method, w.setting, w.bias
+        ));
+    }
+    Ok(crate::verbs::Outcome { result, headline })
+}
