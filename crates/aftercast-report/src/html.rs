@@ -277,6 +277,11 @@ fn interval_text(s: &Summary, pct: bool) -> String {
     format!("[{}, {}]", f(s.lower), f(s.upper))
 }
 
+/// A unit-level estimand (ATT, ATE): no series path. Series verbs may also name an estimand.
+fn unit_level(r: &AnalysisResult) -> bool {
+    r.path.is_none() && r.estimand.is_some()
+}
+
 fn periods_after(r: &AnalysisResult) -> usize {
     r.path.as_ref().map_or(0, |p| p.iter().filter(|x| x.post).count())
 }
@@ -290,7 +295,7 @@ fn verdict_words(r: &AnalysisResult) -> String {
             .into();
     }
     let point = if avg.median.is_finite() { avg.median } else { avg.mean };
-    let mut s = match r.estimand.as_deref() {
+    let mut s = match r.estimand.as_deref().filter(|_| unit_level(r)) {
         Some(est) => format!(
             "Per treated unit ({est}) the outcome differs by {} ({lvl} interval {}).",
             fmt_signed(point),
@@ -315,7 +320,7 @@ fn verdict_words(r: &AnalysisResult) -> String {
         );
     }
     if let Some(c) = r.effect.cumulative.as_ref().filter(|x| x.median.is_finite()) {
-        let what = if r.estimand.is_some() { "Summed over the treated units" } else { "Added up over the post-period" };
+        let what = if unit_level(r) { "Summed over the treated units" } else { "Added up over the post-period" };
         let _ = write!(s, " {what} it comes to {} ({lvl} interval {}).", fmt_signed(c.median), interval_text(c, false));
     }
     if avg.prob_positive.is_finite() {
@@ -486,8 +491,8 @@ fn effects_table(out: &mut String, r: &AnalysisResult) {
         out,
         "<div class=\"table-wrap\"><table><thead><tr><th>effect</th><th>median</th><th>mean</th><th>{lvl} interval</th><th>{lvl} HDI</th><th>chance above zero</th></tr></thead><tbody>"
     );
-    let per = if r.estimand.is_some() { "average per unit" } else { "average per period" };
-    let total = if r.estimand.is_some() { "total over treated units" } else { "total over the post-period" };
+    let per = if unit_level(r) { "average per unit" } else { "average per period" };
+    let total = if unit_level(r) { "total over treated units" } else { "total over the post-period" };
     let rows: [(&str, Option<&Summary>, bool); 3] = [
         (per, Some(&r.effect.average), false),
         (total, r.effect.cumulative.as_ref(), false),

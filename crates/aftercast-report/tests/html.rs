@@ -124,6 +124,8 @@ fn report_is_well_formed_complete_and_self_contained() {
     assert!(text.contains("aftercast run study.toml --out report"), "the command");
     assert!(text.contains("[[analysis]]"), "the study file");
     assert!(text.contains("+3.52%"), "the forecast's relative effect in words");
+    assert!(text.contains("Per treated unit (ATT)"), "unit-level wording for match");
+    assert!(!text.contains("Per treated unit (effect"), "a series estimand is not a unit-level one");
     assert!(text.contains("'spend_pre' is still imbalanced"), "derived plain-language warning");
     assert!(text.contains("'naive difference' misses the experimental answer"));
     assert!(text.contains("Question: onboarding"), "the triangulated question");

@@ -353,6 +353,8 @@ pub fn counterfactual_chart(
         return Chart::note(name, "Observed and counterfactual", "No periods to draw: the result has an empty path.");
     }
     let band_label = format!("{:.0}% band", level * 100.0);
+    // dashes break up on long, wiggly series: dashed only while the periods are few
+    let dashed = n <= 150;
     let caption = format!(
         "The {} line against the {} the model expects without the change, with its {:.0}% band; the tinted area is the period after the change.",
         names.observed,
@@ -363,15 +365,7 @@ pub fn counterfactual_chart(
         xkind,
         bands: vec![Band { x: x.to_vec(), lo: pad_to(lo, n), hi: pad_to(hi, n), color: theme::CLAY, alpha: 0.18 }],
         lines: vec![
-            Line {
-                x: x.to_vec(),
-                y: pad_to(mid, n),
-                color: theme::CLAY,
-                alpha: 1.0,
-                width: 2,
-                dashed: true,
-                points: false,
-            },
+            Line { x: x.to_vec(), y: pad_to(mid, n), color: theme::CLAY, alpha: 1.0, width: 2, dashed, points: false },
             Line {
                 x: x.to_vec(),
                 y: pad_to(observed, n),
@@ -393,7 +387,7 @@ pub fn counterfactual_chart(
     let title = format!("{} vs {}", capitalise(names.observed), names.counterfactual);
     Chart::new(name, &title, &caption, body).legend(&[
         (names.observed, theme::INK, Swatch::Line),
-        (names.counterfactual, theme::CLAY, Swatch::Dashed),
+        (names.counterfactual, theme::CLAY, if dashed { Swatch::Dashed } else { Swatch::Line }),
         (&band_label, theme::CLAY, Swatch::Band),
     ])
 }

@@ -244,7 +244,8 @@ pub fn charts_for(r: &AnalysisResult, extras: &ChartExtras, stem: &str) -> Vec<C
 /// The posterior chart of the quantity the verdict is judged on: the relative effect under a
 /// percent ROPE (when the result has one), the average effect otherwise.
 fn posterior_for(r: &AnalysisResult, extras: &ChartExtras, name: &str) -> Chart {
-    let per = if r.estimand.is_some() { "average effect per unit" } else { "average effect per period" };
+    let per =
+        if r.path.is_none() && r.estimand.is_some() { "average effect per unit" } else { "average effect per period" };
     match (r.rope.units, r.effect.relative.as_ref()) {
         (RopeUnits::Percent, Some(rel)) => {
             let src = extras.relative_draws.as_deref().map_or(PosteriorSource::SummaryOnly, PosteriorSource::Draws);

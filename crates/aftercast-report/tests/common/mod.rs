@@ -131,6 +131,7 @@ pub fn forecast() -> AnalysisResult {
         relative: Some(summary(0.0352, 0.0055)),
     };
     let mut r = base("forecast", "structural", effect, Verdict::Gain, Rope::default());
+    r.estimand = Some("effect on the series over the post-period (observed minus counterfactual)".into());
     r.path = Some(path);
     r.assumptions = vec![
         "The control series were not affected by the launch.".into(),
