@@ -312,3 +312,12 @@ fn shapes_written_by_the_estimator_crates_are_read() {
     }
     assert!(c.iter().find(|c| c.name == "b-power").expect("power").to_svg(true).expect("svg").contains("28 periods"));
 }
+
+#[test]
+fn the_rosenbaum_caption_brackets_the_crossing() {
+    // fixture bound: p = 0.001 * Gamma^6 crosses 0.05 at Gamma = 50^(1/6) = 1.919, between grid points 1.9 and 2.0
+    let r = common::matching();
+    let c = charts::charts_for(&r, &ChartExtras::default(), "m");
+    let rb = c.iter().find(|c| c.name == "m-rosenbaum").expect("rosenbaum");
+    assert!(rb.caption.contains("between 1.90 and 2.00"), "{}", rb.caption);
+}

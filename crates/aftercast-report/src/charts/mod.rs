@@ -586,21 +586,24 @@ pub fn weights_chart(name: &str, weights: &[(String, f64)], max_rows: usize) -> 
     }
     w.sort_by(|a, b| b.1.total_cmp(&a.1).then_with(|| a.0.cmp(&b.0)));
     let max_rows = max_rows.max(1);
-    if w.len() > max_rows {
+    let summed = w.len() > max_rows;
+    if summed {
         let rest: f64 = w[max_rows - 1..].iter().map(|(_, v)| v).sum();
         let count = w.len() - (max_rows - 1);
         w.truncate(max_rows - 1);
         w.push((format!("{count} other donors"), rest));
     }
+    let shown = w.len();
     let rows: Vec<Row> = w
         .iter()
-        .map(|(u, v)| Row {
+        .enumerate()
+        .map(|(i, (u, v))| Row {
             label: u.clone(),
             value: *v,
             lo: f64::NAN,
             hi: f64::NAN,
             before: f64::NAN,
-            color: theme::SLATE,
+            color: if summed && i + 1 == shown { theme::MUTED } else { theme::SLATE },
             note: format!("{:.1}%", v * 100.0),
         })
         .collect();
@@ -700,10 +703,16 @@ pub fn rosenbaum_chart(name: &str, gamma: &[f64], p_upper: &[f64], alpha: f64) -
     if pts.is_empty() {
         return Chart::note(name, "Sensitivity to hidden bias", "No Rosenbaum bounds to draw.");
     }
-    let crossing = pts.iter().find(|(_, p)| *p > alpha).map(|(g, _)| *g);
+    let crossing = pts.iter().position(|(_, p)| *p > alpha);
     let caption = match crossing {
-        Some(g) => format!(
-            "The worst-case p-value if an unobserved trait made treated units up to Gamma times as likely to be treated; the conclusion stops being significant at {alpha} once Gamma reaches about {g:.2}."
+        Some(0) => format!(
+            "The worst-case p-value if an unobserved trait made treated units up to Gamma times as likely to be treated; it is above {alpha} already at the smallest Gamma on the grid ({:.2}).",
+            pts[0].0
+        ),
+        Some(i) => format!(
+            "The worst-case p-value if an unobserved trait made treated units up to Gamma times as likely to be treated; the conclusion stops being significant at {alpha} once Gamma passes a value between {:.2} and {:.2}.",
+            pts[i - 1].0,
+            pts[i].0
         ),
         None => format!(
             "The worst-case p-value if an unobserved trait made treated units up to Gamma times as likely to be treated; it stays below {alpha} over the whole grid."
