@@ -3,7 +3,8 @@
 //! revenue before the launch, in parallel, with a progress bar when stderr is a terminal and
 //! Ctrl-C stopping cleanly. Partial results go to `backtest_partial.jsonl` in the temp dir.
 //!
-//! `cargo run -p aftercast-calibrate --example backtest_app_daily [--release]`
+//! `cargo run -p aftercast-calibrate --example backtest_app_daily [--release] [-- --yearly]`
+//! (`--yearly` adds a yearly trigonometric season with 4 harmonics and fits on at least 400 days)
 
 use aftercast_calibrate::adapters::forecast::StructuralModel;
 use aftercast_calibrate::backtest::{self, BacktestData, BacktestSpec, RunControl};
@@ -33,7 +34,11 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let flag = stop_flag()?;
     let partial = std::env::temp_dir().join("backtest_partial.jsonl");
     let control = RunControl { stop: Some(&flag), partial: Some(&partial), progress: true };
-    let model = StructuralModel::daily();
+    let mut model = StructuralModel::daily();
+    if std::env::args().any(|a| a == "--yearly") {
+        model.seasons.push(aftercast_forecast::structural::SeasonKind::Trig { period: 365.25, harmonics: 4 });
+        bspec.min_train = 400;
+    }
     let t0 = std::time::Instant::now();
     let r = backtest::run(&model, &data, &bspec, &control)?;
     let secs = t0.elapsed().as_secs_f64();

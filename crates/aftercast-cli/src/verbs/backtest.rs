@@ -34,9 +34,10 @@ pub struct Args {
     /// Model: structural (local linear trend) or local-level.
     #[arg(long, default_value = "structural")]
     pub model: String,
-    /// Dummy seasonal periods, repeatable (default: 7 for daily data, none otherwise).
+    /// Seasons, repeatable: `P` (dummy seasonal of integer period P) or `P:K` (trigonometric,
+    /// K harmonics). Default for daily data: 7, plus 365.25:4 when the pre-period has two years.
     #[arg(long)]
-    pub season: Vec<usize>,
+    pub season: Vec<String>,
     /// Number of placebo dates.
     #[arg(long, default_value_t = 50)]
     pub placebos: usize,
@@ -102,19 +103,37 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         "local-level" => Trend::Level,
         other => return Err(bad_input_msg(format!("--model: '{other}' is not one of structural, local-level"))),
     };
-    let seasons: Vec<SeasonKind> = if a.season.is_empty() {
-        match series.frequency() {
-            aftercast_core::time::Frequency::Daily => vec![SeasonKind::Dummy { period: 7 }],
-            _ => Vec::new(),
+    let mut seasons: Vec<SeasonKind> = Vec::new();
+    if a.season.is_empty() {
+        if series.frequency() == aftercast_core::time::Frequency::Daily {
+            seasons.push(SeasonKind::Dummy { period: 7 });
+            if pre >= 730 {
+                seasons.push(SeasonKind::Trig { period: 365.25, harmonics: 4 });
+            }
         }
     } else {
-        a.season.iter().map(|&p| SeasonKind::Dummy { period: p }).collect()
-    };
-    if let Some(p) = seasons.iter().find_map(|s| match s {
-        SeasonKind::Dummy { period } if *period < 2 => Some(*period),
-        _ => None,
-    }) {
-        return Err(bad_input_msg(format!("--season {p}: a seasonal period must be at least 2")));
+        for text in &a.season {
+            let kind = match text.split_once(':') {
+                Some((p, k)) => {
+                    let period = parse_arg::<f64>("--season", p)?;
+                    let harmonics = parse_arg::<usize>("--season", k)?;
+                    if !(period > 2.0 && harmonics >= 1 && 2.0 * harmonics as f64 <= period) {
+                        return Err(bad_input_msg(format!(
+                            "--season {text}: a trigonometric season needs period > 2 and 1 <= K <= period/2"
+                        )));
+                    }
+                    SeasonKind::Trig { period, harmonics }
+                }
+                None => {
+                    let period = parse_arg::<usize>("--season", text)?;
+                    if period < 2 {
+                        return Err(bad_input_msg(format!("--season {text}: a seasonal period must be at least 2")));
+                    }
+                    SeasonKind::Dummy { period }
+                }
+            };
+            seasons.push(kind);
+        }
     }
     let model = StructuralModel { trend, seasons, parameter_uncertainty: true, parameter_sets: 20 };
     let controls: Vec<Vec<f64>> = series.controls.iter().map(|(_, v)| v[..pre].to_vec()).collect();

@@ -6,7 +6,9 @@ use crate::failure::{bad_input, bad_input_msg};
 use aftercast_calibrate::adapters::matching::MatchEstimator;
 use aftercast_calibrate::history;
 use aftercast_calibrate::sample::{UnitCompareSpec, read_experiment, read_pool};
-use aftercast_calibrate::{CalibrateError, DrawOptions, Naive, Regression, RegressionKind, UnitEstimator, compare_units};
+use aftercast_calibrate::{
+    CalibrateError, DrawOptions, Naive, Regression, RegressionKind, UnitEstimator, compare_units,
+};
 use aftercast_core::result::{AnalysisResult, EffectBlock, TOOL_VERSION};
 use aftercast_match::Method;
 use serde_json::{Map, json};
@@ -68,7 +70,7 @@ fn options(c: &Common) -> DrawOptions {
     }
 }
 
-fn summarize_history(a: &Args, path: &PathBuf) -> anyhow::Result<crate::verbs::Outcome> {
+fn summarize_history(a: &Args, path: &std::path::Path) -> anyhow::Result<crate::verbs::Outcome> {
     let records = history::read(path).map_err(|e| match e {
         CalibrateError::Io { .. } => bad_input(e),
         other => classify(other),
@@ -93,7 +95,10 @@ fn summarize_history(a: &Args, path: &PathBuf) -> anyhow::Result<crate::verbs::O
         inputs: Vec::new(),
         estimand: Some("bias of observational methods".into()),
         effect: EffectBlock { average, cumulative: None, relative: None },
-        verdict: aftercast_resample::verdict((average.hdi_lower, average.hdi_upper), (a.common.rope.low, a.common.rope.high)),
+        verdict: aftercast_resample::verdict(
+            (average.hdi_lower, average.hdi_upper),
+            (a.common.rope.low, a.common.rope.high),
+        ),
         rope: a.common.rope,
         diagnostics,
         warnings: Vec::new(),
