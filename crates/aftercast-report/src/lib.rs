@@ -124,7 +124,7 @@ fn interval_line(label: &str, s: &Summary, level: f64, pct: bool) -> String {
 pub fn terminal_summary(r: &AnalysisResult, headline: &str) -> String {
     let mut out = Vec::new();
     out.push(format!("aftercast {} ({}): {headline}", r.verb, r.method));
-    let per = if r.estimand.is_some() { "per unit" } else { "per period" };
+    let per = if r.estimand.is_some() && r.path.is_none() { "per unit" } else { "per period" };
     out.push(interval_line(&format!("average {per}"), &r.effect.average, r.level, false));
     if let Some(c) = &r.effect.cumulative {
         out.push(interval_line("total", c, r.level, false));
