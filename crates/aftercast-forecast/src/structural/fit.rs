@@ -2,7 +2,7 @@
 //! covariance of the estimates, and simulation of future paths.
 
 use super::kalman::{FilterOutput, filter};
-use super::model::{StructuralParams, StructuralSpec, Trend};
+use super::model::{Initialisation, StructuralParams, StructuralSpec, Trend};
 use crate::error::{ForecastError, ForecastResult};
 use crate::linalg::{cov_sqrt, sym_pinv};
 use crate::optim::{OptimReport, minimise, numerical_hessian};
@@ -20,6 +20,9 @@ pub const LOG_VAR_SPAN: f64 = 30.0;
 /// deterministic, listed in `at_lower_edge`, and gets no parameter uncertainty (the
 /// log-likelihood is flat in its log-variance, so the asymptotic normal says nothing).
 pub const ZERO_VARIANCE_RATIO: f64 = 1e-6;
+
+/// Prior variance of the approximate diffuse fallback.
+pub const APPROX_KAPPA: f64 = 1e6;
 
 /// Guard on parameter draws: a drawn log-variance departs at most this far from the MLE
 /// (a factor of about 55 in the variance), and stays in the optimiser's box.
@@ -123,10 +126,27 @@ pub fn fit(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], start: Option<&[f64
             v
         }
     };
-    let probe = filter(&spec.system(&spec.params_from_theta(&theta0)), y, x, false);
+    let mut probe = filter(&spec.system(&spec.params_from_theta(&theta0)), y, x, false);
+    let mut warnings = Vec::new();
+    let mut spec_used = spec.clone();
+    if !probe.resolved && probe.n_used > spec.n_states() {
+        // Many nearly collinear diffuse states (e.g. a long trigonometric season next to a
+        // trend and many event indicators) can leave the exact diffuse recursion numerically
+        // unresolved; fall back to the approximate diffuse prior, visibly.
+        let resolved_states = probe.n_diffuse;
+        spec_used.init = Initialisation::ApproximateDiffuse { kappa: APPROX_KAPPA };
+        probe = filter(&spec_used.system(&spec_used.params_from_theta(&theta0)), y, x, false);
+        warnings.push(format!(
+            "structural model: the exact diffuse initialisation did not resolve numerically ({} of {} diffuse states); the approximate diffuse prior (variance {APPROX_KAPPA:e}, first {} observations left out of the likelihood) is used instead",
+            resolved_states,
+            spec.n_states(),
+            spec_used.system(&spec_used.params_from_theta(&theta0)).burn
+        ));
+    }
     if !probe.resolved {
         return Err(ForecastError::NotIdentified { model: "structural", periods: y.len() });
     }
+    let spec = &spec_used;
     if !probe.loglik.is_finite() {
         return Err(ForecastError::NonFiniteObjective {
             model: "structural",
@@ -142,7 +162,6 @@ pub fn fit(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], start: Option<&[f64
         let (l, h) = if i < n_var { (lo, hi) } else { (-8.0, 8.0) };
         *v = v.clamp(l, h);
     }
-    let mut warnings = Vec::new();
     if !out.report.converged {
         warnings.push(format!(
             "structural model: the optimiser ({}) did not report convergence ({}; gradient norm {:.2e}); the variances may not be at the maximum",

@@ -12,13 +12,17 @@
 //!
 //! The diffuse period ends when `P_inf` is zero: after as many updates with `F_inf > 0` as
 //! there are diffuse states (each lowers its rank by one), or when every entry is below
-//! [`DIFFUSE_TOL`]. `F_inf` counts as zero below `DIFFUSE_TOL * max|P_inf| * (1 + |Z|^2)`.
+//! [`DIFFUSE_TOL`]. `F_inf` counts as zero below [`F_INF_REL_TOL`] times the sum of the
+//! absolute terms of `Z P_inf Z'`.
 
 use super::model::System;
 
-/// Absolute tolerance under which entries of `P_inf` count as zero, and relative tolerance
-/// (times `max|P_inf| (1 + |Z|^2)`) under which `F_inf` counts as zero.
+/// Absolute tolerance under which entries of `P_inf` count as zero.
 pub const DIFFUSE_TOL: f64 = 1e-9;
+
+/// `F_inf` counts as zero below this share of the sum of absolute terms of `Z P_inf Z'` (its
+/// round-off scale), so near-collinear but genuine diffuse directions are still resolved.
+pub const F_INF_REL_TOL: f64 = 1e-10;
 
 /// What the filter keeps per period (only when asked; the likelihood alone needs none).
 #[derive(Debug, Clone, Default)]
@@ -72,7 +76,6 @@ pub fn filter(sys: &System, y: &[f64], x: &[Vec<f64>], keep_trace: bool) -> Filt
     // each update with F_inf > 0 lowers the rank of P_inf by one: after as many updates as
     // there are diffuse states, P_inf is zero in exact arithmetic
     let rank0 = (0..m).filter(|&i| pinf[i * m + i] != 0.0).count();
-    let mut pinf_scale = 1.0_f64;
     let mut scratch = vec![0.0; m * m];
     let mut vscratch = vec![0.0; m];
     let mut m_inf = vec![0.0; m];
@@ -92,7 +95,6 @@ pub fn filter(sys: &System, y: &[f64], x: &[Vec<f64>], keep_trace: bool) -> Filt
     for (t, &yt) in y.iter().enumerate() {
         sys.z_at(x, t, &mut z);
         let forecast: f64 = z.iter().map(|&(i, v)| v * a[i]).sum();
-        let z2: f64 = z.iter().map(|&(_, v)| v * v).sum();
         // M_star = P_star Z'
         for (r, ms) in m_star.iter_mut().enumerate() {
             let row = &pstar[r * m..(r + 1) * m];
@@ -106,7 +108,12 @@ pub fn filter(sys: &System, y: &[f64], x: &[Vec<f64>], keep_trace: bool) -> Filt
                 *mi = z.iter().map(|&(i, v)| v * row[i]).sum();
             }
             f_inf = z.iter().map(|&(i, v)| v * m_inf[i]).sum();
-            if f_inf <= DIFFUSE_TOL * pinf_scale * (1.0 + z2) {
+            // round-off scale of F_inf: the sum of absolute terms of Z P_inf Z'
+            let f_abs: f64 = z
+                .iter()
+                .map(|&(i, v)| v.abs() * z.iter().map(|&(j, w)| pinf[i * m + j].abs() * w.abs()).sum::<f64>())
+                .sum();
+            if f_inf <= F_INF_REL_TOL * f_abs {
                 f_inf = 0.0;
             }
         }
@@ -171,7 +178,6 @@ pub fn filter(sys: &System, y: &[f64], x: &[Vec<f64>], keep_trace: bool) -> Filt
         }
         if diffuse {
             sys.transition_cov(&mut pinf, &mut scratch);
-            pinf_scale = pinf.iter().fold(0.0_f64, |a, v| a.max(v.abs())).max(1.0);
             if n_diffuse >= rank0 || pinf.iter().all(|v| v.abs() <= DIFFUSE_TOL) {
                 diffuse = false;
                 pinf.fill(0.0);
