@@ -18,19 +18,19 @@ use std::path::PathBuf;
 #[derive(Debug, clap::Args)]
 pub struct Args {
     /// The randomized experiment: one row per unit with the arm, outcome and covariates.
-    #[arg(long, required_unless_present = "summarize")]
+    #[arg(long, required_unless_present_any = ["summarize", "arms_data"])]
     pub experiment: Option<PathBuf>,
     /// Randomized arm column of the experiment (treated/control, 1/0, ...).
-    #[arg(long, required_unless_present = "summarize")]
+    #[arg(long, required_unless_present_any = ["summarize", "arms_data"])]
     pub arm: Option<String>,
     /// Outcome column (in the experiment and in every pool).
-    #[arg(long, required_unless_present = "summarize")]
+    #[arg(long, required_unless_present_any = ["summarize", "arms_data"])]
     pub outcome: Option<String>,
     /// A non-experimental pool of untreated units (repeat for several pools).
-    #[arg(long, required_unless_present = "summarize")]
+    #[arg(long, required_unless_present_any = ["summarize", "arms_data"])]
     pub pool: Vec<PathBuf>,
     /// Numeric covariates, comma-separated (in the experiment and in every pool).
-    #[arg(long, required_unless_present = "summarize")]
+    #[arg(long, required_unless_present_any = ["summarize", "arms_data"])]
     pub covariates: Option<String>,
     /// Observational methods, comma-separated: naive, regression, regression-imputation,
     /// nearest, strata, ipw, overlap, aipw.
@@ -45,6 +45,34 @@ pub struct Args {
     /// Summarise a history file per method instead (mean bias, RMSE, coverage, inflation factor).
     #[arg(long)]
     pub summarize: Option<PathBuf>,
+    /// Series-level comparison instead: a file of per-period totals of both arms of a past
+    /// experiment (with --time, --treated-arm, --control-arm, --start, --end).
+    #[arg(long)]
+    pub arms_data: Option<PathBuf>,
+    /// Time column of --arms-data.
+    #[arg(long, default_value = "date")]
+    pub time: String,
+    /// Treated-arm total column of --arms-data.
+    #[arg(long, default_value = "treated")]
+    pub treated_arm: String,
+    /// Control-arm total column of --arms-data.
+    #[arg(long, default_value = "control")]
+    pub control_arm: String,
+    /// Traffic shares of the treated and control arms, `T:C` (e.g. 0.5:0.5 or 0.1:0.9).
+    #[arg(long, default_value = "0.5:0.5")]
+    pub allocation: String,
+    /// First period of the test window (--arms-data).
+    #[arg(long)]
+    pub start: Option<String>,
+    /// Last period of the test window (--arms-data; default: the end of the file).
+    #[arg(long)]
+    pub end: Option<String>,
+    /// Control series untouched by the test, comma-separated (regressors of the forecast model).
+    #[arg(long, default_value = "")]
+    pub controls: String,
+    /// Other segments untouched by the test, comma-separated (donors of the synthetic control).
+    #[arg(long, default_value = "")]
+    pub donors: String,
     #[command(flatten)]
     pub data_options: DataOptions,
     #[command(flatten)]
@@ -128,6 +156,68 @@ fn summarize_history(a: &Args, path: &std::path::Path) -> anyhow::Result<crate::
     Ok(crate::verbs::Outcome { result, headline })
 }
 
+fn compare_arm_series(a: &Args, path: &std::path::Path) -> anyhow::Result<crate::verbs::Outcome> {
+    use aftercast_calibrate::adapters::forecast::StructuralModel;
+    use aftercast_calibrate::adapters::synthetic::SyntheticModel;
+    use aftercast_calibrate::backtest::PathModel;
+    use aftercast_calibrate::series::{ArmSeries, compare_series};
+    use aftercast_core::series::{Series, SeriesSpec};
+    let table = read_table(path)?;
+    let controls = comma_list(&a.controls);
+    let donors = comma_list(&a.donors);
+    let mut cols = vec![a.control_arm.clone()];
+    cols.extend(controls.iter().cloned());
+    cols.extend(donors.iter().cloned());
+    let spec = SeriesSpec {
+        time: a.time.clone(),
+        outcome: a.treated_arm.clone(),
+        controls: cols,
+        date_format: a.data_options.date_format(),
+        missing: a.data_options.missing,
+        gaps: a.data_options.gaps,
+    };
+    let series = Series::from_table(&table, &spec)?;
+    let start = a.start.clone().ok_or_else(|| bad_input_msg("--start is required with --arms-data"))?;
+    let split = series.split(&start, a.end.as_deref(), 0, 3)?;
+    let (ts, cs) = a
+        .allocation
+        .split_once(':')
+        .ok_or_else(|| bad_input_msg(format!("--allocation '{}': write T:C, e.g. 0.5:0.5", a.allocation)))?;
+    let share = |t: &str| crate::common::parse_arg::<f64>("--allocation", t);
+    let col =
+        |name: &String| series.controls.iter().find(|(n, _)| n == name).map(|(_, v)| v.clone()).unwrap_or_default();
+    let arms = ArmSeries {
+        name: series.name.clone(),
+        treated: series.outcome.clone(),
+        control: col(&a.control_arm),
+        treated_share: share(ts)?,
+        control_share: share(cs)?,
+        window_start: split.post_start,
+        window_end: split.post_end,
+        controls: controls.iter().map(|n| (n.clone(), col(n))).collect(),
+        donors: donors.iter().map(|n| (n.clone(), col(n))).collect(),
+        inputs: vec![series.input.clone()],
+    };
+    let daily = series.frequency() == aftercast_core::time::Frequency::Daily;
+    let forecast = if daily { StructuralModel::daily() } else { StructuralModel::local_level() };
+    let synthetic = SyntheticModel { level: a.common.level, ..SyntheticModel::default() };
+    let donor_models: Vec<&dyn PathModel> = if donors.is_empty() { Vec::new() } else { vec![&synthetic] };
+    let c = compare_series(&arms, &[&forecast], &donor_models, &options(&a.common)).map_err(classify)?;
+    if let Some(h) = &a.history {
+        history::append(h, &c.history_records()).map_err(classify)?;
+    }
+    let mut headline = format!(
+        "experimental truth for '{}' (treated arm, {} window periods): {:.4} per period",
+        a.treated_arm,
+        split.post_len(),
+        c.truth.point
+    );
+    for r in &c.rows {
+        headline.push_str(&format!("; {} {:.4} (bias {:.4})", r.method, r.estimate, r.bias));
+    }
+    Ok(crate::verbs::Outcome { result: c.to_result(), headline })
+}
+
 /// Run the verb and return the result document plus a one-line headline for the terminal.
 ///
 /// # Errors
@@ -136,6 +226,9 @@ fn summarize_history(a: &Args, path: &std::path::Path) -> anyhow::Result<crate::
 pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     if let Some(p) = &a.summarize {
         return summarize_history(a, p);
+    }
+    if let Some(p) = &a.arms_data {
+        return compare_arm_series(a, p);
     }
     let need = |v: &Option<String>, flag: &str| v.clone().ok_or_else(|| bad_input_msg(format!("{flag} is required")));
     let spec = UnitCompareSpec {
