@@ -55,6 +55,9 @@ pub struct PlasmodeReport {
     pub mean_width: f64,
     /// The outcome model: residual sd.
     pub sigma: f64,
+    /// Point estimate of every finished replicate, in replicate order.
+    #[serde(skip)]
+    pub estimates: Vec<f64>,
 }
 
 /// The fitted outcome model: coefficients on standardised covariates and residual sd.
@@ -166,6 +169,7 @@ pub fn plasmode(
             power: ok.iter().filter(|(_, lo, hi)| detect(*lo, *hi)).count() as f64 / k,
             mean_width: ok.iter().map(|(_, lo, hi)| hi - lo).sum::<f64>() / k,
             sigma: model.sigma,
+            estimates: ok.iter().map(|(e, _, _)| *e).collect(),
         });
     }
     Ok(reports)

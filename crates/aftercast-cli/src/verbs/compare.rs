@@ -218,6 +218,33 @@ fn compare_arm_series(a: &Args, path: &std::path::Path) -> anyhow::Result<crate:
     Ok(crate::verbs::Outcome { result: c.to_result(), headline })
 }
 
+/// The unit-level methods named in a comma list.
+///
+/// # Errors
+/// Bad input for an unknown name.
+pub(crate) fn methods_from(
+    list: &str,
+    terms: &[aftercast_match::design::Term],
+) -> anyhow::Result<Vec<Box<dyn UnitEstimator>>> {
+    let mut methods: Vec<Box<dyn UnitEstimator>> = Vec::new();
+    for m in comma_list(list) {
+        methods.push(match m.as_str() {
+            "naive" => Box::new(Naive),
+            "regression" => Box::new(Regression { kind: RegressionKind::Coefficient }),
+            "regression-imputation" => Box::new(Regression { kind: RegressionKind::Imputation }),
+            other => {
+                let method: Method = other.parse().map_err(|_| {
+                    bad_input_msg(format!(
+                        "--methods: unknown method '{other}' (naive, regression, regression-imputation, nearest, strata, ipw, overlap, aipw)"
+                    ))
+                })?;
+                Box::new(MatchEstimator::new(method, terms.to_vec()))
+            }
+        });
+    }
+    Ok(methods)
+}
+
 /// Run the verb and return the result document plus a one-line headline for the terminal.
 ///
 /// # Errors
@@ -245,22 +272,7 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     }
     let terms: Vec<aftercast_match::design::Term> =
         comma_list(&a.terms).iter().map(|t| t.parse()).collect::<Result<_, _>>().map_err(bad_input)?;
-    let mut methods: Vec<Box<dyn UnitEstimator>> = Vec::new();
-    for m in comma_list(&a.methods) {
-        methods.push(match m.as_str() {
-            "naive" => Box::new(Naive),
-            "regression" => Box::new(Regression { kind: RegressionKind::Coefficient }),
-            "regression-imputation" => Box::new(Regression { kind: RegressionKind::Imputation }),
-            other => {
-                let method: Method = other.parse().map_err(|_| {
-                    bad_input_msg(format!(
-                        "--methods: unknown method '{other}' (naive, regression, regression-imputation, nearest, strata, ipw, overlap, aipw)"
-                    ))
-                })?;
-                Box::new(MatchEstimator::new(method, terms.clone()))
-            }
-        });
-    }
+    let methods = methods_from(&a.methods, &terms)?;
     let refs: Vec<&dyn UnitEstimator> = methods.iter().map(|m| m.as_ref()).collect();
     let c = compare_units(&experiment, &pools, &spec, &refs, &options(&a.common)).map_err(classify)?;
     if let Some(h) = &a.history {
