@@ -18,7 +18,8 @@ struct Case {
 
 const SERIES: &[&str] = &["--shape", "series", "--time", "date", "--outcome", "y"];
 const PANEL: &[&str] = &["--shape", "panel", "--unit", "region", "--time", "week", "--outcome", "revenue"];
-const UNITS: &[&str] = &["--shape", "units", "--id", "id", "--treatment", "treat", "--covariates", "age", "--outcome", "y"];
+const UNITS: &[&str] =
+    &["--shape", "units", "--id", "id", "--treatment", "treat", "--covariates", "age", "--outcome", "y"];
 
 fn cases() -> Vec<Case> {
     vec![
@@ -27,17 +28,53 @@ fn cases() -> Vec<Case> {
         Case { file: "header_only.csv", args: SERIES, expect: &["header but no data rows"] },
         Case { file: "missing_column.csv", args: SERIES, expect: &["no column named 'y'", "date, orders"] },
         Case { file: "bad_number.csv", args: SERIES, expect: &["line 6, column 2 ('y')", "'12a' is not a number"] },
-        Case { file: "nan_value.csv", args: SERIES, expect: &["line 4, column 2 ('y')", "'NaN' is not a finite number"] },
-        Case { file: "infinite_value.csv", args: SERIES, expect: &["line 9, column 2 ('y')", "'-inf' is not a finite number"] },
-        Case { file: "bad_date.csv", args: SERIES, expect: &["line 5, column 1 ('date')", "'2024/01/04' is not a date", "ISO 8601"] },
-        Case { file: "impossible_date.csv", args: SERIES, expect: &["line 7, column 1 ('date')", "'2024-01-32' is not a date"] },
-        Case { file: "duplicate_date.csv", args: SERIES, expect: &["line 8, column 1", "duplicate time '2024-01-06'", "first seen on line 7"] },
-        Case { file: "out_of_order.csv", args: SERIES, expect: &["line 6, column 1", "'2024-01-04' comes before", "'2024-01-05'"] },
-        Case { file: "gap_in_days.csv", args: SERIES, expect: &["line 7, column 1", "1 daily period(s) missing", "gap policy"] },
-        Case { file: "irregular_weeks.csv", args: SERIES, expect: &["line 5, column 1", "'2024-01-23'", "not on the weekly grid"] },
+        Case {
+            file: "nan_value.csv",
+            args: SERIES,
+            expect: &["line 4, column 2 ('y')", "'NaN' is not a finite number"],
+        },
+        Case {
+            file: "infinite_value.csv",
+            args: SERIES,
+            expect: &["line 9, column 2 ('y')", "'-inf' is not a finite number"],
+        },
+        Case {
+            file: "bad_date.csv",
+            args: SERIES,
+            expect: &["line 5, column 1 ('date')", "'2024/01/04' is not a date", "ISO 8601"],
+        },
+        Case {
+            file: "impossible_date.csv",
+            args: SERIES,
+            expect: &["line 7, column 1 ('date')", "'2024-01-32' is not a date"],
+        },
+        Case {
+            file: "duplicate_date.csv",
+            args: SERIES,
+            expect: &["line 8, column 1", "duplicate time '2024-01-06'", "first seen on line 7"],
+        },
+        Case {
+            file: "out_of_order.csv",
+            args: SERIES,
+            expect: &["line 6, column 1", "'2024-01-04' comes before", "'2024-01-05'"],
+        },
+        Case {
+            file: "gap_in_days.csv",
+            args: SERIES,
+            expect: &["line 7, column 1", "1 daily period(s) missing", "gap policy"],
+        },
+        Case {
+            file: "irregular_weeks.csv",
+            args: SERIES,
+            expect: &["line 5, column 1", "'2024-01-23'", "not on the weekly grid"],
+        },
         Case { file: "ragged_row.csv", args: SERIES, expect: &["line 4", "row has 3 fields, the header has 2"] },
         Case { file: "missing_value.csv", args: SERIES, expect: &["line 10, column 2 ('y')", "value is missing"] },
-        Case { file: "mixed_time_kinds.csv", args: SERIES, expect: &["line 6, column 1", "mixes dates and integer periods"] },
+        Case {
+            file: "mixed_time_kinds.csv",
+            args: SERIES,
+            expect: &["line 6, column 1", "mixes dates and integer periods"],
+        },
         Case { file: "duplicate_header.csv", args: SERIES, expect: &["line 1, column 3", "'y' appears twice"] },
         Case { file: "empty_header_cell.csv", args: SERIES, expect: &["line 1, column 3", "header cell is empty"] },
         Case {
@@ -67,21 +104,60 @@ fn cases() -> Vec<Case> {
             args: &["--shape", "series", "--time", "date", "--outcome", "y", "--start", "2024"],
             expect: &["invalid --start: '2024'", "holds dates"],
         },
-        Case { file: "panel_duplicate.csv", args: PANEL, expect: &["line 14, column 2", "duplicate unit and period 'south / 2024-01-08'", "first seen on line 7"] },
+        Case {
+            file: "panel_duplicate.csv",
+            args: PANEL,
+            expect: &["line 14, column 2", "duplicate unit and period 'south / 2024-01-08'", "first seen on line 7"],
+        },
         Case { file: "panel_unbalanced.csv", args: PANEL, expect: &["unit 'east' has no row for period '2024-01-15'"] },
-        Case { file: "panel_bad_number.csv", args: PANEL, expect: &["line 7, column 3 ('revenue')", "'lots' is not a number"] },
-        Case { file: "panel_missing_unit.csv", args: PANEL, expect: &["line 9, column 1 ('region')", "value is missing"] },
+        Case {
+            file: "panel_bad_number.csv",
+            args: PANEL,
+            expect: &["line 7, column 3 ('revenue')", "'lots' is not a number"],
+        },
+        Case {
+            file: "panel_missing_unit.csv",
+            args: PANEL,
+            expect: &["line 9, column 1 ('region')", "value is missing"],
+        },
         Case {
             file: "panel_treated_absent.csv",
-            args: &["--shape", "panel", "--unit", "region", "--time", "week", "--outcome", "revenue", "--treated", "north,west"],
+            args: &[
+                "--shape",
+                "panel",
+                "--unit",
+                "region",
+                "--time",
+                "week",
+                "--outcome",
+                "revenue",
+                "--treated",
+                "north,west",
+            ],
             expect: &["treated unit 'west' is not in column 'region'"],
         },
         Case { file: "units_constant_treatment.csv", args: UNITS, expect: &["column 'treat' has only the value"] },
-        Case { file: "units_bad_treatment.csv", args: UNITS, expect: &["line 6, column 2 ('treat')", "'maybe' is not a treatment value"] },
-        Case { file: "units_duplicate_id.csv", args: UNITS, expect: &["line 11, column 1 ('id')", "duplicate unit id 'c3'", "first seen on line 5"] },
-        Case { file: "units_nan_covariate.csv", args: UNITS, expect: &["line 4, column 3 ('age')", "'nan' is not a finite number"] },
+        Case {
+            file: "units_bad_treatment.csv",
+            args: UNITS,
+            expect: &["line 6, column 2 ('treat')", "'maybe' is not a treatment value"],
+        },
+        Case {
+            file: "units_duplicate_id.csv",
+            args: UNITS,
+            expect: &["line 11, column 1 ('id')", "duplicate unit id 'c3'", "first seen on line 5"],
+        },
+        Case {
+            file: "units_nan_covariate.csv",
+            args: UNITS,
+            expect: &["line 4, column 3 ('age')", "'nan' is not a finite number"],
+        },
         Case { file: "units_no_treatment_column.csv", args: UNITS, expect: &["no column named 'treat'"] },
-        Case { file: "units_missing_covariate.csv", args: UNITS, expect: &["line 12, column 3 ('age')", "value is missing"] },
+        Case {
+            file: "units_missing_covariate.csv",
+            args: UNITS,
+            expect: &["line 12, column 3 ('age')", "value is missing"],
+        },
         Case { file: "corrupt.parquet", args: SERIES, expect: &["corrupt.parquet", "malformed Parquet input"] },
         Case { file: "empty.parquet", args: SERIES, expect: &["empty.parquet", "the file is empty"] },
         Case { file: "does_not_exist.csv", args: SERIES, expect: &["does_not_exist.csv", "cannot read file"] },
@@ -90,7 +166,11 @@ fn cases() -> Vec<Case> {
 
 fn run(args: &[String]) -> (Option<i32>, String, String) {
     let out = Command::new(env!("CARGO_BIN_EXE_aftercast")).args(args).output().expect("run aftercast");
-    (out.status.code(), String::from_utf8_lossy(&out.stdout).into_owned(), String::from_utf8_lossy(&out.stderr).into_owned())
+    (
+        out.status.code(),
+        String::from_utf8_lossy(&out.stdout).into_owned(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
 }
 
 #[test]

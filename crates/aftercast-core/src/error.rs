@@ -23,12 +23,7 @@ impl Location {
 
     /// A location naming file, line, column position and column name.
     pub fn cell(file: impl Into<PathBuf>, line: u64, column: usize, name: &str) -> Self {
-        Self {
-            file: file.into(),
-            line: Some(line),
-            column: Some(column),
-            column_name: Some(name.to_string()),
-        }
+        Self { file: file.into(), line: Some(line), column: Some(column), column_name: Some(name.to_string()) }
     }
 
     /// A location naming file and line.

@@ -58,7 +58,8 @@ impl Panel {
                 return Err(DataError::MissingValue { at: table.at(row, ucol) });
             }
             let t = parse_time(&row.cells[tcol], &spec.date_format, || table.at(row, tcol))?;
-            let y = table.parse_number(row, ycol)?.ok_or_else(|| DataError::MissingValue { at: table.at(row, ycol) })?;
+            let y =
+                table.parse_number(row, ycol)?.ok_or_else(|| DataError::MissingValue { at: table.at(row, ycol) })?;
             let mut xs = Vec::with_capacity(xcols.len());
             for &c in &xcols {
                 xs.push(table.parse_number(row, c)?.ok_or_else(|| DataError::MissingValue { at: table.at(row, c) })?);
@@ -69,12 +70,13 @@ impl Panel {
                 units.push(u.clone());
             }
             if let Some(first) = times.first()
-                && std::mem::discriminant(first) != std::mem::discriminant(&t) {
-                    return Err(DataError::Invalid {
-                        at: table.at(row, tcol),
-                        message: format!("'{}' mixes dates and integer periods", row.cells[tcol]),
-                    });
-                }
+                && std::mem::discriminant(first) != std::mem::discriminant(&t)
+            {
+                return Err(DataError::Invalid {
+                    at: table.at(row, tcol),
+                    message: format!("'{}' mixes dates and integer periods", row.cells[tcol]),
+                });
+            }
             times.insert(t);
             if let Some((first_line, _, _)) = cells.get(&(ui, t)) {
                 return Err(DataError::Duplicate {
@@ -119,7 +121,13 @@ impl Panel {
     ///
     /// # Errors
     /// As [`Panel::from_long`].
-    pub fn from_wide(table: &RawTable, time: &str, units: Option<&[String]>, date_format: &DateFormat, name: &str) -> DataResult<Self> {
+    pub fn from_wide(
+        table: &RawTable,
+        time: &str,
+        units: Option<&[String]>,
+        date_format: &DateFormat,
+        name: &str,
+    ) -> DataResult<Self> {
         let tcol = table.column(time)?;
         let ucols: Vec<usize> = match units {
             Some(us) => us.iter().map(|u| table.column(u)).collect::<DataResult<_>>()?,
@@ -139,12 +147,22 @@ impl Panel {
         for row in table.rows() {
             let t = parse_time(&row.cells[tcol], date_format, || table.at(row, tcol))?;
             if let Some(first) = seen.insert(t, row.line) {
-                return Err(DataError::Duplicate { at: table.at(row, tcol), what: "time", key: t.to_string(), first_line: first });
+                return Err(DataError::Duplicate {
+                    at: table.at(row, tcol),
+                    what: "time",
+                    key: t.to_string(),
+                    first_line: first,
+                });
             }
             if let Some(prev) = points.last()
-                && t < *prev {
-                    return Err(DataError::NonMonotone { at: table.at(row, tcol), text: t.to_string(), previous: prev.to_string() });
-                }
+                && t < *prev
+            {
+                return Err(DataError::NonMonotone {
+                    at: table.at(row, tcol),
+                    text: t.to_string(),
+                    previous: prev.to_string(),
+                });
+            }
             points.push(t);
             for (k, &c) in ucols.iter().enumerate() {
                 let v = table.parse_number(row, c)?.ok_or_else(|| DataError::MissingValue { at: table.at(row, c) })?;
@@ -187,11 +205,7 @@ fn regular_axis(table: &RawTable, points: &[TimePoint]) -> DataResult<TimeAxis> 
     })?;
     for w in points.windows(2) {
         if steps_between(freq, w[0], w[1]) != Some(1) {
-            let line = table
-                .rows()
-                .iter()
-                .find(|r| r.cells.iter().any(|c| c == &w[1].to_string()))
-                .map(|r| r.line);
+            let line = table.rows().iter().find(|r| r.cells.iter().any(|c| c == &w[1].to_string())).map(|r| r.line);
             return Err(DataError::Irregular {
                 at: crate::error::Location { file: table.path().to_path_buf(), line, column: None, column_name: None },
                 text: w[1].to_string(),

@@ -88,8 +88,15 @@ fn cell_text(path: &Path, name: &str, col: &dyn Array, r: usize) -> DataResult<S
         }
         other => {
             return Err(DataError::Invalid {
-                at: Location { file: path.to_path_buf(), line: None, column: None, column_name: Some(name.to_string()) },
-                message: format!("Parquet column type {other} is not supported (use numbers, strings, booleans or dates)"),
+                at: Location {
+                    file: path.to_path_buf(),
+                    line: None,
+                    column: None,
+                    column_name: Some(name.to_string()),
+                },
+                message: format!(
+                    "Parquet column type {other} is not supported (use numbers, strings, booleans or dates)"
+                ),
             });
         }
     })
@@ -97,8 +104,5 @@ fn cell_text(path: &Path, name: &str, col: &dyn Array, r: usize) -> DataResult<S
 
 fn days_to_iso(days: i64) -> String {
     let epoch = chrono::NaiveDate::from_ymd_opt(1970, 1, 1).unwrap_or_default();
-    epoch
-        .checked_add_signed(chrono::Duration::days(days))
-        .map(|d| d.to_string())
-        .unwrap_or_else(|| format!("{days}"))
+    epoch.checked_add_signed(chrono::Duration::days(days)).map(|d| d.to_string()).unwrap_or_else(|| format!("{days}"))
 }

@@ -155,7 +155,9 @@ impl Verdict {
             Verdict::Negligible => "Any effect of the change is too small to matter.",
             Verdict::LossButSmall => "The change lowered the metric, but the fall may be too small to matter.",
             Verdict::Loss => "The change lowered the metric by more than the smallest effect that matters.",
-            Verdict::Inconclusive => "The data cannot tell whether the change helped, hurt or did nothing that matters.",
+            Verdict::Inconclusive => {
+                "The data cannot tell whether the change helped, hurt or did nothing that matters."
+            }
         }
     }
 }

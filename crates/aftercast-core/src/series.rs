@@ -156,7 +156,12 @@ impl Series {
                         at: table.at(row, tcol),
                         text: t.to_string(),
                         previous: prev.to_string(),
-                        detail: format!("{} {:?} period(s) missing; use the gap policy 'fill' to insert them as missing", steps - 1, freq).to_lowercase(),
+                        detail: format!(
+                            "{} {:?} period(s) missing; use the gap policy 'fill' to insert them as missing",
+                            steps - 1,
+                            freq
+                        )
+                        .to_lowercase(),
                     });
                 }
                 if !ccols.is_empty() {
@@ -280,7 +285,12 @@ pub fn split_axis(
     }
     let pre_end = post_start.saturating_sub(washout);
     if pre_end < min_pre {
-        return Err(DataError::TooFewPrePeriods { path: path.into(), start: start.to_string(), found: pre_end, needed: min_pre });
+        return Err(DataError::TooFewPrePeriods {
+            path: path.into(),
+            start: start.to_string(),
+            found: pre_end,
+            needed: min_pre,
+        });
     }
     Ok(Split { pre_end, post_start, post_end })
 }

@@ -78,8 +78,7 @@ impl RawTable {
     /// [`DataError::Malformed`], [`DataError::RaggedRow`], [`DataError::DuplicateColumn`].
     pub fn read(path: impl AsRef<Path>) -> DataResult<Self> {
         let path = path.as_ref();
-        let bytes = std::fs::read(path)
-            .map_err(|source| DataError::Io { path: path.to_path_buf(), source })?;
+        let bytes = std::fs::read(path).map_err(|source| DataError::Io { path: path.to_path_buf(), source })?;
         match Format::from_path(path) {
             Format::Csv => Self::from_csv_bytes(path, &bytes),
             Format::Parquet => Self::from_parquet_bytes(path, bytes),
@@ -97,11 +96,8 @@ impl RawTable {
         if body.iter().all(|b| b.is_ascii_whitespace()) {
             return Err(DataError::EmptyFile { path: path.to_path_buf() });
         }
-        let mut reader = csv::ReaderBuilder::new()
-            .has_headers(false)
-            .flexible(true)
-            .trim(csv::Trim::All)
-            .from_reader(body);
+        let mut reader =
+            csv::ReaderBuilder::new().has_headers(false).flexible(true).trim(csv::Trim::All).from_reader(body);
         let mut header: Option<Vec<String>> = None;
         let mut rows = Vec::new();
         let mut record = csv::StringRecord::new();
@@ -115,11 +111,7 @@ impl RawTable {
                         csv::ErrorKind::Utf8 { .. } => "text is not valid UTF-8".to_string(),
                         _ => e.to_string(),
                     };
-                    return Err(DataError::Malformed {
-                        at: Location::line(path, line),
-                        format: "CSV",
-                        message,
-                    });
+                    return Err(DataError::Malformed { at: Location::line(path, line), format: "CSV", message });
                 }
             }
             let line = record.position().map(|p| p.line()).unwrap_or(0);
@@ -216,11 +208,7 @@ impl RawTable {
 
     /// What a result records about this file.
     pub fn info(&self) -> InputInfo {
-        InputInfo {
-            path: self.path.display().to_string(),
-            sha256: self.sha256.clone(),
-            rows: self.rows.len(),
-        }
+        InputInfo { path: self.path.display().to_string(), sha256: self.sha256.clone(), rows: self.rows.len() }
     }
 
     /// Position of a column.

@@ -133,7 +133,12 @@ impl UnitTable {
                         return Err(DataError::MissingValue { at: table.at(row, c) });
                     }
                     if let Some(first) = seen_ids.insert(id.clone(), row.line) {
-                        return Err(DataError::Duplicate { at: table.at(row, c), what: "unit id", key: id, first_line: first });
+                        return Err(DataError::Duplicate {
+                            at: table.at(row, c),
+                            what: "unit id",
+                            key: id,
+                            first_line: first,
+                        });
                     }
                     id
                 }

@@ -28,7 +28,8 @@ fn spec(controls: &[&str]) -> SeriesSpec {
 
 #[test]
 fn parquet_series_equals_its_csv_twin() {
-    let pq = Series::from_table(&RawTable::read(data("daily.parquet")).expect("parquet"), &spec(&["calls"])).expect("series");
+    let pq = Series::from_table(&RawTable::read(data("daily.parquet")).expect("parquet"), &spec(&["calls"]))
+        .expect("series");
     let cs = Series::from_table(&RawTable::read(data("daily.csv")).expect("csv"), &spec(&["calls"])).expect("series");
     assert_eq!(pq.len(), 30);
     assert_eq!(pq.frequency(), Frequency::Daily);
@@ -127,8 +128,11 @@ fn wide_panel_reads_unit_columns() {
 
 #[test]
 fn byte_order_mark_and_quoted_cells() {
-    let t = RawTable::from_csv_bytes(Path::new("bom.csv"), b"\xEF\xBB\xBFdate,orders\n\"2024-01-01\",\"7\"\n2024-01-02,8\n")
-        .expect("bom");
+    let t = RawTable::from_csv_bytes(
+        Path::new("bom.csv"),
+        b"\xEF\xBB\xBFdate,orders\n\"2024-01-01\",\"7\"\n2024-01-02,8\n",
+    )
+    .expect("bom");
     let s = Series::from_table(&t, &spec(&[])).expect("series");
     assert_eq!(s.outcome, vec![7.0, 8.0]);
 }

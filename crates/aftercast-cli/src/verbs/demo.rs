@@ -47,15 +47,24 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
     let _ = writeln!(s, "\n[defaults]\nlevel = 0.9\nseed = 20260302\ndraws = 1000\n");
     let _ = writeln!(s, "[questions]");
     let _ = writeln!(s, "app-orders = \"Did the app feature raise daily app orders?\"");
-    let _ = writeln!(s, "regional-sale = \"What did the spring sale add to regional store revenue, net of the dip after?\"");
+    let _ = writeln!(
+        s,
+        "regional-sale = \"What did the spring sale add to regional store revenue, net of the dip after?\""
+    );
     let _ = writeln!(s, "loyalty = \"How much more do loyalty members spend because of the scheme?\"");
     let _ = writeln!(s);
     if has_verb("forecast") {
         for (name, model) in [("app-launch-structural", "structural"), ("app-launch-harmonic", "harmonic")] {
             let _ = writeln!(s, "[[analysis]]\nname = {}\nquestion = \"app-orders\"\nverb = \"forecast\"", q(name));
-            let _ = writeln!(s, "describe = \"Daily app orders against a {model} forecast from the pre-period and two untouched control series\"");
+            let _ = writeln!(
+                s,
+                "describe = \"Daily app orders against a {model} forecast from the pre-period and two untouched control series\""
+            );
             let _ = writeln!(s, "truth = {}\ntruth_of = \"relative\"", t.app_launch.orders.relative_effect);
-            let _ = writeln!(s, "[analysis.flags]\ndata = \"data/app_daily.csv\"\ntime = \"date\"\noutcome = \"app_orders\"");
+            let _ = writeln!(
+                s,
+                "[analysis.flags]\ndata = \"data/app_daily.csv\"\ntime = \"date\"\noutcome = \"app_orders\""
+            );
             let _ = writeln!(s, "controls = \"catalogue_orders,weather_index\"\nevents = \"data/calendar.csv\"");
             let _ = writeln!(s, "start = {}\nmodel = {}\nlog = true\n", q(&t.app_launch.launch_date), q(model));
         }
@@ -64,11 +73,26 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
         let r = &t.regional_sale;
         let last = r.pull_forward_weeks.last().cloned().unwrap_or_else(|| r.last_week.clone());
         for method in ["weights", "sdid"] {
-            let _ = writeln!(s, "[[analysis]]\nname = \"regional-sale-{method}\"\nquestion = \"regional-sale\"\nverb = \"synthetic\"");
-            let _ = writeln!(s, "describe = \"Weekly revenue of the sale regions against a synthetic control ({method}) of the 34 untouched regions\"");
+            let _ = writeln!(
+                s,
+                "[[analysis]]\nname = \"regional-sale-{method}\"\nquestion = \"regional-sale\"\nverb = \"synthetic\""
+            );
+            let _ = writeln!(
+                s,
+                "describe = \"Weekly revenue of the sale regions against a synthetic control ({method}) of the 34 untouched regions\""
+            );
             let _ = writeln!(s, "truth = {}\ntruth_of = \"relative\"", r.relative_net_effect);
-            let _ = writeln!(s, "[analysis.flags]\ndata = \"data/regions_weekly.csv\"\nunit = \"region\"\ntime = \"week\"\noutcome = \"revenue\"");
-            let _ = writeln!(s, "treated = {}\nstart = {}\nend = {}\nmethod = \"{method}\"\n", q(&r.sale_regions.join(",")), q(&r.sale_weeks[0]), q(&last));
+            let _ = writeln!(
+                s,
+                "[analysis.flags]\ndata = \"data/regions_weekly.csv\"\nunit = \"region\"\ntime = \"week\"\noutcome = \"revenue\""
+            );
+            let _ = writeln!(
+                s,
+                "treated = {}\nstart = {}\nend = {}\nmethod = \"{method}\"\n",
+                q(&r.sale_regions.join(",")),
+                q(&r.sale_weeks[0]),
+                q(&last)
+            );
         }
     }
     if has_verb("match") {
@@ -76,17 +100,30 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
             let _ = writeln!(s, "[[analysis]]\nname = \"loyalty-{method}\"\nquestion = \"loyalty\"\nverb = \"match\"");
             let _ = writeln!(s, "describe = \"90-day spend of scheme members against similar non-members ({method})\"");
             let _ = writeln!(s, "truth = {}\ntruth_of = \"average\"", t.loyalty.sample_att);
-            let _ = writeln!(s, "[analysis.flags]\ndata = \"data/members.csv\"\ntreatment = \"joined\"\noutcome = \"spend_90d\"");
-            let _ = writeln!(s, "covariates = \"spend_pre,visits_pre,tenure_months\"\ncategorical = \"region,age_band\"");
+            let _ = writeln!(
+                s,
+                "[analysis.flags]\ndata = \"data/members.csv\"\ntreatment = \"joined\"\noutcome = \"spend_90d\""
+            );
+            let _ =
+                writeln!(s, "covariates = \"spend_pre,visits_pre,tenure_months\"\ncategorical = \"region,age_band\"");
             let _ = writeln!(s, "method = \"{method}\"\nestimand = \"att\"\nrope = \"1\"\n");
         }
     }
     if has_verb("compare") {
         let _ = writeln!(s, "[[analysis]]\nname = \"past-test-compare\"\nverb = \"compare\"");
-        let _ = writeln!(s, "describe = \"The past randomized win-back test: how far each observational method lands from the experiment's answer\"");
+        let _ = writeln!(
+            s,
+            "describe = \"The past randomized win-back test: how far each observational method lands from the experiment's answer\""
+        );
         let _ = writeln!(s, "truth = {}\ntruth_of = \"average\"", t.past_test.sample_att);
-        let _ = writeln!(s, "[analysis.flags]\nexperiment = \"data/past_test/experiment.csv\"\narm = \"arm\"\noutcome = \"spend_90d\"");
-        let _ = writeln!(s, "pool = \"data/past_test/pool.csv\"\ncovariates = \"spend_pre,visits_pre,tenure_months,region,age_band\"\nrope = \"1\"\n");
+        let _ = writeln!(
+            s,
+            "[analysis.flags]\nexperiment = \"data/past_test/experiment.csv\"\narm = \"arm\"\noutcome = \"spend_90d\""
+        );
+        let _ = writeln!(
+            s,
+            "pool = \"data/past_test/pool.csv\"\ncovariates = \"spend_pre,visits_pre,tenure_months\"\nrope = \"1\"\n"
+        );
     }
     s
 }

@@ -1,0 +1,89 @@
+//! `aftercast demo` end to end, through the real binary in a temporary folder: the report,
+//! the results and every chart are written, result.json parses into the typed result, and every
+//! true effect of the invented scenario lies inside its analysis's interval.
+
+use aftercast_core::result::{AnalysisResult, Summary};
+use serde::Deserialize;
+use std::process::Command;
+
+#[derive(Debug, Deserialize)]
+struct Entry {
+    name: String,
+    command: String,
+    truth: Option<f64>,
+    truth_of: Option<String>,
+    result: AnalysisResult,
+}
+
+#[derive(Debug, Deserialize)]
+struct StudyDoc {
+    title: String,
+    study_file: String,
+    analyses: Vec<Entry>,
+}
+
+fn summary_of<'a>(r: &'a AnalysisResult, which: &str) -> Option<&'a Summary> {
+    match which {
+        "average" => Some(&r.effect.average),
+        "cumulative" => r.effect.cumulative.as_ref(),
+        "relative" => r.effect.relative.as_ref(),
+        _ => None,
+    }
+}
+
+#[test]
+fn demo_writes_everything_and_covers_every_true_effect() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let out = dir.path().join("fernhill");
+    let run = Command::new(env!("CARGO_BIN_EXE_aftercast"))
+        .args(["demo", "--out"])
+        .arg(&out)
+        .arg("--quiet")
+        .output()
+        .expect("run demo");
+    assert_eq!(run.status.code(), Some(0), "demo failed: {}", String::from_utf8_lossy(&run.stderr));
+
+    for f in ["report.html", "result.json", "study.toml", "truth.json", "data/app_daily.csv", "data/members.csv"] {
+        assert!(out.join(f).is_file(), "missing {f}");
+    }
+    let doc: StudyDoc =
+        serde_json::from_slice(&std::fs::read(out.join("result.json")).expect("read")).expect("typed result.json");
+    assert!(doc.title.contains("Fernhill"));
+    assert!(doc.study_file.contains("[[analysis]]"));
+    let verbs: std::collections::BTreeSet<&str> = doc.analyses.iter().map(|a| a.result.verb.as_str()).collect();
+    for v in ["forecast", "synthetic", "match"] {
+        assert!(verbs.contains(v), "the demo runs no {v} analysis");
+    }
+
+    let charts = out.join("charts");
+    let mut misses = Vec::new();
+    for a in &doc.analyses {
+        assert!(a.command.starts_with("aftercast "), "{}: {}", a.name, a.command);
+        assert!(!a.result.assumptions.is_empty(), "{}: no assumptions stated", a.name);
+        assert!(out.join("analyses").join(format!("{}.json", a.name)).is_file());
+        let png = charts.join(format!("{}-posterior.png", a.name));
+        let svg = charts.join(format!("{}-posterior.svg", a.name));
+        assert!(png.is_file() && svg.is_file(), "{}: posterior chart missing", a.name);
+        let bytes = std::fs::read(&png).expect("png");
+        assert!(bytes.starts_with(b"\x89PNG\r\n\x1a\n"), "{}: not a PNG", a.name);
+        if let (Some(truth), Some(which)) = (a.truth, a.truth_of.as_deref()) {
+            let s = summary_of(&a.result, which).unwrap_or_else(|| panic!("{}: no {which} summary", a.name));
+            if !(s.lower <= truth && truth <= s.upper) {
+                misses.push(format!(
+                    "{}: true {which} effect {truth:.5} outside [{:.5}, {:.5}] (estimate {:.5})",
+                    a.name, s.lower, s.upper, s.mean
+                ));
+            }
+        }
+    }
+    assert!(misses.is_empty(), "true effects outside their intervals:\n{}", misses.join("\n"));
+
+    let html = std::fs::read_to_string(out.join("report.html")).expect("html");
+    for needle in ["<html", "randomized", "aftercast run"] {
+        assert!(html.contains(needle), "report.html lacks {needle}");
+    }
+    assert!(!html.contains("src=\"http") && !html.contains("href=\"http"), "report.html makes external requests");
+
+    let again = Command::new(env!("CARGO_BIN_EXE_aftercast")).args(["demo", "--out"]).arg(&out).output().expect("run");
+    assert_eq!(again.status.code(), Some(2), "a non-empty --out must be refused without --force");
+}
