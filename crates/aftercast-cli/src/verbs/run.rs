@@ -127,7 +127,9 @@ pub fn run_study(study_path: &Path, out: &Path, force: bool, quiet: bool) -> any
     let mut analyses = Vec::new();
     for e in &doc.analyses {
         let label = e.describe.clone().unwrap_or_else(|| e.headline.clone());
-        let a = crate::common::report_analysis(e.result.clone(), &label, e.question.clone(), &e.name);
+        // The report groups analyses by their question, shown in the study's own words.
+        let question = e.question.as_ref().map(|k| study.questions.get(k).cloned().unwrap_or_else(|| k.clone()));
+        let a = crate::common::report_analysis(e.result.clone(), &label, question, &e.name);
         aftercast_report::charts::write_all(&a.result, &a.extras, &charts, &a.stem)?;
         analyses.push(a);
     }
