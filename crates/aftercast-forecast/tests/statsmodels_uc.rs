@@ -107,6 +107,7 @@ fn mle_matches_statsmodels() {
     ] {
         let f = fit(&spec, &y, &x, None).unwrap();
         assert!(f.optim.converged, "{case}: {:?}", f.optim);
+        assert_eq!(f.spec.init, Initialisation::ExactDiffuse, "{case}: the exact diffuse filter must be kept");
         let want = floats(&r[case]["mle_params"]);
         let got: Vec<f64> = f.theta.iter().map(|t| t.exp()).collect();
         for (g, w) in got.iter().zip(&want) {

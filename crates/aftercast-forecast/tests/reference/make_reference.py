@@ -90,6 +90,14 @@ e = rng.normal(0, 1, 150)
 e[1:] += 0.4 * e[:-1]
 lb = acorr_ljungbox(e, lags=[5, 10], return_df=True)
 out['ljung_box'] = {'x': e.tolist(), 'lags': [5, 10], 'stat': lb['lb_stat'].tolist(), 'pvalue': lb['lb_pvalue'].tolist()}
+# the 18-state benchmark model (benches/data/bench_series.csv, first 1,095 days) with the
+# approximate diffuse prior (statsmodels' default, kappa 1e6, loglikelihood_burn = 18)
+bd = pd.read_csv(os.path.join(HERE, '..', '..', 'benches', 'data', 'bench_series.csv'))[:1095]
+mb = sm.tsa.UnobservedComponents(bd['y'].values, 'lltrend', seasonal=7,
+                                 freq_seasonal=[{'period': 365.25, 'harmonics': 4}],
+                                 exog=bd[['c1', 'c2']].values, mle_regression=False)
+bp = [[16.0, 1.0, 0.001, 1e-6, 1e-6], [15.9, 0.5, 0.05, 0.001, 0.16]]
+out['bench_approx'] = {'params': bp, 'llf': [mb.smooth(p).llf for p in bp], 'burn': int(mb.loglikelihood_burn)}
 with open(os.path.join(DATA, 'uc_reference.json'), 'w') as f:
     json.dump(out, f)
 
