@@ -20,6 +20,7 @@
 //! start = "2026-03-02"
 //! ```
 //!
+//! Keys may be written with `_` or `-` (`log_controls` is `--log-controls`).
 //! A flag's value is a string, number or boolean (`true` passes a bare switch such as `replace`),
 //! or an array (repeated flag, e.g. `season = ["7", "365.25:4"]`).
 
@@ -132,6 +133,9 @@ impl Study {
             merged.insert(k, v);
         }
         for (k, v) in merged {
+            // `log_controls` in TOML is the flag `--log-controls`.
+            let k = k.replace('_', "-");
+            let k = k.as_str();
             let values: Vec<&toml::Value> = match v {
                 toml::Value::Array(items) => items.iter().collect(),
                 other => vec![other],

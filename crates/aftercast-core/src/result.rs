@@ -6,6 +6,12 @@ use crate::table::InputInfo;
 use crate::time::TimePoint;
 use serde::{Deserialize, Serialize};
 
+/// Read a number that JSON may hold as `null` (serde_json writes NaN and infinities as null).
+fn nullable_f64<'de, D: serde::Deserializer<'de>>(d: D) -> Result<f64, D::Error> {
+    let v: Option<f64> = Option::deserialize(d)?;
+    Ok(v.unwrap_or(f64::NAN))
+}
+
 /// Draws of an effect: the common end of every estimator.
 #[derive(Debug, Clone)]
 pub enum EffectDraws {
@@ -33,20 +39,28 @@ pub enum EffectDraws {
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct Summary {
     /// Mean of the draws.
+    #[serde(deserialize_with = "nullable_f64")]
     pub mean: f64,
     /// Median of the draws.
+    #[serde(deserialize_with = "nullable_f64")]
     pub median: f64,
     /// Standard deviation of the draws.
+    #[serde(deserialize_with = "nullable_f64")]
     pub sd: f64,
     /// Lower end of the equal-tailed interval.
+    #[serde(deserialize_with = "nullable_f64")]
     pub lower: f64,
     /// Upper end of the equal-tailed interval.
+    #[serde(deserialize_with = "nullable_f64")]
     pub upper: f64,
     /// Lower end of the highest-density interval.
+    #[serde(deserialize_with = "nullable_f64")]
     pub hdi_lower: f64,
     /// Upper end of the highest-density interval.
+    #[serde(deserialize_with = "nullable_f64")]
     pub hdi_upper: f64,
     /// Share of draws above zero.
+    #[serde(deserialize_with = "nullable_f64")]
     pub prob_positive: f64,
     /// Share of draws above the user's threshold, when one is given.
     #[serde(default, skip_serializing_if = "Option::is_none")]
@@ -183,10 +197,13 @@ pub struct PathPoint {
     /// Observed value (`null` when missing).
     pub observed: Option<f64>,
     /// Counterfactual median.
+    #[serde(deserialize_with = "nullable_f64")]
     pub counterfactual: f64,
     /// Lower end of the counterfactual interval.
+    #[serde(deserialize_with = "nullable_f64")]
     pub lower: f64,
     /// Upper end of the counterfactual interval.
+    #[serde(deserialize_with = "nullable_f64")]
     pub upper: f64,
     /// Whether the period is after the change.
     #[serde(default)]
@@ -205,6 +222,7 @@ pub struct UnitWeight {
     /// Donor unit.
     pub unit: String,
     /// Its weight.
+    #[serde(deserialize_with = "nullable_f64")]
     pub weight: f64,
 }
 
@@ -212,6 +230,7 @@ pub struct UnitWeight {
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PlaceboSummary {
     /// rank / number of units.
+    #[serde(deserialize_with = "nullable_f64")]
     pub p_value: f64,
     /// Rank of the treated unit's post/pre RMSPE ratio (1 = largest).
     pub rank: usize,
@@ -225,13 +244,17 @@ pub struct BalanceRow {
     /// Covariate (or derived term) name.
     pub covariate: String,
     /// Standardised mean difference before adjustment.
+    #[serde(deserialize_with = "nullable_f64")]
     pub smd_before: f64,
     /// Standardised mean difference after adjustment.
+    #[serde(deserialize_with = "nullable_f64")]
     pub smd_after: f64,
     /// Variance ratio before adjustment (treated / control).
     #[serde(default)]
+    #[serde(deserialize_with = "nullable_f64")]
     pub var_ratio_before: f64,
     /// Variance ratio after adjustment.
+    #[serde(deserialize_with = "nullable_f64")]
     pub var_ratio_after: f64,
 }
 
@@ -254,6 +277,7 @@ pub struct EstimateRow {
     /// Its summary.
     pub summary: Summary,
     /// Estimate minus truth.
+    #[serde(deserialize_with = "nullable_f64")]
     pub bias: f64,
     /// Whether its interval covers the experimental estimate.
     pub covers_truth: bool,
@@ -272,6 +296,7 @@ pub struct AnalysisResult {
     /// The method within the verb.
     pub method: String,
     /// Interval level, e.g. 0.9.
+    #[serde(deserialize_with = "nullable_f64")]
     pub level: f64,
     /// The seed that reproduces the run.
     pub seed: u64,

@@ -66,7 +66,12 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
                 "[analysis.flags]\ndata = \"data/app_daily.csv\"\ntime = \"date\"\noutcome = \"app_orders\""
             );
             let _ = writeln!(s, "controls = \"catalogue_orders,weather_index\"\nevents = \"data/calendar.csv\"");
-            let _ = writeln!(s, "start = {}\nmodel = {}\nlog = true\n", q(&t.app_launch.launch_date), q(model));
+            let _ = writeln!(
+                s,
+                "start = {}\nmodel = {}\nlog = true\nlog_controls = \"catalogue_orders\"\n",
+                q(&t.app_launch.launch_date),
+                q(model)
+            );
         }
     }
     if has_verb("synthetic") {

@@ -54,6 +54,10 @@ pub struct Args {
     /// Calendar of known events or holidays: CSV with columns date,name (one indicator per name).
     #[arg(long)]
     pub events: Option<PathBuf>,
+    /// Control series to enter on the log scale (comma-separated names from --controls), e.g.
+    /// a count that relates to the outcome multiplicatively; each value must be positive.
+    #[arg(long, default_value = "")]
+    pub log_controls: String,
     /// Model the log of the outcome (multiplicative effects).
     #[arg(long)]
     pub log: bool,
@@ -108,7 +112,26 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         missing: a.data_options.missing,
         gaps: a.data_options.gaps,
     };
-    let series = Series::from_table(&table, &spec).map_err(bad_input)?;
+    let mut series = Series::from_table(&table, &spec).map_err(bad_input)?;
+    for name in comma_list(&a.log_controls) {
+        let Some((_, values)) = series.controls.iter_mut().find(|(n, _)| *n == name) else {
+            return Err(crate::failure::bad_input_msg(format!(
+                "--log-controls: '{name}' is not one of the --controls ({})",
+                a.controls
+            )));
+        };
+        if let Some(i) = values.iter().position(|v| *v <= 0.0) {
+            return Err(crate::failure::bad_input_msg(format!(
+                "{}: control '{name}' is {} at {}; --log-controls needs positive values",
+                a.data.display(),
+                values[i],
+                series.axis.points()[i]
+            )));
+        }
+        for v in values.iter_mut() {
+            *v = v.ln();
+        }
+    }
     let split = series.split(&a.start, a.end.as_deref(), a.washout, 8).map_err(bad_input)?;
     let model: ModelKind = a.model.parse().map_err(bad_input)?;
     let mut params = ForecastParams::builder()
