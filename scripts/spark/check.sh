@@ -26,9 +26,12 @@ echo "== pyspark $("$venv/bin/python" -c 'import pyspark; print(pyspark.__versio
 
 cd "$root"
 cargo build --quiet -p aftercast-cli
-cargo build --quiet --release -p aftercast-windows --example gen_events
-bin="$root/target/debug/aftercast"
-gen="$root/target/release/examples/gen_events"
+# The dev profile builds dependencies optimised (see Cargo.toml), so the generator is fast
+# enough without a separate release build; honour CARGO_TARGET_DIR as CI sets it.
+cargo build --quiet -p aftercast-windows --example gen_events
+target="${CARGO_TARGET_DIR:-$root/target}"
+bin="$target/debug/aftercast"
+gen="$target/debug/examples/gen_events"
 submit="$venv/bin/spark-submit"
 
 run_both() { # name, then the windows flags (without --output/--series-output/--engine)

@@ -111,10 +111,11 @@ fn comparison_table_against_cps1_method_by_method() {
     assert!(!row("naive").covers_truth);
     assert_eq!(row("naive").extra["verdict"], "loss");
     assert_eq!(row("naive").extra["verdict_agrees"], false);
-    // Weighting estimators with the Dehejia-Wahba terms land in the band of the match issue,
+    // Nearest matching (Mahalanobis within the caliper) and the weighting estimators with the
+    // Dehejia-Wahba terms land in the band of the match issue,
     // [$1,000, $2,600] around DW's CPS-1 estimates ($1,582 matching, $1,713 strata), and cover
     // the experimental $1,794.
-    for m in ["match:ipw", "match:aipw"] {
+    for m in ["match:nearest", "match:ipw", "match:aipw"] {
         assert!(est(m) > 1000.0 && est(m) < 2600.0, "{m}: {}", est(m));
         assert!(row(m).covers_truth, "{m}");
     }

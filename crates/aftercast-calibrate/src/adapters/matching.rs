@@ -20,11 +20,13 @@ pub struct MatchEstimator {
 impl MatchEstimator {
     /// One method with the comparison's covariates and the given derived terms. Nearest
     /// matching is 1:1 with replacement within 0.2 SD of the logit (Austin 2011, common
-    /// practice); the ATT is targeted (overlap weights target the ATO by construction).
+    /// practice), choosing among the candidates within the caliper by Mahalanobis distance on
+    /// the covariates (the setting aftercast-match checks against Dehejia & Wahba 1999); the
+    /// ATT is targeted (overlap weights target the ATO by construction).
     pub fn new(method: Method, terms: Vec<Term>) -> Self {
         let mut params = MatchParams::new(Vec::<String>::new()).method(method).estimand(Estimand::Att).terms(terms);
         if method == Method::Nearest {
-            params = params.replace(true).caliper(Caliper::SdOfLogit(0.2));
+            params = params.replace(true).caliper(Caliper::SdOfLogit(0.2)).mahalanobis(true);
         }
         MatchEstimator { params }
     }
