@@ -599,7 +599,15 @@ impl Fitted {
         let back = |v: f64| if p.log { v.exp() } else { v };
         let obs: Vec<f64> = p.y[..n].iter().map(|v| back(*v)).collect();
         let pred_o: Vec<f64> = pred.iter().map(|v| back(*v)).collect();
+        // While a diffuse state is being resolved (the initial state, or the coefficient of an
+        // event before its first occurrence) the one-step prediction carries (nearly) unbounded
+        // variance; such periods (one-step sd above 10 times the median) are left out of the
+        // pre-period path.
+        let mut finite_sd: Vec<f64> = sd[..n].iter().copied().filter(|v| v.is_finite()).collect();
+        finite_sd.sort_by(f64::total_cmp);
+        let median_sd = finite_sd.get(finite_sd.len() / 2).copied().unwrap_or(f64::INFINITY);
         let pre_path: Vec<PathPoint> = (0..n)
+            .filter(|&t| sd[t].is_finite() && sd[t] <= 10.0 * median_sd)
             .filter(|&t| pred[t].is_finite())
             .map(|t| PathPoint {
                 time: p.times[t],
