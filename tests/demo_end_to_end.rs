@@ -61,11 +61,23 @@ fn demo_writes_everything_and_covers_every_true_effect() {
         assert!(a.command.starts_with("aftercast "), "{}: {}", a.name, a.command);
         assert!(!a.result.assumptions.is_empty(), "{}: no assumptions stated", a.name);
         assert!(out.join("analyses").join(format!("{}.json", a.name)).is_file());
-        let png = charts.join(format!("{}-posterior.png", a.name));
-        let svg = charts.join(format!("{}-posterior.svg", a.name));
-        assert!(png.is_file() && svg.is_file(), "{}: posterior chart missing", a.name);
-        let bytes = std::fs::read(&png).expect("png");
-        assert!(bytes.starts_with(b"\x89PNG\r\n\x1a\n"), "{}: not a PNG", a.name);
+        // The views each verb's report promises (docs/report.md), as PNG and SVG.
+        let views: &[&str] = match a.result.verb.as_str() {
+            "forecast" => &["posterior", "counterfactual", "effect", "running-total"],
+            "synthetic" => &["posterior", "treated-vs-synthetic", "effect", "running-total", "placebo-gaps", "weights"],
+            "match" => &["posterior", "propensity", "balance"],
+            "compare" => &["posterior", "versus-truth"],
+            _ => &["posterior"],
+        };
+        for view in views {
+            let png = charts.join(format!("{}-{view}.png", a.name));
+            let svg = charts.join(format!("{}-{view}.svg", a.name));
+            assert!(png.is_file() && svg.is_file(), "{}: chart {view} missing", a.name);
+            let bytes = std::fs::read(&png).expect("png");
+            assert!(bytes.starts_with(b"\x89PNG\r\n\x1a\n"), "{}: {view} is not a PNG", a.name);
+            let text = std::fs::read_to_string(&svg).expect("svg");
+            assert!(text.contains("<svg"), "{}: {view} is not an SVG", a.name);
+        }
         if let (Some(truth), Some(which)) = (a.truth, a.truth_of.as_deref()) {
             let s = summary_of(&a.result, which).unwrap_or_else(|| panic!("{}: no {which} summary", a.name));
             if !(s.lower <= truth && truth <= s.upper) {
