@@ -344,5 +344,45 @@ pub struct AnalysisResult {
     pub extra: serde_json::Map<String, serde_json::Value>,
 }
 
+impl AnalysisResult {
+    /// A result with the fields every verb fills and every optional section empty; set the rest
+    /// with struct-update syntax: `AnalysisResult { warnings, ..AnalysisResult::new(..) }`.
+    #[allow(clippy::too_many_arguments)]
+    pub fn new(
+        verb: &str,
+        method: &str,
+        level: f64,
+        seed: u64,
+        inputs: Vec<InputInfo>,
+        effect: EffectBlock,
+        verdict: Verdict,
+        rope: Rope,
+    ) -> Self {
+        AnalysisResult {
+            tool_version: TOOL_VERSION.to_string(),
+            verb: verb.to_string(),
+            method: method.to_string(),
+            level,
+            seed,
+            inputs,
+            estimand: None,
+            effect,
+            verdict,
+            rope,
+            diagnostics: serde_json::Map::new(),
+            warnings: Vec::new(),
+            path: None,
+            weights: None,
+            placebo: None,
+            balance: None,
+            sample: None,
+            truth: None,
+            estimates: None,
+            assumptions: Vec::new(),
+            extra: serde_json::Map::new(),
+        }
+    }
+}
+
 /// The version string written into results.
 pub const TOOL_VERSION: &str = env!("CARGO_PKG_VERSION");

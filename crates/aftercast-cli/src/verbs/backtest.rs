@@ -83,7 +83,7 @@ pub struct Args {
 
 fn run_plasmode(a: &Args, path: &std::path::Path) -> anyhow::Result<crate::verbs::Outcome> {
     use aftercast_calibrate::plasmode::{PlasmodeSpec, plasmode};
-    use aftercast_core::result::{AnalysisResult, EffectBlock, TOOL_VERSION};
+    use aftercast_core::result::{AnalysisResult, EffectBlock};
     use aftercast_core::units::{UnitSpec, UnitTable};
     let covariates = comma_list(&a.covariates);
     if covariates.is_empty() {
@@ -120,34 +120,27 @@ fn run_plasmode(a: &Args, path: &std::path::Path) -> anyhow::Result<crate::verbs
     );
     diagnostics.insert("known_effect".into(), serde_json::json!(a.effect));
     let result = AnalysisResult {
-        tool_version: TOOL_VERSION.to_string(),
-        verb: "backtest".into(),
-        method: "plasmode".into(),
-        level: a.common.level,
-        seed: a.common.seed,
-        inputs: vec![units.input.clone()],
         estimand: Some("ATT of the simulated outcomes".into()),
-        effect: EffectBlock { average, cumulative: None, relative: None },
-        verdict: aftercast_resample::verdict(
-            (average.hdi_lower, average.hdi_upper),
-            (a.common.rope.low, a.common.rope.high),
-        ),
-        rope: a.common.rope,
         diagnostics,
-        warnings: Vec::new(),
-        path: None,
-        weights: None,
-        placebo: None,
-        balance: None,
-        sample: None,
-        truth: None,
-        estimates: None,
         assumptions: vec![
             "The outcome model (linear in the covariates, normal noise) is a fair stand-in for the real outcomes."
                 .into(),
             "Treatment depends on the covariates only, as in the simulated data by construction.".into(),
         ],
         extra,
+        ..AnalysisResult::new(
+            "backtest",
+            "plasmode",
+            a.common.level,
+            a.common.seed,
+            vec![units.input.clone()],
+            EffectBlock { average, cumulative: None, relative: None },
+            aftercast_resample::verdict(
+                (average.hdi_lower, average.hdi_upper),
+                (a.common.rope.low, a.common.rope.high),
+            ),
+            a.common.rope,
+        )
     };
     let mut headline = format!("plasmode: {} simulated data sets, known effect {}", a.replicates, a.effect);
     for r in &reports {

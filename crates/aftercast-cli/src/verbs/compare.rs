@@ -9,7 +9,7 @@ use aftercast_calibrate::sample::{UnitCompareSpec, read_experiment, read_pool};
 use aftercast_calibrate::{
     CalibrateError, DrawOptions, Naive, Regression, RegressionKind, UnitEstimator, compare_units,
 };
-use aftercast_core::result::{AnalysisResult, EffectBlock, TOOL_VERSION};
+use aftercast_core::result::{AnalysisResult, EffectBlock};
 use aftercast_match::Method;
 use serde_json::{Map, json};
 use std::path::PathBuf;
@@ -115,30 +115,23 @@ fn summarize_history(a: &Args, path: &std::path::Path) -> anyhow::Result<crate::
     diagnostics.insert("effect_is".into(), json!("estimate minus truth over every recorded comparison"));
     diagnostics.insert("records".into(), json!(records.len()));
     let result = AnalysisResult {
-        tool_version: TOOL_VERSION.to_string(),
-        verb: "compare".into(),
-        method: "history-summary".into(),
-        level: a.common.level,
-        seed: a.common.seed,
-        inputs: Vec::new(),
         estimand: Some("bias of observational methods".into()),
-        effect: EffectBlock { average, cumulative: None, relative: None },
-        verdict: aftercast_resample::verdict(
-            (average.hdi_lower, average.hdi_upper),
-            (a.common.rope.low, a.common.rope.high),
-        ),
-        rope: a.common.rope,
         diagnostics,
-        warnings: Vec::new(),
-        path: None,
-        weights: None,
-        placebo: None,
-        balance: None,
-        sample: None,
-        truth: None,
-        estimates: None,
         assumptions: vec!["Past experiments are a fair sample of the situations the methods will be used in.".into()],
         extra,
+        ..AnalysisResult::new(
+            "compare",
+            "history-summary",
+            a.common.level,
+            a.common.seed,
+            Vec::new(),
+            EffectBlock { average, cumulative: None, relative: None },
+            aftercast_resample::verdict(
+                (average.hdi_lower, average.hdi_upper),
+                (a.common.rope.low, a.common.rope.high),
+            ),
+            a.common.rope,
+        )
     };
     let mut headline = format!("history of {} comparisons:", records.len());
     for r in &rows {
