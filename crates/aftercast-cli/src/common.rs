@@ -43,6 +43,23 @@ pub struct Common {
     pub quiet: bool,
 }
 
+/// Output flags of the verbs that write a whole study (`run`, `demo`).
+#[derive(Debug, Clone, clap::Args)]
+pub struct StudyOutput {
+    /// Folder for the results, charts and report.html.
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Allow writing into a folder that is not empty.
+    #[arg(long)]
+    pub force: bool,
+    /// Worker threads (default: all cores). Results do not depend on it.
+    #[arg(long, value_parser = clap::value_parser!(u64).range(1..=1024))]
+    pub threads: Option<u64>,
+    /// Print nothing on success.
+    #[arg(long)]
+    pub quiet: bool,
+}
+
 /// How input files are read.
 #[derive(Debug, Clone, clap::Args)]
 pub struct DataOptions {

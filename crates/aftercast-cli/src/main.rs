@@ -46,8 +46,8 @@ fn threads_of(verb: &Verb) -> Option<u64> {
         Verb::Windows(a) => a.threads,
         Verb::Forecast(a) => a.common.threads,
         Verb::Inspect(_) => None,
-        Verb::Run(a) => a.threads,
-        Verb::Demo(a) => a.threads,
+        Verb::Run(a) => a.output.threads,
+        Verb::Demo(a) => a.output.threads,
         Verb::Match(a) => a.common.threads,
         Verb::Synthetic(a) => a.common.threads,
         Verb::Compare(a) => a.common.threads,
@@ -82,7 +82,21 @@ fn dispatch(verb: &Verb) -> anyhow::Result<()> {
     }
 }
 
+fn panic_text(payload: &(dyn std::any::Any + Send)) -> String {
+    payload
+        .downcast_ref::<&str>()
+        .map(|s| s.to_string())
+        .or_else(|| payload.downcast_ref::<String>().cloned())
+        .unwrap_or_else(|| "unexpected failure".into())
+}
+
 fn main() {
+    // A panic is a bug, never the user's doing: print one line instead of Rust's panic report
+    // (the catch below turns it into exit code 1).
+    std::panic::set_hook(Box::new(|info| {
+        let at = info.location().map(|l| format!(" at {}:{}", l.file(), l.line())).unwrap_or_default();
+        eprintln!("aftercast: internal error{at}: {}", panic_text(info.payload()));
+    }));
     let cli = Cli::parse();
     let code = match std::panic::catch_unwind(|| {
         if let Some(n) = threads_of(&cli.verb) {

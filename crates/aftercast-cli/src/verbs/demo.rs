@@ -5,23 +5,13 @@ use crate::common::check_out_dir;
 use crate::demo::ScenarioTruth;
 use clap::CommandFactory;
 use std::fmt::Write as _;
-use std::path::PathBuf;
 
 /// Arguments of `demo`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// Folder to write the scenario, the study file and the results into.
-    #[arg(long)]
-    pub out: PathBuf,
-    /// Allow writing into a folder that is not empty.
-    #[arg(long)]
-    pub force: bool,
-    /// Worker threads (default: all cores). Results do not depend on it.
-    #[arg(long, value_parser = clap::value_parser!(u64).range(1..=1024))]
-    pub threads: Option<u64>,
-    /// Print nothing on success.
-    #[arg(long)]
-    pub quiet: bool,
+    /// Output folder and run options.
+    #[command(flatten)]
+    pub output: crate::common::StudyOutput,
 }
 
 fn has_verb(name: &str) -> bool {
@@ -138,17 +128,17 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
 /// # Errors
 /// Bad input when the folder is not empty (without --force); internal errors otherwise.
 pub fn run(a: &Args) -> anyhow::Result<()> {
-    check_out_dir(&a.out, a.force)?;
-    let truth = crate::demo::write_scenario(&a.out.join("data"))?;
-    aftercast_report::write_json(&a.out.join("truth.json"), &truth)?;
+    check_out_dir(&a.output.out, a.output.force)?;
+    let truth = crate::demo::write_scenario(&a.output.out.join("data"))?;
+    aftercast_report::write_json(&a.output.out.join("truth.json"), &truth)?;
     let study = demo_study(&truth);
-    let study_path = a.out.join("study.toml");
+    let study_path = a.output.out.join("study.toml");
     aftercast_report::write_atomic(&study_path, study.as_bytes())?;
-    let doc = crate::verbs::run::run_study(&study_path, &a.out, true, a.quiet)?;
-    if !a.quiet {
+    let doc = crate::verbs::run::run_study(&study_path, &a.output.out, true, a.output.quiet)?;
+    if !a.output.quiet {
         println!(
             "demo written to {}: data/ (invented scenario, true effects in truth.json), study.toml, result.json, {} analyses",
-            a.out.display(),
+            a.output.out.display(),
             doc.analyses.len()
         );
     }

@@ -14,18 +14,9 @@ use std::path::{Path, PathBuf};
 pub struct Args {
     /// The study file (TOML; schema in docs/study.md).
     pub study: PathBuf,
-    /// Folder for result.json, the per-analysis results, charts and report.html.
-    #[arg(long)]
-    pub out: PathBuf,
-    /// Allow writing into a folder that is not empty.
-    #[arg(long)]
-    pub force: bool,
-    /// Worker threads (default: all cores). Results do not depend on it.
-    #[arg(long, value_parser = clap::value_parser!(u64).range(1..=1024))]
-    pub threads: Option<u64>,
-    /// Print nothing on success.
-    #[arg(long)]
-    pub quiet: bool,
+    /// Output folder and run options.
+    #[command(flatten)]
+    pub output: crate::common::StudyOutput,
 }
 
 /// One analysis as recorded in a study's result.json.
@@ -152,9 +143,9 @@ pub fn run_study(study_path: &Path, out: &Path, force: bool, quiet: bool) -> any
 /// # Errors
 /// As [`run_study`].
 pub fn run(a: &Args) -> anyhow::Result<()> {
-    let doc = run_study(&a.study, &a.out, a.force, a.quiet)?;
-    if !a.quiet {
-        println!("wrote {} analyses to {}", doc.analyses.len(), a.out.display());
+    let doc = run_study(&a.study, &a.output.out, a.output.force, a.output.quiet)?;
+    if !a.output.quiet {
+        println!("wrote {} analyses to {}", doc.analyses.len(), a.output.out.display());
     }
     Ok(())
 }
