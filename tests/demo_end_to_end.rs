@@ -35,13 +35,10 @@ fn summary_of<'a>(r: &'a AnalysisResult, which: &str) -> Option<&'a Summary> {
 fn demo_writes_everything_and_covers_every_true_effect() {
     let dir = tempfile::tempdir().expect("tempdir");
     let out = dir.path().join("fernhill");
-    let run = Command::new(env!("CARGO_BIN_EXE_aftercast"))
-        .args(["demo", "--out"])
-        .arg(&out)
-        .arg("--quiet")
-        .output()
-        .expect("run demo");
+    let run =
+        Command::new(env!("CARGO_BIN_EXE_aftercast")).args(["demo", "--out"]).arg(&out).output().expect("run demo");
     assert_eq!(run.status.code(), Some(0), "demo failed: {}", String::from_utf8_lossy(&run.stderr));
+    let terminal = String::from_utf8_lossy(&run.stdout).to_string();
 
     for f in ["report.html", "result.json", "study.toml", "truth.json", "data/app_daily.csv", "data/members.csv"] {
         assert!(out.join(f).is_file(), "missing {f}");
@@ -64,6 +61,9 @@ fn demo_writes_everything_and_covers_every_true_effect() {
         // The views each verb's report promises (docs/report.md), as PNG and SVG.
         let views: &[&str] = match a.result.verb.as_str() {
             "forecast" => &["posterior", "counterfactual", "effect", "running-total"],
+            "synthetic" if a.result.method == "sdid" => {
+                &["posterior", "treated-vs-synthetic", "effect", "running-total", "weights"]
+            }
             "synthetic" => &["posterior", "treated-vs-synthetic", "effect", "running-total", "placebo-gaps", "weights"],
             "match" => &["posterior", "propensity", "balance"],
             "compare" => &["posterior", "versus-truth"],
@@ -79,11 +79,12 @@ fn demo_writes_everything_and_covers_every_true_effect() {
             assert!(text.contains("<svg"), "{}: {view} is not an SVG", a.name);
         }
         if let (Some(truth), Some(which)) = (a.truth, a.truth_of.as_deref()) {
+            // judged on the interval every output shows: the HDI
             let s = summary_of(&a.result, which).unwrap_or_else(|| panic!("{}: no {which} summary", a.name));
-            if !(s.lower <= truth && truth <= s.upper) {
+            if !(s.hdi_lower <= truth && truth <= s.hdi_upper) {
                 misses.push(format!(
                     "{}: true {which} effect {truth:.5} outside [{:.5}, {:.5}] (estimate {:.5})",
-                    a.name, s.lower, s.upper, s.mean
+                    a.name, s.hdi_lower, s.hdi_upper, s.estimate
                 ));
             }
         }
@@ -91,6 +92,9 @@ fn demo_writes_everything_and_covers_every_true_effect() {
     assert!(misses.is_empty(), "true effects outside their intervals:\n{}", misses.join("\n"));
 
     let html = std::fs::read_to_string(out.join("report.html")).expect("html");
+    let truth: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(out.join("truth.json")).expect("truth")).expect("truth.json");
+    issue_11_one_estimate_everywhere(&out, &doc, &terminal, &html, &truth);
     for needle in ["<html", "randomized", "aftercast run"] {
         assert!(html.contains(needle), "report.html lacks {needle}");
     }
@@ -98,4 +102,47 @@ fn demo_writes_everything_and_covers_every_true_effect() {
 
     let again = Command::new(env!("CARGO_BIN_EXE_aftercast")).args(["demo", "--out"]).arg(&out).output().expect("run");
     assert_eq!(again.status.code(), Some(2), "a non-empty --out must be refused without --force");
+}
+
+/// Issue 11: the terminal, result.json and report.html show the same point and the same
+/// interval (the HDI the verdict is judged on); the draws are kept beside the results and the
+/// distribution charts draw them; several treated units get a labelled total.
+fn issue_11_one_estimate_everywhere(
+    out: &std::path::Path,
+    doc: &StudyDoc,
+    terminal: &str,
+    html: &str,
+    truth: &serde_json::Value,
+) {
+    use aftercast_report::numbers::{judged_line, point_and_interval};
+    assert!(!html.contains("No draws were kept") && !html.contains("no draws were kept"));
+    for a in &doc.analyses {
+        let r = &a.result;
+        let shown = if r.verb == "compare" { r.effect.average } else { judged_line(r).summary };
+        let pct = r.verb != "compare" && judged_line(r).percent;
+        let (point, interval) = point_and_interval(&shown, pct);
+        let block = terminal.split(&format!("== {} ==", a.name)).nth(1).expect("terminal block");
+        let block = block.split("\n== ").next().unwrap_or(block);
+        assert!(block.contains(&point) && block.contains(&interval), "{}: terminal lacks {point} {interval}", a.name);
+        assert!(html.contains(&point) && html.contains(&interval), "{}: report lacks {point} {interval}", a.name);
+        // the judged summary's point is the method's own answer, inside its interval
+        assert!(shown.hdi_lower <= shown.estimate && shown.estimate <= shown.hdi_upper, "{}", a.name);
+        // the draws beside result.json reproduce its summaries
+        let kept = aftercast_core::draws_file::read(&out.join("analyses").join(format!("{}.draws.parquet", a.name)))
+            .expect("draws file");
+        let mean = kept.average.iter().sum::<f64>() / kept.average.len() as f64;
+        assert!((mean - r.effect.average.mean).abs() <= 1e-9 * mean.abs().max(1.0), "{}: kept draws", a.name);
+    }
+    // The spring sale: six regions; the total over them covers the true total, labelled as such.
+    let total_truth = truth["regional_sale"]["total_net_effect"].as_f64().expect("true total");
+    for a in doc.analyses.iter().filter(|a| a.result.verb == "synthetic") {
+        let r = &a.result;
+        assert_eq!(r.scope.units, 6, "{}", a.name);
+        let t = r.effect.total.expect("total over the treated regions");
+        assert!(t.hdi_lower <= total_truth && total_truth <= t.hdi_upper, "{}: total {t:?} vs {total_truth}", a.name);
+        let per_unit = r.effect.cumulative.expect("per-region total");
+        assert!((t.estimate / per_unit.estimate - 6.0).abs() < 0.5, "{}: total is about six regions' worth", a.name);
+    }
+    assert!(terminal.contains("total over all 6 treated units") && html.contains("total over all 6 treated units"));
+    assert!(terminal.contains("per period, per treated unit") && html.contains("per period, per treated unit"));
 }

@@ -37,12 +37,13 @@
 //! stop flag is raised (e.g. by Ctrl-C, see [`crate::interrupt`]).
 
 use crate::error::{CalibrateError, CalibrateResult};
-use aftercast_core::result::{AnalysisResult, EffectBlock, Rope, TOOL_VERSION};
+use aftercast_core::estimate::{Estimate, MdePoint, Per, Point, PowerPoint, Scope};
+use aftercast_core::result::EffectDraws;
 use aftercast_core::time::TimePoint;
 use aftercast_resample::rng::{child_seed, par_draws};
-use aftercast_resample::summary::{hdi, quantile_sorted, summarize, verdict};
+use aftercast_resample::summary::{hdi, quantile_sorted, summarize};
 use serde::{Deserialize, Serialize};
-use serde_json::{Map, Value, json};
+use serde_json::{Value, json};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::sync::Mutex;
@@ -84,7 +85,7 @@ pub trait PathModel: Send + Sync {
 /// | `draws` | 500 | counterfactual paths per origin | >= 20 |
 /// | `level` | 0.9 | interval level | (0, 1) |
 /// | `power` | 0.8 | target power of the MDE | (0, 1) |
-/// | `seed` | 20260301 | seed | any |
+/// | `seed` | 20240601 (`aftercast_core::DEFAULT_SEED`) | seed | any |
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct BacktestSpec {
     /// Number of placebo origins.
@@ -121,7 +122,7 @@ impl BacktestSpec {
             draws: 500,
             level: 0.9,
             power: 0.8,
-            seed: 20260301,
+            seed: aftercast_core::DEFAULT_SEED,
         }
     }
 
@@ -614,54 +615,63 @@ pub fn run(
 }
 
 impl BacktestReport {
-    /// The shared JSON document of the `backtest` verb. `effect` summarises the placebo
-    /// effects (what the model reports where nothing happened; centred near zero for a
-    /// well-calibrated model) and `verdict` is the ROPE verdict on their spread; the backtest
-    /// table is under `backtest`.
-    pub fn to_result(&self, rope: &Rope, inputs: Vec<aftercast_core::table::InputInfo>) -> AnalysisResult {
-        let rel: Vec<f64> = self.origins.iter().map(|o| o.relative_mean).collect();
+    /// The one estimate of a backtest: the draws are the mean placebo effects of the origins
+    /// (what the model reports where nothing happened; centred near zero for a well-calibrated
+    /// model); the planning table is the typed diagnostics and the power and MDE figures.
+    pub fn estimate(&self) -> Estimate<BacktestDiagnostics> {
         let avg: Vec<f64> = self.origins.iter().map(|o| o.average_mean).collect();
-        let relative = summarize(&rel, self.spec.level, None);
-        let average = summarize(&avg, self.spec.level, None);
-        let judged = match rope.units {
-            aftercast_core::result::RopeUnits::Percent => (relative.hdi_lower, relative.hdi_upper),
-            aftercast_core::result::RopeUnits::Outcome => (average.hdi_lower, average.hdi_upper),
+        // counterfactual level of each origin: average effect / relative effect
+        let base: Vec<f64> = self.origins.iter().map(|o| o.average_mean / o.relative_mean).collect();
+        let finite = |v: &[f64]| {
+            let f: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
+            f.iter().sum::<f64>() / f.len().max(1) as f64
         };
-        let mut diagnostics = Map::new();
-        diagnostics.insert("effect_is".into(), json!("distribution over placebo origins of the mean placebo effect"));
-        diagnostics.insert("series".into(), json!(self.series));
-        let mut extra = Map::new();
-        let mut table = serde_json::to_value(self).unwrap_or_default();
-        if let Value::Object(m) = &mut table {
-            m.remove("warnings");
+        let point = finite(&avg);
+        let base_point = finite(&base);
+        let mut table = self.clone();
+        let warnings = std::mem::take(&mut table.warnings);
+        let power = self
+            .power
+            .iter()
+            .map(|p| PowerPoint { post_length: p.length as f64, effect: p.lift, power: p.power })
+            .collect();
+        let mde = self
+            .mde
+            .iter()
+            .filter_map(|m| m.increase.or(m.decrease).map(|v| MdePoint { post_length: m.length as f64, mde: v }))
+            .collect();
+        let mut est = Estimate::new(
+            "backtest",
+            &self.model,
+            "placebo effect (no change happened)",
+            Point::Scalar { effect: point, baseline: Some(base_point) },
+            EffectDraws::Scalar { effect: avg, baseline: Some(base) },
+            Scope { per: Per::Period, units: 1 },
+            BacktestDiagnostics {
+                effect_is: "distribution over placebo origins of the mean placebo effect per period".into(),
+                backtest: table,
+            },
+        );
+        est.figures.power = power;
+        est.figures.mde = mde;
+        est.figures.lifts_are_relative = true;
+        for w in warnings {
+            est.warn(w);
         }
-        extra.insert("backtest".into(), table);
-        AnalysisResult {
-            tool_version: TOOL_VERSION.to_string(),
-            verb: "backtest".into(),
-            method: self.model.clone(),
-            level: self.spec.level,
-            seed: self.spec.seed,
-            inputs,
-            estimand: Some("placebo effect (no change happened)".into()),
-            effect: EffectBlock { average, cumulative: None, relative: Some(relative) },
-            verdict: verdict(judged, (rope.low, rope.high)),
-            rope: *rope,
-            diagnostics,
-            warnings: self.warnings.clone(),
-            path: None,
-            weights: None,
-            placebo: None,
-            balance: None,
-            sample: None,
-            truth: None,
-            estimates: None,
-            assumptions: vec![
-                "Nothing changed at the placebo dates, so any effect found there is an error of the model.".into(),
-                "The pre-period behaves like the post-period would have without the change.".into(),
-                "Injected lifts multiply every observed value of the window by the same factor.".into(),
-            ],
-            extra,
-        }
+        est.assumptions = vec![
+            "Nothing changed at the placebo dates, so any effect found there is an error of the model.".into(),
+            "The pre-period behaves like the post-period would have without the change.".into(),
+            "Injected lifts multiply every observed value of the window by the same factor.".into(),
+        ];
+        est
     }
+}
+
+/// The typed diagnostics of a backtest: what the effect summaries describe, and the table.
+#[derive(Debug, Clone, Serialize)]
+pub struct BacktestDiagnostics {
+    /// What the effect summaries describe.
+    pub effect_is: String,
+    /// The planning table (false positives, coverage, power, MDE, origins).
+    pub backtest: BacktestReport,
 }

@@ -8,13 +8,14 @@
 use crate::error::{CalibrateError, CalibrateResult};
 use crate::estimators::{MethodEstimate, UnitEstimator};
 use crate::history::HistoryRecord;
-use crate::options::DrawOptions;
 use crate::sample::{Pool, UnitCompareSpec, observational_sample};
 use crate::truth::{Metric, Truth, experiment_truth};
-use aftercast_core::result::{AnalysisResult, EffectBlock, EstimateRow, Summary, TOOL_VERSION, Verdict};
+use aftercast_core::estimate::Inference;
+use aftercast_core::estimate::{Estimate, Per, Point, Scope};
+use aftercast_core::result::{EffectBlock, EffectDraws, EstimateRow, Summary, Verdict};
 use aftercast_core::table::InputInfo;
 use aftercast_core::units::UnitTable;
-use aftercast_resample::summary::scalar_effects;
+use aftercast_resample::{judge, scalar_block};
 use serde::{Deserialize, Serialize};
 use serde_json::{Map, Value, json};
 
@@ -33,6 +34,18 @@ pub struct TruthSummary {
     pub verdict: Verdict,
     /// Further numbers (arm values, counts, allocation).
     pub details: Map<String, Value>,
+    /// The truth's draws (effect and control level per draw), for the one summary path.
+    #[serde(skip)]
+    pub draws: Vec<f64>,
+    /// Control level per draw.
+    #[serde(skip)]
+    pub baseline: Vec<f64>,
+    /// The control level at the point.
+    #[serde(skip)]
+    pub baseline_point: f64,
+    /// Units (or periods) the cumulative effect is summed over.
+    #[serde(skip)]
+    pub units: usize,
 }
 
 impl From<&Truth> for TruthSummary {
@@ -53,6 +66,10 @@ impl From<&Truth> for TruthSummary {
             effect: t.effect.clone(),
             verdict: t.verdict,
             details,
+            draws: t.draws.clone(),
+            baseline: t.baseline.clone(),
+            baseline_point: t.control_value,
+            units: t.n_treated,
         }
     }
 }
@@ -68,7 +85,7 @@ pub struct ComparisonRow {
     pub estimand: String,
     /// Point estimate.
     pub estimate: f64,
-    /// Summary of the method's draws.
+    /// Summary of the method's draws (`estimate` is the point).
     pub summary: Summary,
     /// Estimate minus truth.
     pub bias: f64,
@@ -76,7 +93,8 @@ pub struct ComparisonRow {
     pub relative_bias: f64,
     /// Bias divided by the sd of the truth's draws.
     pub bias_in_truth_sd: f64,
-    /// Whether the equal-tailed interval `[summary.lower, summary.upper]` holds the truth.
+    /// Whether the highest-density interval `[summary.hdi_lower, summary.hdi_upper]` (the one
+    /// the verdicts are judged on) holds the truth's point value.
     pub covers_truth: bool,
     /// The method's verdict.
     pub verdict: Verdict,
@@ -96,10 +114,11 @@ impl ComparisonRow {
         est: MethodEstimate,
         truth: &TruthSummary,
         n_treated: Option<usize>,
-        opts: &DrawOptions,
+        opts: &Inference,
     ) -> Self {
-        let (effect, verdict) =
-            scalar_effects(&est.draws, est.baseline.as_deref(), n_treated, opts.level, &opts.rope, opts.threshold);
+        let base_point = est.baseline.as_ref().map(|b| b.iter().sum::<f64>() / b.len().max(1) as f64);
+        let (effect, _) = scalar_block(est.point, base_point, &est.draws, est.baseline.as_deref(), n_treated, opts);
+        let (verdict, _) = judge(&effect, &opts.rope);
         let summary = effect.average;
         let bias = est.point - truth.point;
         ComparisonRow {
@@ -111,7 +130,7 @@ impl ComparisonRow {
             bias,
             relative_bias: if truth.point != 0.0 { bias / truth.point } else { f64::NAN },
             bias_in_truth_sd: if truth.summary.sd > 0.0 { bias / truth.summary.sd } else { f64::NAN },
-            covers_truth: summary.lower <= truth.point && truth.point <= summary.upper,
+            covers_truth: summary.hdi_lower <= truth.point && truth.point <= summary.hdi_upper,
             verdict,
             verdict_agrees: verdict == truth.verdict,
             diagnostics: est.diagnostics,
@@ -119,27 +138,21 @@ impl ComparisonRow {
         }
     }
 
-    /// The row in the shared result's form (`extra` holds every further field).
+    /// The row in the shared result's form.
     pub fn to_estimate_row(&self) -> EstimateRow {
-        let mut extra = Map::new();
-        let num = |v: f64| if v.is_finite() { json!(v) } else { Value::Null };
-        extra.insert("setting".into(), json!(self.setting));
-        extra.insert("estimand".into(), json!(self.estimand));
-        extra.insert("estimate".into(), num(self.estimate));
-        extra.insert("relative_bias".into(), num(self.relative_bias));
-        extra.insert("bias_in_truth_sd".into(), num(self.bias_in_truth_sd));
-        extra.insert("verdict".into(), json!(self.verdict.word()));
-        extra.insert("verdict_agrees".into(), json!(self.verdict_agrees));
-        extra.insert("diagnostics".into(), Value::Object(self.diagnostics.clone()));
-        if !self.warnings.is_empty() {
-            extra.insert("warnings".into(), json!(self.warnings));
-        }
         EstimateRow {
             method: self.method.clone(),
+            setting: self.setting.clone(),
+            estimand: self.estimand.clone(),
             summary: self.summary,
             bias: self.bias,
+            relative_bias: self.relative_bias,
+            bias_in_truth_sd: self.bias_in_truth_sd,
             covers_truth: self.covers_truth,
-            extra,
+            verdict: self.verdict,
+            verdict_agrees: self.verdict_agrees,
+            diagnostics: self.diagnostics.clone(),
+            warnings: self.warnings.clone(),
         }
     }
 }
@@ -165,7 +178,7 @@ pub struct Comparison {
     /// Methods that failed.
     pub failures: Vec<MethodFailure>,
     /// Options used.
-    pub options: DrawOptions,
+    pub options: Inference,
     /// Input files.
     pub inputs: Vec<InputInfo>,
     /// Plain-language warnings.
@@ -192,50 +205,58 @@ impl Comparison {
             .collect()
     }
 
-    /// The shared JSON document of the `compare` verb: the truth's effect and verdict on top,
-    /// `truth`, and one `estimates` row per method.
-    pub fn to_result(&self) -> AnalysisResult {
-        let mut diagnostics = Map::new();
-        diagnostics.insert("kind".into(), json!(self.kind));
-        diagnostics.insert("truth_label".into(), json!(self.truth.label));
-        diagnostics.insert("truth_point".into(), json!(self.truth.point));
-        diagnostics.insert("truth_details".into(), Value::Object(self.truth.details.clone()));
-        diagnostics.insert("interval".into(), json!("equal-tailed, at the stated level"));
-        if !self.failures.is_empty() {
-            diagnostics.insert("failed_methods".into(), serde_json::to_value(&self.failures).unwrap_or_default());
-        }
+    /// The one estimate of a comparison: the experiment's difference as the point, the truth's
+    /// draws, the per-method rows as the `estimates` section.
+    pub fn estimate(&self) -> Estimate<CompareDiagnostics> {
         let mut warnings = self.warnings.clone();
         for f in &self.failures {
             warnings.push(format!("{} could not run on {}: {}", f.method, f.setting, f.message));
         }
-        AnalysisResult {
-            tool_version: TOOL_VERSION.to_string(),
-            verb: "compare".into(),
-            method: "experiment".into(),
-            level: self.options.level,
-            seed: self.options.seed,
-            inputs: self.inputs.clone(),
-            estimand: Some(if self.kind == "units" { "ATT".into() } else { "effect on the treated arm".into() }),
-            effect: self.truth.effect.clone(),
-            verdict: self.truth.verdict,
-            rope: self.options.rope,
+        let diagnostics = CompareDiagnostics {
+            kind: self.kind.clone(),
+            truth_label: self.truth.label.clone(),
+            truth_point: self.truth.point,
+            truth_details: self.truth.details.clone(),
+            failed_methods: self.failures.clone(),
+        };
+        let t = &self.truth;
+        let mut est = Estimate::new(
+            "compare",
+            "experiment",
+            if self.kind == "units" { "ATT" } else { "effect on the treated arm" },
+            Point::Scalar { effect: t.point, baseline: Some(t.baseline_point) },
+            EffectDraws::Scalar { effect: t.draws.clone(), baseline: Some(t.baseline.clone()) },
+            Scope { per: Per::Unit, units: t.units },
             diagnostics,
-            warnings,
-            path: None,
-            weights: None,
-            placebo: None,
-            balance: None,
-            sample: None,
-            truth: Some(self.truth.summary),
-            estimates: Some(self.rows.iter().map(ComparisonRow::to_estimate_row).collect()),
-            assumptions: vec![
-                "The experiment's arms were randomized, so their difference is the effect on the treated arm.".into(),
-                "The pools describe the same kind of units as the experiment and none of them received the change.".into(),
-                "Each observational method is judged by how far its answer lands from the experiment's, on this experiment only.".into(),
-            ],
-            extra: Map::new(),
+        );
+        est.sections.truth = Some(t.summary.with_estimate(t.point));
+        est.sections.estimates = Some(self.rows.iter().map(ComparisonRow::to_estimate_row).collect());
+        for w in warnings {
+            est.warn(w);
         }
+        est.assumptions = vec![
+            "The experiment's arms were randomized, so their difference is the effect on the treated arm.".into(),
+            "The pools describe the same kind of units as the experiment and none of them received the change.".into(),
+            "Each observational method is judged by how far its answer lands from the experiment's, on this experiment only.".into(),
+        ];
+        est
     }
+}
+
+/// The typed diagnostics of a comparison.
+#[derive(Debug, Clone, Serialize)]
+pub struct CompareDiagnostics {
+    /// "units" or "series".
+    pub kind: String,
+    /// What the truth is.
+    pub truth_label: String,
+    /// The truth's point value.
+    pub truth_point: f64,
+    /// Arm values, counts, allocation.
+    pub truth_details: Map<String, Value>,
+    /// Methods that could not run.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub failed_methods: Vec<MethodFailure>,
 }
 
 /// Compare every method on every pool against the experiment's truth.
@@ -251,7 +272,7 @@ pub fn compare_units(
     pools: &[Pool],
     spec: &UnitCompareSpec,
     methods: &[&dyn UnitEstimator],
-    opts: &DrawOptions,
+    opts: &Inference,
 ) -> CalibrateResult<Comparison> {
     opts.check()?;
     if pools.is_empty() {

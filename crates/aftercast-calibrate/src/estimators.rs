@@ -8,7 +8,7 @@
 //! weights (Rubin 1981).
 
 use crate::error::{CalibrateError, CalibrateResult};
-use crate::options::DrawOptions;
+use aftercast_core::estimate::Inference;
 use aftercast_core::units::UnitTable;
 use aftercast_resample::bayes::{BayesBootstrap, exp1};
 use aftercast_resample::rng::{child_seed, par_draws};
@@ -47,7 +47,7 @@ pub trait UnitEstimator: Send + Sync {
         sample: &UnitTable,
         outcome: &str,
         covariates: &[String],
-        opts: &DrawOptions,
+        opts: &Inference,
     ) -> CalibrateResult<MethodEstimate>;
 }
 
@@ -73,7 +73,7 @@ impl UnitEstimator for Naive {
         s: &UnitTable,
         outcome: &str,
         _c: &[String],
-        opts: &DrawOptions,
+        opts: &Inference,
     ) -> CalibrateResult<MethodEstimate> {
         let y = outcome_of(s, outcome)?;
         let (mut t, mut c) = (Vec::new(), Vec::new());
@@ -184,7 +184,7 @@ impl UnitEstimator for Regression {
         s: &UnitTable,
         outcome: &str,
         covariates: &[String],
-        opts: &DrawOptions,
+        opts: &Inference,
     ) -> CalibrateResult<MethodEstimate> {
         let y = outcome_of(s, outcome)?;
         let n = s.len();

@@ -184,3 +184,49 @@ pub fn inflation_factor(required: &[f64], level: f64) -> f64 {
     let k = ((level * n as f64) - 1e-9).ceil().clamp(1.0, n as f64) as usize;
     r[k - 1]
 }
+
+/// The typed diagnostics of a history summary.
+#[derive(Debug, Clone, Serialize)]
+pub struct HistoryDiagnostics {
+    /// What the effect summaries describe.
+    pub effect_is: String,
+    /// Number of records.
+    pub records: usize,
+    /// The per-method summary.
+    pub history_summary: Vec<MethodSummary>,
+}
+
+/// The one estimate of a history summary: the biases (estimate minus truth) of every record as
+/// the draws, each against its truth's magnitude (so the relative effect is the relative bias
+/// and a ROPE in percent judges it), the per-method summary as diagnostics.
+///
+/// # Errors
+/// [`CalibrateError::BadParameter`] when there are no records.
+pub fn estimate(records: &[HistoryRecord]) -> CalibrateResult<aftercast_core::Estimate<HistoryDiagnostics>> {
+    use aftercast_core::estimate::{Per, Point, Scope};
+    if records.is_empty() {
+        return Err(CalibrateError::BadParameter {
+            name: "--summarize",
+            value: String::new(),
+            detail: "a history with at least one comparison".into(),
+        });
+    }
+    let bias: Vec<f64> = records.iter().map(|r| r.estimate - r.truth).collect();
+    let scale: Vec<f64> = records.iter().map(|r| r.truth.abs()).collect();
+    let n = records.len() as f64;
+    let mut est = aftercast_core::Estimate::new(
+        "compare",
+        "history-summary",
+        "bias of observational methods (estimate minus experimental truth)",
+        Point::Scalar { effect: bias.iter().sum::<f64>() / n, baseline: Some(scale.iter().sum::<f64>() / n) },
+        aftercast_core::EffectDraws::Scalar { effect: bias, baseline: Some(scale) },
+        Scope { per: Per::Comparison, units: records.len() },
+        HistoryDiagnostics {
+            effect_is: "estimate minus truth over every recorded comparison; relative = bias / |truth|".into(),
+            records: records.len(),
+            history_summary: summarize(records),
+        },
+    );
+    est.assumptions = vec!["Past experiments are a fair sample of the situations the methods will be used in.".into()];
+    Ok(est)
+}

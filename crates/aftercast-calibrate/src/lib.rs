@@ -33,7 +33,6 @@ pub mod error;
 pub mod estimators;
 pub mod history;
 pub mod interrupt;
-pub mod options;
 pub mod plasmode;
 pub mod sample;
 pub mod series;
@@ -43,4 +42,3 @@ pub use backtest::{BacktestData, BacktestReport, BacktestSpec, PathModel, RunCon
 pub use compare::{Comparison, ComparisonRow, TruthSummary, compare_units};
 pub use error::{CalibrateError, CalibrateResult};
 pub use estimators::{MethodEstimate, Naive, Regression, RegressionKind, UnitEstimator};
-pub use options::DrawOptions;

@@ -17,10 +17,10 @@ use crate::backtest::PathModel;
 use crate::compare::{Comparison, ComparisonRow, MethodFailure, TruthSummary};
 use crate::error::{CalibrateError, CalibrateResult};
 use crate::estimators::MethodEstimate;
-use crate::options::DrawOptions;
+use aftercast_core::estimate::Inference;
 use aftercast_core::table::InputInfo;
 use aftercast_resample::rng::child_seed;
-use aftercast_resample::summary::scalar_effects;
+use aftercast_resample::{judge, scalar_block};
 use serde_json::{Map, json};
 
 /// A past experiment as arm totals per period.
@@ -105,7 +105,7 @@ impl ArmSeries {
 /// # Errors
 /// [`CalibrateError::BadParameter`] for inconsistent lengths, shares or window;
 /// [`CalibrateError::Bootstrap`].
-pub fn series_truth(arms: &ArmSeries, opts: &DrawOptions) -> CalibrateResult<TruthSummary> {
+pub fn series_truth(arms: &ArmSeries, opts: &Inference) -> CalibrateResult<TruthSummary> {
     arms.check()?;
     opts.check()?;
     let d = arms.window_effects();
@@ -121,8 +121,9 @@ pub fn series_truth(arms: &ArmSeries, opts: &DrawOptions) -> CalibrateResult<Tru
         (e, b)
     });
     let (draws, baseline): (Vec<f64>, Vec<f64>) = pairs.into_iter().unzip();
-    let (effect, verdict) =
-        scalar_effects(&draws, Some(&baseline), Some(d.len()), opts.level, &opts.rope, opts.threshold);
+    let base_point = base.iter().sum::<f64>() / base.len() as f64;
+    let (effect, _) = scalar_block(point, Some(base_point), &draws, Some(&baseline), Some(d.len()), opts);
+    let (verdict, _) = judge(&effect, &opts.rope);
     let mut details = Map::new();
     details.insert("window_periods".into(), json!(d.len()));
     details.insert("allocation_ratio".into(), json!(r));
@@ -139,6 +140,10 @@ pub fn series_truth(arms: &ArmSeries, opts: &DrawOptions) -> CalibrateResult<Tru
         effect,
         verdict,
         details,
+        draws,
+        baseline,
+        baseline_point: base_point,
+        units: d.len(),
     })
 }
 
@@ -146,7 +151,7 @@ fn model_estimate(
     model: &dyn PathModel,
     arms: &ArmSeries,
     controls: &[Vec<f64>],
-    opts: &DrawOptions,
+    opts: &Inference,
 ) -> CalibrateResult<MethodEstimate> {
     let (s, e) = (arms.window_start, arms.window_end);
     let h = e - s;
@@ -192,7 +197,7 @@ pub fn compare_series(
     arms: &ArmSeries,
     forecast_models: &[&dyn PathModel],
     donor_models: &[&dyn PathModel],
-    opts: &DrawOptions,
+    opts: &Inference,
 ) -> CalibrateResult<Comparison> {
     let truth = series_truth(arms, opts)?;
     let h = arms.window_end - arms.window_start;

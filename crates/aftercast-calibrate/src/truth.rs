@@ -9,12 +9,12 @@
 //! The relative effect is computed per draw, `(treated - control) / control`.
 
 use crate::error::{CalibrateError, CalibrateResult};
-use crate::options::DrawOptions;
+use aftercast_core::estimate::Inference;
 use aftercast_core::result::{EffectBlock, Summary, Verdict};
 use aftercast_core::units::UnitTable;
 use aftercast_resample::bayes::{BayesBootstrap, PairSample, TieAggregation};
 use aftercast_resample::rng::{child_seed, par_draws};
-use aftercast_resample::summary::scalar_effects;
+use aftercast_resample::{judge, scalar_block};
 use serde::{Deserialize, Serialize};
 
 /// The metric an experiment is judged on.
@@ -103,16 +103,17 @@ fn split(units: &UnitTable, v: &[f64]) -> (Vec<f64>, Vec<f64>) {
 /// ```
 /// use aftercast_core::table::RawTable;
 /// use aftercast_core::units::{UnitSpec, UnitTable};
-/// use aftercast_calibrate::{truth::{experiment_truth, Metric}, DrawOptions};
+/// use aftercast_calibrate::truth::{experiment_truth, Metric};
+/// use aftercast_core::Inference;
 /// let csv = b"arm,y\ntreated,5\ntreated,7\ncontrol,4\ncontrol,2\n";
 /// let t = RawTable::from_csv_bytes(std::path::Path::new("x.csv"), csv)?;
 /// let spec = UnitSpec { treatment: "arm".into(), outcomes: vec!["y".into()], ..Default::default() };
 /// let units = UnitTable::from_table(&t, &spec)?;
-/// let truth = experiment_truth(&units, &Metric::Mean { outcome: "y".into() }, &DrawOptions::default())?;
+/// let truth = experiment_truth(&units, &Metric::Mean { outcome: "y".into() }, &Inference::default())?;
 /// assert_eq!(truth.point, 3.0);
 /// # Ok::<(), Box<dyn std::error::Error>>(())
 /// ```
-pub fn experiment_truth(units: &UnitTable, metric: &Metric, opts: &DrawOptions) -> CalibrateResult<Truth> {
+pub fn experiment_truth(units: &UnitTable, metric: &Metric, opts: &Inference) -> CalibrateResult<Truth> {
     opts.check()?;
     let path: std::path::PathBuf = units.input.path.clone().into();
     let n_treated = units.n_treated();
@@ -161,13 +162,14 @@ pub fn experiment_truth(units: &UnitTable, metric: &Metric, opts: &DrawOptions) 
             (tv, cv, d, base)
         }
     };
-    let (effect, verdict) =
-        scalar_effects(&draws, Some(&baseline), Some(n_treated), opts.level, &opts.rope, opts.threshold);
+    let point = treated_value - control_value;
+    let (effect, _) = scalar_block(point, Some(control_value), &draws, Some(&baseline), Some(n_treated), opts);
+    let (verdict, _) = judge(&effect, &opts.rope);
     Ok(Truth {
         metric: metric.clone(),
         treated_value,
         control_value,
-        point: treated_value - control_value,
+        point,
         n_treated,
         n_control,
         summary: effect.average,

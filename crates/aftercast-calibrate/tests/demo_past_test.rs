@@ -1,7 +1,8 @@
 //! The demo's past randomized test (demo-data/past_test, invented data with a stated truth).
 use aftercast_calibrate::adapters::matching::MatchEstimator;
 use aftercast_calibrate::sample::{UnitCompareSpec, read_experiment, read_pool};
-use aftercast_calibrate::{DrawOptions, Naive, Regression, RegressionKind, UnitEstimator, compare_units};
+use aftercast_calibrate::{Naive, Regression, RegressionKind, UnitEstimator, compare_units};
+use aftercast_core::Inference;
 use aftercast_core::table::RawTable;
 use aftercast_match::Method;
 use std::path::Path;
@@ -19,7 +20,7 @@ fn comparison_table_shows_how_far_each_method_lands() {
     let pool = read_pool(&RawTable::read(dir.join("pool.csv")).unwrap(), &spec, Some("pool")).unwrap();
     let ipw = MatchEstimator::new(Method::Ipw, Vec::new());
     let methods: Vec<&dyn UnitEstimator> = vec![&Naive, &Regression { kind: RegressionKind::Imputation }, &ipw];
-    let opts = DrawOptions { draws: 100, ..Default::default() };
+    let opts = Inference { draws: 100, ..Default::default() };
     let c = compare_units(&exp, &[pool], &spec, &methods, &opts).unwrap();
     // demo-data/README.md: the randomized arms say $4.16; treated-arm mean minus pool mean is
     // -$8.72 (the wrong sign); the generator's adjustment set is spend_pre and visits_pre.

@@ -2,13 +2,14 @@
 mod common;
 use aftercast_calibrate::adapters::matching::MatchEstimator;
 use aftercast_calibrate::truth::{Metric, experiment_truth};
-use aftercast_calibrate::{DrawOptions, Naive, Regression, RegressionKind, UnitEstimator, compare_units};
+use aftercast_calibrate::{Naive, Regression, RegressionKind, UnitEstimator, compare_units};
+use aftercast_core::Inference;
 use aftercast_core::result::{AnalysisResult, EstimateRow, Verdict};
 use common::{cps1, nsw, spec, tol};
 
 #[test]
 fn truth_is_the_published_difference_in_means() {
-    let opts = DrawOptions { draws: 4000, ..Default::default() };
+    let opts = Inference { draws: 4000, ..Default::default() };
     let t = experiment_truth(&nsw(), &Metric::Mean { outcome: "re78".into() }, &opts).unwrap();
     // Dehejia & Wahba (1999): treated 6349.14, control 4554.80, difference $1,794.34 ($1,794).
     assert!((t.treated_value - 6349.14).abs() < tol::TRUTH_DOLLARS, "{}", t.treated_value);
@@ -37,7 +38,7 @@ fn ratio_metric_truth_is_the_difference_of_ratios() {
     // ratio metric re78 / re75 over units with re75 > 0 would drop units; over all units the
     // ratio of sums is well defined: sum re78 / sum re75 per arm.
     let u = nsw();
-    let opts = DrawOptions { draws: 500, ..Default::default() };
+    let opts = Inference { draws: 500, ..Default::default() };
     let t =
         experiment_truth(&u, &Metric::Ratio { numerator: "re78".into(), denominator: "re75".into() }, &opts).unwrap();
     let sums = |g: bool, c: &str| -> f64 {
@@ -51,7 +52,7 @@ fn ratio_metric_truth_is_the_difference_of_ratios() {
 
 #[test]
 fn comparison_table_against_cps1_method_by_method() {
-    let opts = DrawOptions { draws: 100, ..Default::default() };
+    let opts = Inference { draws: 100, ..Default::default() };
     let terms: Vec<aftercast_match::design::Term> =
         ["age^2", "age^3", "educ^2", "zero(re74)", "zero(re75)", "educ:re74"]
             .iter()
@@ -69,7 +70,8 @@ fn comparison_table_against_cps1_method_by_method() {
     let c = compare_units(&nsw(), &[cps1()], &spec(), &refs, &opts).unwrap();
     assert!(c.failures.is_empty(), "{:?}", c.failures);
     // The JSON document parses back into the shared types, row by row.
-    let json = serde_json::to_string(&c.to_result()).unwrap();
+    let finished = aftercast_resample::finish(c.estimate(), &opts, c.inputs.clone()).unwrap();
+    let json = serde_json::to_string(&finished.result).unwrap();
     let doc: AnalysisResult = serde_json::from_str(&json).unwrap();
     let rows: Vec<EstimateRow> = doc.estimates.clone().unwrap();
     let names: Vec<&str> = rows.iter().map(|r| r.method.as_str()).collect();
@@ -89,28 +91,26 @@ fn comparison_table_against_cps1_method_by_method() {
     let truth = doc.truth.unwrap();
     assert!((c.truth.point - 1794.34).abs() < tol::TRUTH_DOLLARS);
     for r in &rows {
-        let est = r.extra["estimate"].as_f64().unwrap();
+        let est = r.summary.estimate;
         assert!((r.bias - (est - c.truth.point)).abs() < tol::ARITH, "{}", r.method);
-        let rel = r.extra["relative_bias"].as_f64().unwrap();
-        assert!((rel - r.bias / c.truth.point).abs() < tol::ARITH, "{}", r.method);
-        let bsd = r.extra["bias_in_truth_sd"].as_f64().unwrap();
-        assert!((bsd - r.bias / truth.sd).abs() < tol::ARITH, "{}", r.method);
+        assert!((r.relative_bias - r.bias / c.truth.point).abs() < tol::ARITH, "{}", r.method);
+        assert!((r.bias_in_truth_sd - r.bias / truth.sd).abs() < tol::ARITH, "{}", r.method);
+        // coverage is judged on the interval the verdicts use: the HDI
         assert_eq!(
             r.covers_truth,
-            r.summary.lower <= c.truth.point && c.truth.point <= r.summary.upper,
+            r.summary.hdi_lower <= c.truth.point && c.truth.point <= r.summary.hdi_upper,
             "{}",
             r.method
         );
-        let agrees = r.extra["verdict"].as_str().unwrap() == doc.verdict.word();
-        assert_eq!(r.extra["verdict_agrees"].as_bool().unwrap(), agrees, "{}", r.method);
+        assert_eq!(r.verdict_agrees, r.verdict == doc.verdict, "{}", r.method);
     }
     let row = |m: &str| rows.iter().find(|r| r.method == m).unwrap();
-    let est = |m: &str| row(m).extra["estimate"].as_f64().unwrap();
+    let est = |m: &str| row(m).summary.estimate;
     // Raw difference NSW treated - CPS-1: -$8,498 (Dehejia & Wahba 1999, Table 3).
     assert!((est("naive") + 8498.0).abs() < tol::RAW_DIFF_DOLLARS, "{}", est("naive"));
     assert!(!row("naive").covers_truth);
-    assert_eq!(row("naive").extra["verdict"], "loss");
-    assert_eq!(row("naive").extra["verdict_agrees"], false);
+    assert_eq!(row("naive").verdict.word(), "loss");
+    assert!(!row("naive").verdict_agrees);
     // Nearest matching (Mahalanobis within the caliper) and the weighting estimators with the
     // Dehejia-Wahba terms land in the band of the match issue,
     // [$1,000, $2,600] around DW's CPS-1 estimates ($1,582 matching, $1,713 strata), and cover
@@ -125,7 +125,10 @@ fn comparison_table_against_cps1_method_by_method() {
     for m in ["regression", "regression-imputation"] {
         assert!(est(m) > 300.0 && est(m) < 1794.34, "{m}: {}", est(m));
     }
-    assert_eq!(row("match:overlap").extra["estimand"], "ATO");
+    assert_eq!(row("match:overlap").estimand, "ATO");
+    // The experiment's point answer is the plain arm difference, in the truth and the effect alike.
+    assert!((truth.estimate - c.truth.point).abs() < tol::ARITH);
+    assert_eq!(doc.effect.average.estimate, truth.estimate);
     for r in &c.rows {
         eprintln!(
             "{:22} {:9.1} [{:9.1}, {:9.1}] bias {:9.1} covers {} {}",

@@ -1,8 +1,8 @@
 //! The synthetic control of aftercast-synth behind the backtest and series-compare traits.
-use aftercast_calibrate::DrawOptions;
 use aftercast_calibrate::adapters::synthetic::SyntheticModel;
 use aftercast_calibrate::backtest::{self, BacktestData, BacktestSpec, PathModel, RunControl};
 use aftercast_calibrate::series::{ArmSeries, compare_series};
+use aftercast_core::estimate::Inference;
 use aftercast_resample::rng::Stream;
 use rand_distr::{Distribution, StandardNormal};
 
@@ -66,7 +66,7 @@ fn series_compare_with_donor_segments() {
         inputs: Vec::new(),
     };
     let model = SyntheticModel::default();
-    let c = compare_series(&arms, &[], &[&model as &dyn PathModel], &DrawOptions { draws: 200, ..Default::default() })
+    let c = compare_series(&arms, &[], &[&model as &dyn PathModel], &Inference { draws: 200, ..Default::default() })
         .unwrap();
     assert!(c.failures.is_empty(), "{:?}", c.failures);
     let row = &c.rows[0];

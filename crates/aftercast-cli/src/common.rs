@@ -1,8 +1,9 @@
 //! Flags shared by every analysis verb, and the code that writes a verb's outputs.
 
 use crate::failure::{bad_input, bad_input_msg};
+use aftercast_core::estimate::{DEFAULT_DRAWS, DEFAULT_SEED, Inference};
 use aftercast_core::policy::{GapPolicy, MissingPolicy};
-use aftercast_core::result::{AnalysisResult, Rope};
+use aftercast_core::result::Rope;
 use aftercast_core::time::DateFormat;
 use aftercast_core::{DataError, RawTable};
 use std::path::{Path, PathBuf};
@@ -15,16 +16,16 @@ pub struct Common {
     pub level: f64,
     /// Region of practical equivalence: `1%` (of the counterfactual), `25` (outcome units),
     /// or asymmetric `-2%:1%`.
-    #[arg(long, default_value = "1%")]
+    #[arg(long, default_value = "1%", allow_hyphen_values = true)]
     pub rope: Rope,
     /// Report also the chance that the average effect exceeds this value (outcome units).
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true, value_parser = parse_finite)]
     pub threshold: Option<f64>,
     /// Number of draws (posterior, bootstrap or simulation).
-    #[arg(long, default_value_t = 1000, value_parser = clap::value_parser!(u64).range(10..=10_000_000))]
+    #[arg(long, default_value_t = DEFAULT_DRAWS as u64, value_parser = clap::value_parser!(u64).range(10..=10_000_000))]
     pub draws: u64,
     /// Seed; the same seed reproduces the run exactly, for any number of threads.
-    #[arg(long, default_value_t = 20_240_601)]
+    #[arg(long, default_value_t = DEFAULT_SEED)]
     pub seed: u64,
     /// Write the full result as JSON to this file.
     #[arg(long)]
@@ -41,6 +42,24 @@ pub struct Common {
     /// Print nothing on success.
     #[arg(long)]
     pub quiet: bool,
+}
+
+impl Common {
+    /// The inference options of the run (one definition for every verb).
+    pub fn inference(&self) -> Inference {
+        Inference {
+            level: self.level,
+            draws: usize::try_from(self.draws).unwrap_or(usize::MAX),
+            seed: self.seed,
+            rope: self.rope,
+            threshold: self.threshold,
+        }
+    }
+}
+
+fn parse_finite(s: &str) -> Result<f64, String> {
+    let v: f64 = s.trim().parse().map_err(|_| format!("'{s}' is not a number"))?;
+    if v.is_finite() { Ok(v) } else { Err(format!("'{s}' is not a finite number")) }
 }
 
 /// Output flags of the verbs that write a whole study (`run`, `demo`).
@@ -123,24 +142,32 @@ pub fn check_out_dir(dir: &Path, force: bool) -> anyhow::Result<()> {
     Ok(())
 }
 
-/// Write a verb's outputs: `--json FILE`, and with `--out DIR` the result, its charts and a
-/// one-analysis report (DIR/result.json, DIR/charts/, DIR/report.html).
+/// Write a verb's outputs: `--json FILE`, and with `--out DIR` the result, its draws, its charts
+/// and a one-analysis report (DIR/result.json, DIR/draws.parquet, DIR/charts/, DIR/report.html).
 ///
 /// # Errors
 /// Write failures (internal) and a non-empty `--out` without `--force` (bad input).
-pub fn write_outputs(common: &Common, result: &AnalysisResult, headline: &str) -> anyhow::Result<()> {
+pub fn write_outputs(common: &Common, outcome: &crate::verbs::Outcome) -> anyhow::Result<()> {
+    let result = &outcome.finished.result;
     if let Some(p) = &common.json {
         aftercast_report::write_json(p, result)?;
     }
     if let Some(dir) = &common.out {
         check_out_dir(dir, common.force)?;
         aftercast_report::write_json(&dir.join("result.json"), result)?;
-        let analysis = report_analysis(result.clone(), headline, None, &result.verb);
-        aftercast_report::charts::write_all(&analysis.result, &analysis.extras, &dir.join("charts"), &analysis.stem)?;
+        write_draws(&dir.join("draws.parquet"), &outcome.finished.draws)?;
+        let analysis = report_analysis(outcome, &outcome.headline, None, &result.verb);
+        aftercast_report::charts::write_all(
+            &analysis.result,
+            &analysis.draws,
+            &analysis.figures,
+            &dir.join("charts"),
+            &analysis.stem,
+        )?;
         let command = crate::study::shell_line(&std::env::args().collect::<Vec<_>>());
         let input = aftercast_report::html::ReportInput {
-            title: format!("aftercast {}: {}", result.verb, headline),
-            question: headline.to_string(),
+            title: format!("aftercast {}: {}", result.verb, outcome.headline),
+            question: outcome.headline.clone(),
             analyses: vec![analysis],
             command,
             study_file: None,
@@ -150,9 +177,19 @@ pub fn write_outputs(common: &Common, result: &AnalysisResult, headline: &str) -
     Ok(())
 }
 
+/// Write the kept draws as Parquet (format in docs/results.md), atomically.
+///
+/// # Errors
+/// Encoding or write failures (internal).
+pub fn write_draws(path: &Path, draws: &aftercast_core::KeptDraws) -> anyhow::Result<()> {
+    let bytes = aftercast_core::draws_file::to_parquet(draws, path).map_err(|e| anyhow::anyhow!("{e}"))?;
+    aftercast_report::write_atomic(path, &bytes)?;
+    Ok(())
+}
+
 /// One analysis as the report shows it.
 pub fn report_analysis(
-    result: AnalysisResult,
+    outcome: &crate::verbs::Outcome,
     label: &str,
     question: Option<String>,
     stem: &str,
@@ -160,8 +197,10 @@ pub fn report_analysis(
     aftercast_report::html::ReportAnalysis {
         label: label.to_string(),
         question,
-        result,
-        extras: aftercast_report::charts::ChartExtras::default(),
+        result: outcome.finished.result.clone(),
+        draws: outcome.finished.draws.clone(),
+        figures: outcome.finished.figures.clone(),
+        tables: outcome.tables.clone(),
         stem: stem.to_string(),
     }
 }

@@ -4,7 +4,6 @@
 //! Exit codes: 0 success, 2 bad input or usage, 1 internal failure.
 
 mod common;
-mod demo;
 mod failure;
 mod study;
 mod verbs;

@@ -172,16 +172,17 @@ fn resolve(base: &Path, p: &str) -> String {
     if path.is_absolute() { p.to_string() } else { base.join(path).to_string_lossy().into_owned() }
 }
 
-/// Quote an argument vector as a shell command a user can paste.
+/// Quote an argument vector as a shell command a user can paste (POSIX shell quoting by
+/// `shlex`). No shell can pass an argument holding a NUL byte; such an argument is shown with
+/// each NUL written as `\0`, so that line is for reading only.
 pub fn shell_line(argv: &[String]) -> String {
-    argv.iter()
-        .map(|a| {
-            if !a.is_empty() && a.chars().all(|c| c.is_ascii_alphanumeric() || "-_./:=,%".contains(c)) {
-                a.clone()
-            } else {
-                format!("'{}'", a.replace('\'', "'\\''"))
-            }
-        })
-        .collect::<Vec<_>>()
-        .join(" ")
+    shlex::try_join(argv.iter().map(String::as_str)).unwrap_or_else(|_| {
+        argv.iter()
+            .map(|a| {
+                let shown = a.replace('\0', "\\0");
+                shlex::try_quote(&shown).map(|q| q.into_owned()).unwrap_or(shown)
+            })
+            .collect::<Vec<_>>()
+            .join(" ")
+    })
 }

@@ -13,7 +13,10 @@
 //! # Ok::<(), aftercast_core::error::DataError>(())
 //! ```
 
+#[cfg(feature = "parquet")]
+pub mod draws_file;
 pub mod error;
+pub mod estimate;
 pub mod panel;
 #[cfg(feature = "parquet")]
 mod parquet_read;
@@ -25,6 +28,7 @@ pub mod time;
 pub mod units;
 
 pub use error::{DataError, DataResult, Location};
+pub use estimate::{DEFAULT_SEED, Estimate, Figures, Inference, KeptDraws, Per, Point, Scope};
 pub use policy::{GapPolicy, MissingPolicy};
 pub use result::{AnalysisResult, EffectBlock, EffectDraws, Rope, RopeUnits, Summary, Verdict};
 pub use table::{InputInfo, RawTable};

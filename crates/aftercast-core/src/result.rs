@@ -38,6 +38,9 @@ pub enum EffectDraws {
 /// Summary of one set of draws (the `S` object of the JSON result).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct Summary {
+    /// The method's point answer (where a summary has none of its own, the mean of the draws).
+    #[serde(deserialize_with = "nullable_f64")]
+    pub estimate: f64,
     /// Mean of the draws.
     #[serde(deserialize_with = "nullable_f64")]
     pub mean: f64,
@@ -187,6 +190,52 @@ pub struct EffectBlock {
     /// Relative effect: sum of effect / sum of counterfactual, per draw.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub relative: Option<Summary>,
+    /// Total over all treated units and post-periods, when several treated units stand behind
+    /// a series estimate (see `scope`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub total: Option<Summary>,
+}
+
+impl Summary {
+    /// The same summary with `estimate` set to the method's point answer.
+    pub fn with_estimate(mut self, point: f64) -> Summary {
+        self.estimate = point;
+        self
+    }
+
+    /// The interval the verdict is judged on: the highest-density interval.
+    pub fn judged_interval(&self) -> (f64, f64) {
+        (self.hdi_lower, self.hdi_upper)
+    }
+}
+
+/// Which summary the verdict was judged on, and with which interval.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Judged {
+    /// The relative effect (a ROPE in percent of the counterfactual).
+    Relative,
+    /// The average effect (a ROPE in outcome units).
+    Average,
+    /// The average effect against zero alone (a percent ROPE without a counterfactual level).
+    Sign,
+}
+
+/// How the verdict was reached: the quantity and the interval (always the HDI at `level`).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct JudgedOn {
+    /// The quantity.
+    pub quantity: Judged,
+    /// The interval: "hdi".
+    pub interval: IntervalKind,
+}
+
+/// Kinds of interval.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum IntervalKind {
+    /// Highest-density interval.
+    Hdi,
 }
 
 /// One post- (or pre-) period row of a series result.
@@ -274,16 +323,33 @@ pub struct SampleCounts {
 pub struct EstimateRow {
     /// Method name.
     pub method: String,
-    /// Its summary.
+    /// Setting (pool name, series).
+    pub setting: String,
+    /// Estimand the method targets.
+    pub estimand: String,
+    /// Its summary (`summary.estimate` is the method's point answer).
     pub summary: Summary,
     /// Estimate minus truth.
     #[serde(deserialize_with = "nullable_f64")]
     pub bias: f64,
-    /// Whether its interval covers the experimental estimate.
+    /// Bias divided by the truth (null when the truth is 0).
+    #[serde(deserialize_with = "nullable_f64")]
+    pub relative_bias: f64,
+    /// Bias divided by the sd of the truth's draws.
+    #[serde(deserialize_with = "nullable_f64")]
+    pub bias_in_truth_sd: f64,
+    /// Whether its highest-density interval covers the experimental estimate.
     pub covers_truth: bool,
-    /// Further per-method fields.
-    #[serde(flatten)]
-    pub extra: serde_json::Map<String, serde_json::Value>,
+    /// The method's verdict.
+    pub verdict: Verdict,
+    /// Whether it equals the experiment's verdict.
+    pub verdict_agrees: bool,
+    /// Method-specific numbers.
+    #[serde(default)]
+    pub diagnostics: serde_json::Map<String, serde_json::Value>,
+    /// Warnings of the method.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub warnings: Vec<String>,
 }
 
 /// The JSON document every verb writes (`--json FILE`, `DIR/result.json`).
@@ -305,12 +371,19 @@ pub struct AnalysisResult {
     /// ATT, ATE, or the series estimand.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub estimand: Option<String>,
+    /// What the numbers are per.
+    pub scope: crate::estimate::Scope,
     /// Effect summaries.
     pub effect: EffectBlock,
     /// The verdict word.
     pub verdict: Verdict,
+    /// Which summary and interval the verdict was judged on.
+    pub judged_on: JudgedOn,
     /// The ROPE used.
     pub rope: Rope,
+    /// The threshold whose exceedance chance `effect.average.prob_above_threshold` gives.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub threshold: Option<f64>,
     /// Method-specific diagnostics.
     pub diagnostics: serde_json::Map<String, serde_json::Value>,
     /// Plain-language warnings.
@@ -339,49 +412,6 @@ pub struct AnalysisResult {
     /// The assumptions the estimate rests on, in plain words.
     #[serde(default)]
     pub assumptions: Vec<String>,
-    /// Further verb-specific sections (e.g. the backtest table).
-    #[serde(flatten)]
-    pub extra: serde_json::Map<String, serde_json::Value>,
-}
-
-impl AnalysisResult {
-    /// A result with the fields every verb fills and every optional section empty; set the rest
-    /// with struct-update syntax: `AnalysisResult { warnings, ..AnalysisResult::new(..) }`.
-    #[allow(clippy::too_many_arguments)]
-    pub fn new(
-        verb: &str,
-        method: &str,
-        level: f64,
-        seed: u64,
-        inputs: Vec<InputInfo>,
-        effect: EffectBlock,
-        verdict: Verdict,
-        rope: Rope,
-    ) -> Self {
-        AnalysisResult {
-            tool_version: TOOL_VERSION.to_string(),
-            verb: verb.to_string(),
-            method: method.to_string(),
-            level,
-            seed,
-            inputs,
-            estimand: None,
-            effect,
-            verdict,
-            rope,
-            diagnostics: serde_json::Map::new(),
-            warnings: Vec::new(),
-            path: None,
-            weights: None,
-            placebo: None,
-            balance: None,
-            sample: None,
-            truth: None,
-            estimates: None,
-            assumptions: Vec::new(),
-            extra: serde_json::Map::new(),
-        }
-    }
 }
 
 /// The version string written into results.

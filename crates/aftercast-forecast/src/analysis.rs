@@ -11,12 +11,12 @@ use crate::holt_winters::{self, HwFit, HwSpec, Seasonality};
 use crate::optim::OptimReport;
 use crate::params::{ModelKind, Season, ValidParams};
 use crate::structural::{self, Initialisation, SeasonKind, SimulationOptions, StructuralFit, StructuralSpec};
-use aftercast_core::result::{AnalysisResult, PathPoint, TOOL_VERSION};
+use aftercast_core::estimate::{Estimate, Point, Scope};
+use aftercast_core::result::{EffectDraws, PathPoint};
 use aftercast_core::series::{Series, Split};
-use aftercast_core::table::InputInfo;
 use aftercast_core::time::TimePoint;
 use aftercast_resample::rng::child_seed;
-use aftercast_resample::summary::{SeriesEffects, series_effects};
+use aftercast_resample::{FinishError, Finished};
 use serde::{Deserialize, Serialize};
 
 /// A dummy seasonal longer than this is replaced by a trigonometric one (state dimension).
@@ -228,47 +228,21 @@ fn in_sample(model: &FittedModel, p: &Prepared, n_fit: usize) -> (Vec<f64>, Vec<
     }
 }
 
-/// Standard normal quantile (Acklam's rational approximation, relative error < 1.2e-9).
-#[allow(clippy::excessive_precision)]
+/// Standard normal quantile `Phi^-1(p)`: statrs' `Normal::standard().inverse_cdf` (Boost's
+/// rational approximations of `erfc_inv`, within a few ulp of the true value). `p <= 0` gives
+/// -inf, `p >= 1` +inf and NaN gives NaN, so no input reaches statrs' panic outside `[0, 1]`.
 pub fn normal_quantile(p: f64) -> f64 {
-    const A: [f64; 6] = [
-        -3.969683028665376e1,
-        2.209460984245205e2,
-        -2.759285104469687e2,
-        1.383577518672690e2,
-        -3.066479806614716e1,
-        2.506628277459239,
-    ];
-    const B: [f64; 5] =
-        [-5.447609879822406e1, 1.615858368580409e2, -1.556989798598866e2, 6.680131188771972e1, -1.328068155288572e1];
-    const C: [f64; 6] = [
-        -7.784894002430293e-3,
-        -3.223964580411365e-1,
-        -2.400758277161838,
-        -2.549732539343734,
-        4.374664141464968,
-        2.938163982698783,
-    ];
-    const D: [f64; 4] = [7.784695709041462e-3, 3.224671290700398e-1, 2.445134137142996, 3.754408661907416];
-    let pl = 0.02425;
+    use statrs::distribution::{ContinuousCDF, Normal};
+    if p.is_nan() {
+        return f64::NAN;
+    }
     if p <= 0.0 {
         return f64::NEG_INFINITY;
     }
     if p >= 1.0 {
         return f64::INFINITY;
     }
-    if p < pl {
-        let q = (-2.0 * p.ln()).sqrt();
-        (((((C[0] * q + C[1]) * q + C[2]) * q + C[3]) * q + C[4]) * q + C[5])
-            / ((((D[0] * q + D[1]) * q + D[2]) * q + D[3]) * q + 1.0)
-    } else if p <= 1.0 - pl {
-        let q = p - 0.5;
-        let r = q * q;
-        (((((A[0] * r + A[1]) * r + A[2]) * r + A[3]) * r + A[4]) * r + A[5]) * q
-            / (((((B[0] * r + B[1]) * r + B[2]) * r + B[3]) * r + B[4]) * r + 1.0)
-    } else {
-        -normal_quantile(1.0 - p)
-    }
+    Normal::standard().inverse_cdf(p)
 }
 
 /// Structural-model diagnostics.
@@ -319,12 +293,65 @@ pub struct Diagnostics {
     pub structural: Option<StructuralDiagnostics>,
     /// Holt-Winters details: smoothing parameters, residual variance, optimiser report.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub holt_winters: Option<serde_json::Value>,
+    pub holt_winters: Option<HoltWintersDiagnostics>,
     /// Harmonic-regression details: penalty, effective parameters, block length.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub harmonic: Option<serde_json::Value>,
+    pub harmonic: Option<HarmonicDiagnostics>,
     /// Whether the optimiser reported convergence (harmonic regression has none: true).
     pub converged: bool,
+}
+
+/// Holt-Winters details of a forecast.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct HoltWintersDiagnostics {
+    /// Additive or multiplicative seasonality.
+    pub seasonality: Seasonality,
+    /// Seasonal period.
+    pub period: usize,
+    /// Damped trend.
+    pub damped: bool,
+    /// Level smoothing.
+    pub alpha: f64,
+    /// Trend smoothing.
+    pub beta: f64,
+    /// Seasonal smoothing.
+    pub gamma: f64,
+    /// Damping.
+    pub phi: f64,
+    /// Residual variance.
+    pub sigma2: f64,
+    /// Why the optimiser stopped.
+    pub optimiser: OptimReport,
+}
+
+/// Harmonic-regression details of a forecast.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct HarmonicDiagnostics {
+    /// Ridge penalty.
+    pub ridge_lambda: f64,
+    /// Effective number of parameters.
+    pub effective_parameters: f64,
+    /// Residual standard deviation.
+    pub residual_sd: f64,
+    /// Mean block length of the residual bootstrap.
+    pub mean_block_length: f64,
+    /// Regression columns.
+    pub columns: Vec<String>,
+}
+
+/// The typed diagnostics of a forecast estimate (the `diagnostics` object of its result).
+#[derive(Debug, Clone, Serialize)]
+pub struct ForecastDiagnostics {
+    /// Fit and residual checks of the chosen model.
+    #[serde(flatten)]
+    pub model: Diagnostics,
+    /// The model the counterfactual came from (`auto` names its choice here).
+    pub chosen_model: String,
+    /// Number of counterfactual paths drawn.
+    pub draws: usize,
+    /// The pre-period backtest, when run.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub backtest: Option<Backtest>,
 }
 
 /// Counterfactual draws on the outcome's scale.
@@ -511,7 +538,7 @@ pub fn run_backtest(p: &Prepared, split: &Split, params: &ValidParams, models: &
         let mut mine = Vec::new();
         for (fi, &o) in origins.iter().enumerate() {
             let res = fit_model(kind, p, params, o).and_then(|m| {
-                let seed = child_seed(pp.seed, &format!("backtest-{}-{fi}", kind.name()));
+                let seed = child_seed(pp.inference.seed, &format!("backtest-{}-{fi}", kind.name()));
                 draw_paths(&m, p, params, o, skip, h, pp.backtest_draws, seed)
             });
             match res {
@@ -523,7 +550,7 @@ pub fn run_backtest(p: &Prepared, split: &Split, params: &ValidParams, models: &
                     };
                     let obs: Vec<f64> =
                         (o + skip..o + skip + h).map(|t| if p.log { p.y[t].exp() } else { p.y[t] }).collect();
-                    let (c, mape, cov) = score(&paths, &obs, pp.level);
+                    let (c, mape, cov) = score(&paths, &obs, pp.inference.level);
                     mine.push(BacktestRow {
                         model: kind.name().into(),
                         fit_end: p.times[o - 1],
@@ -562,7 +589,7 @@ pub fn run_backtest(p: &Prepared, split: &Split, params: &ValidParams, models: &
         .filter(|s| s.failed.is_none() && s.folds > 0 && s.crps.is_finite())
         .min_by(|a, b| a.crps.total_cmp(&b.crps))
         .map(|s| s.model.clone());
-    Backtest { level: pp.level, washout: skip, rows, summary, chosen }
+    Backtest { level: pp.inference.level, washout: skip, rows, summary, chosen }
 }
 
 impl Fitted {
@@ -575,8 +602,16 @@ impl Fitted {
         let pp = self.params.get();
         let s = &self.split;
         let skip = s.post_start - s.pre_end;
-        let paths =
-            draw_paths(&self.model, &self.prepared, &self.params, s.pre_end, skip, s.post_len(), pp.draws, pp.seed)?;
+        let paths = draw_paths(
+            &self.model,
+            &self.prepared,
+            &self.params,
+            s.pre_end,
+            skip,
+            s.post_len(),
+            pp.inference.draws,
+            pp.inference.seed,
+        )?;
         let draws = if self.prepared.log {
             paths.into_iter().map(|v| v.into_iter().map(f64::exp).collect()).collect()
         } else {
@@ -595,7 +630,7 @@ impl Fitted {
         let s = &self.split;
         let n = s.pre_end;
         let (pred, sd, std_res) = in_sample(&self.model, p, n);
-        let z = normal_quantile(0.5 + self.params.get().level / 2.0);
+        let z = normal_quantile(0.5 + self.params.get().inference.level / 2.0);
         let back = |v: f64| if p.log { v.exp() } else { v };
         let obs: Vec<f64> = p.y[..n].iter().map(|v| back(*v)).collect();
         let pred_o: Vec<f64> = pred.iter().map(|v| back(*v)).collect();
@@ -674,17 +709,26 @@ impl Fitted {
             }
             FittedModel::HoltWinters(f) => {
                 d.converged = f.optim.converged;
-                d.holt_winters = Some(serde_json::json!({
-                    "seasonality": f.spec.seasonality, "period": f.spec.period, "damped": f.spec.damped,
-                    "alpha": f.params.alpha, "beta": f.params.beta, "gamma": f.params.gamma, "phi": f.params.phi,
-                    "sigma2": f.sigma2, "optimiser": f.optim,
-                }));
+                d.holt_winters = Some(HoltWintersDiagnostics {
+                    seasonality: f.spec.seasonality,
+                    period: f.spec.period,
+                    damped: f.spec.damped,
+                    alpha: f.params.alpha,
+                    beta: f.params.beta,
+                    gamma: f.params.gamma,
+                    phi: f.params.phi,
+                    sigma2: f.sigma2,
+                    optimiser: f.optim.clone(),
+                });
             }
             FittedModel::Harmonic(f) => {
-                d.harmonic = Some(serde_json::json!({
-                    "ridge_lambda": f.lambda, "effective_parameters": f.effective_params, "residual_sd": f.sigma,
-                    "mean_block_length": f.mean_block_length, "columns": f.columns,
-                }));
+                d.harmonic = Some(HarmonicDiagnostics {
+                    ridge_lambda: f.lambda,
+                    effective_parameters: f.effective_params,
+                    residual_sd: f.sigma,
+                    mean_block_length: f.mean_block_length,
+                    columns: f.columns.clone(),
+                });
             }
         }
         (d, pre_path)
@@ -698,8 +742,8 @@ pub struct ForecastRun {
     pub fitted: Fitted,
     /// Counterfactual draws.
     pub counterfactual: Counterfactual,
-    /// Effects, verdict and post-period path.
-    pub effects: SeriesEffects,
+    /// The point counterfactual: the pointwise median of the draws (the forecast's own answer).
+    pub median_path: Vec<f64>,
     /// Pre-period rows of the path.
     pub pre_path: Vec<PathPoint>,
     /// Diagnostics.
@@ -710,8 +754,19 @@ pub struct ForecastRun {
     pub warnings: Vec<String>,
 }
 
-/// Run a whole analysis: prepare, (backtest), fit, draw counterfactual paths, summarise.
-/// This is what the `forecast` verb calls.
+/// Pointwise median of path draws.
+fn median_path(draws: &[Vec<f64>], len: usize) -> Vec<f64> {
+    (0..len)
+        .map(|t| {
+            let mut v: Vec<f64> = draws.iter().map(|p| p[t]).filter(|x| x.is_finite()).collect();
+            v.sort_by(f64::total_cmp);
+            aftercast_resample::summary::quantile_sorted(&v, 0.5)
+        })
+        .collect()
+}
+
+/// Run a whole analysis: prepare, (backtest), fit, draw counterfactual paths.
+/// This is what the `forecast` verb calls; [`ForecastRun::estimate`] hands the result on.
 ///
 /// # Errors
 /// Every [`ForecastError`] of preparation, fitting and simulation.
@@ -747,13 +802,7 @@ pub fn analyse(
     warnings.extend(model.warnings().iter().cloned());
     let fitted = Fitted { model, prepared, split, params: params.clone(), warnings: warnings.clone(), control_breaks };
     let cf = fitted.counterfactual()?;
-    let effects = series_effects(&cf.times, &cf.observed, &cf.draws, pp.level, &pp.rope, pp.threshold);
-    if effects.nonfinite_relative > 0 {
-        warnings.push(format!(
-            "{} draws had a zero counterfactual sum; their relative effect is not finite",
-            effects.nonfinite_relative
-        ));
-    }
+    let median = median_path(&cf.draws, cf.observed.len());
     let coverage = backtest
         .as_ref()
         .and_then(|bt| bt.summary.iter().find(|s| s.model == kind.name() && s.folds > 0).map(|s| s.coverage));
@@ -764,52 +813,79 @@ pub fn analyse(
             diagnostics.ljung_box.statistic, diagnostics.ljung_box.lags, diagnostics.ljung_box.p_value
         ));
     }
-    Ok(ForecastRun { fitted, counterfactual: cf, effects, pre_path, diagnostics, backtest, warnings })
+    Ok(ForecastRun { fitted, counterfactual: cf, median_path: median, pre_path, diagnostics, backtest, warnings })
 }
 
 impl ForecastRun {
-    /// The shared JSON result. `path` holds the pre-period rows followed by the post-period rows;
-    /// `extra` carries `backtest` (when run) and `chosen_model`.
-    pub fn to_result(&self, inputs: Vec<InputInfo>) -> AnalysisResult {
+    /// The one estimate: the median path as the point counterfactual, the path draws, the
+    /// pre-period rows, typed diagnostics, warnings and assumptions.
+    pub fn estimate(&self) -> Estimate<ForecastDiagnostics> {
         let pp = self.fitted.params.get();
-        let mut diagnostics = match serde_json::to_value(&self.diagnostics) {
-            Ok(serde_json::Value::Object(m)) => m,
-            _ => serde_json::Map::new(),
+        let cf = &self.counterfactual;
+        let diagnostics = ForecastDiagnostics {
+            model: self.diagnostics.clone(),
+            chosen_model: self.fitted.model.name().into(),
+            draws: pp.inference.draws,
+            backtest: self.backtest.clone(),
         };
-        diagnostics.insert("draws".into(), serde_json::json!(pp.draws));
-        let mut extra = serde_json::Map::new();
-        if let Some(bt) = &self.backtest {
-            extra.insert("backtest".into(), serde_json::to_value(bt).unwrap_or(serde_json::Value::Null));
-        }
-        extra.insert("chosen_model".into(), serde_json::json!(self.fitted.model.name()));
-        let mut path = self.pre_path.clone();
-        path.extend(self.effects.path.iter().cloned());
-        AnalysisResult {
-            tool_version: TOOL_VERSION.to_string(),
-            verb: "forecast".into(),
-            method: self.fitted.model.name().into(),
-            level: pp.level,
-            seed: pp.seed,
-            inputs,
-            estimand: Some("effect on the series over the post-period (observed minus counterfactual)".into()),
-            effect: self.effects.effect.clone(),
-            verdict: self.effects.verdict,
-            rope: pp.rope,
+        let mut est = Estimate::new(
+            "forecast",
+            self.fitted.model.name(),
+            "effect on the series over the post-period (observed minus counterfactual)",
+            Point::Path(self.median_path.clone()),
+            EffectDraws::Path {
+                times: cf.times.clone(),
+                observed: cf.observed.clone(),
+                counterfactual: cf.draws.clone(),
+            },
+            Scope::series(),
             diagnostics,
-            warnings: self.warnings.clone(),
-            path: Some(path),
-            weights: None,
-            placebo: None,
-            balance: None,
-            sample: None,
-            truth: None,
-            estimates: None,
-            assumptions: vec![
-                "The change did not affect the control series or the event calendar.".into(),
-                "Without the change, the pre-period's trend, seasonality and relation to the controls would have continued into the post-period.".into(),
-                "Nothing else that moves the outcome happened at the intervention date.".into(),
-            ],
-            extra,
+        );
+        est.sections.pre_path = self.pre_path.clone();
+        for w in &self.warnings {
+            est.warn(w.clone());
         }
+        est.assumptions = vec![
+            "The change did not affect the control series or the event calendar.".into(),
+            "Without the change, the pre-period's trend, seasonality and relation to the controls would have continued into the post-period.".into(),
+            "Nothing else that moves the outcome happened at the intervention date.".into(),
+        ];
+        est
+    }
+
+    /// The estimate through the one summary path, with the run's own inference options.
+    ///
+    /// # Errors
+    /// [`FinishError`] (a bug, not bad input).
+    pub fn summarize(&self, inputs: Vec<aftercast_core::table::InputInfo>) -> Result<Finished, FinishError> {
+        aftercast_resample::finish(self.estimate(), &self.fitted.params.get().inference, inputs)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::normal_quantile;
+
+    #[test]
+    fn normal_quantile_matches_scipy() {
+        // Reference: scipy.stats.norm.ppf(p), scipy 1.17.1; each agrees with mpmath's
+        // sqrt(2) * erfinv(2p - 1) at 40 digits to within 4e-16.
+        // (p, norm.ppf(p))
+        let cases = [
+            (0.975, 1.959963984540054),
+            (0.95, 1.6448536269514722),
+            (0.995, 2.5758293035489004),
+            (0.05, -1.6448536269514729),
+            (1e-10, -6.361340902404056),
+        ];
+        for (p, want) in cases {
+            let got = normal_quantile(p);
+            assert!((got - want).abs() <= 1e-14 * want.abs(), "normal_quantile({p}) = {got}, want {want}");
+        }
+        assert_eq!(normal_quantile(0.5), 0.0);
+        assert_eq!(normal_quantile(0.0), f64::NEG_INFINITY);
+        assert_eq!(normal_quantile(1.0), f64::INFINITY);
+        assert_eq!(normal_quantile(-0.5), f64::NEG_INFINITY);
+        assert!(normal_quantile(f64::NAN).is_nan());
     }
 }

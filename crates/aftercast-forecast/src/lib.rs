@@ -21,7 +21,7 @@
 //! let split = series.split("50", None, 0, 10)?;
 //! let params = ForecastParams::builder().model(ModelKind::Structural).draws(200).backtest_folds(0).check()?;
 //! let run = analyse(&series, split, &params, None)?;
-//! assert!(run.effects.effect.average.mean > 5.0);
+//! assert!(run.summarize(vec![]).unwrap().result.effect.average.mean > 5.0);
 //! # Ok::<(), aftercast_forecast::ForecastError>(())
 //! ```
 
@@ -37,7 +37,7 @@ pub mod optim;
 pub mod params;
 pub mod structural;
 
-pub use analysis::{Counterfactual, Diagnostics, Fitted, FittedModel, ForecastRun, analyse};
+pub use analysis::{Counterfactual, Diagnostics, Fitted, FittedModel, ForecastDiagnostics, ForecastRun, analyse};
 pub use error::{ForecastError, ForecastResult};
 pub use events::EventCalendar;
 pub use params::{ForecastParams, ModelKind, Season, ValidParams};

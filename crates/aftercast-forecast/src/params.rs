@@ -7,9 +7,7 @@
 //! | `seasons` | from the data's frequency | seasonal components (`7`, `365.25:4`) | period > 1; `K <= period / 2` |
 //! | `trend` | `linear-trend` | structural trend | `level`, `linear-trend`, `damped-trend` |
 //! | `log` | `false` | model the log of the outcome (multiplicative effects) | outcome > 0 |
-//! | `level` | `0.9` | interval level | (0, 1) |
-//! | `draws` | `1000` | counterfactual path draws | >= 10 |
-//! | `seed` | `1` | seed of all random streams | any |
+//! | `inference` | level 0.9, 1000 draws, seed 20240601, ROPE +-1% | [`Inference`] (shared by every verb) | see there |
 //! | `parameter_uncertainty` | `true` | draw structural variances from the MLE's asymptotic normal | |
 //! | `parameter_sets` | `100` | distinct parameter draws (one filter pass each) | >= 1 |
 //! | `hw_seasonality` | `additive` | Holt-Winters seasonality | `none`, `additive`, `multiplicative` |
@@ -17,13 +15,12 @@
 //! | `ridge` | GCV | harmonic-regression ridge penalty (on standardised columns) | >= 0 |
 //! | `backtest_folds` | `3` | rolling origins in the pre-period | 0 ..= 20 |
 //! | `backtest_draws` | `200` | path draws per backtest forecast | >= 10 |
-//! | `rope` | +-1% | region of practical equivalence | low < high |
-//! | `threshold` | none | report P(average effect > threshold) | finite |
 
 use crate::error::{ForecastError, ForecastResult};
 use crate::holt_winters::Seasonality;
 use crate::structural::{SeasonKind, Trend};
-use aftercast_core::result::Rope;
+use aftercast_core::DataError;
+use aftercast_core::estimate::Inference;
 use aftercast_core::time::Frequency;
 use serde::{Deserialize, Serialize};
 
@@ -160,12 +157,8 @@ pub struct ForecastParams {
     pub trend: Trend,
     /// Model the log of the outcome.
     pub log: bool,
-    /// Interval level.
-    pub level: f64,
-    /// Counterfactual path draws.
-    pub draws: usize,
-    /// Seed.
-    pub seed: u64,
+    /// Level, draws, seed, ROPE and threshold (one definition for every verb).
+    pub inference: Inference,
     /// Structural parameter uncertainty.
     pub parameter_uncertainty: bool,
     /// Distinct structural parameter draws.
@@ -180,10 +173,6 @@ pub struct ForecastParams {
     pub backtest_folds: usize,
     /// Draws per backtest forecast.
     pub backtest_draws: usize,
-    /// ROPE.
-    pub rope: Rope,
-    /// Threshold for P(average effect > threshold).
-    pub threshold: Option<f64>,
 }
 
 impl Default for ForecastParams {
@@ -193,9 +182,7 @@ impl Default for ForecastParams {
             seasons: None,
             trend: Trend::LinearTrend,
             log: false,
-            level: 0.9,
-            draws: 1000,
-            seed: 1,
+            inference: Inference::default(),
             parameter_uncertainty: true,
             parameter_sets: 100,
             hw_seasonality: Seasonality::Additive,
@@ -203,8 +190,6 @@ impl Default for ForecastParams {
             ridge: None,
             backtest_folds: 3,
             backtest_draws: 200,
-            rope: Rope::default(),
-            threshold: None,
         }
     }
 }
@@ -243,29 +228,29 @@ impl ForecastParams {
         self.log = on;
         self
     }
+    /// Level, draws, seed, ROPE and threshold at once.
+    pub fn inference(mut self, inf: Inference) -> Self {
+        self.inference = inf;
+        self
+    }
     /// Interval level.
     pub fn level(mut self, l: f64) -> Self {
-        self.level = l;
+        self.inference.level = l;
         self
     }
     /// Number of draws.
     pub fn draws(mut self, n: usize) -> Self {
-        self.draws = n;
+        self.inference.draws = n;
         self
     }
     /// Seed.
     pub fn seed(mut self, s: u64) -> Self {
-        self.seed = s;
+        self.inference.seed = s;
         self
     }
     /// Rolling origins of the backtest (0 = none).
     pub fn backtest_folds(mut self, n: usize) -> Self {
         self.backtest_folds = n;
-        self
-    }
-    /// ROPE.
-    pub fn rope(mut self, r: Rope) -> Self {
-        self.rope = r;
         self
     }
 
@@ -277,11 +262,17 @@ impl ForecastParams {
         let bad = |name: &'static str, value: String, detail: &str| {
             Err(ForecastError::BadParameter { name, value, detail: detail.to_string() })
         };
-        if !(self.level > 0.0 && self.level < 1.0) {
-            return bad("level", self.level.to_string(), "must lie strictly between 0 and 1");
-        }
-        if self.draws < 10 {
-            return bad("draws", self.draws.to_string(), "at least 10 draws are needed");
+        if let Err(DataError::BadArgument { what, text, detail }) = self.inference.check() {
+            return bad(
+                match what.as_str() {
+                    "--level" => "level",
+                    "--draws" => "draws",
+                    "--threshold" => "threshold",
+                    _ => "rope",
+                },
+                text,
+                &detail,
+            );
         }
         if self.parameter_sets == 0 {
             return bad("parameter_sets", "0".into(), "at least 1");
@@ -296,14 +287,6 @@ impl ForecastParams {
             && !(r.is_finite() && r >= 0.0)
         {
             return bad("ridge", r.to_string(), "must be a finite number >= 0");
-        }
-        if let Some(t) = self.threshold
-            && !t.is_finite()
-        {
-            return bad("threshold", t.to_string(), "must be finite");
-        }
-        if !(self.rope.low < self.rope.high && self.rope.low.is_finite() && self.rope.high.is_finite()) {
-            return bad("rope", format!("{}:{}", self.rope.low, self.rope.high), "needs finite low < high");
         }
         if let Some(ss) = &self.seasons {
             for s in ss {

@@ -77,7 +77,7 @@ fn every_model_finds_a_ten_percent_lift() {
     for model in [ModelKind::Structural, ModelKind::HoltWinters, ModelKind::Harmonic] {
         let p = params(model).check().unwrap();
         let run = analyse(&s, split, &p, None).unwrap();
-        let rel = run.effects.effect.relative.unwrap();
+        let rel = run.summarize(vec![]).unwrap().result.effect.relative.unwrap();
         assert!(rel.lower > 0.0, "{model:?}: relative interval {:?}", (rel.lower, rel.upper));
         if model != ModelKind::HoltWinters {
             // Holt-Winters ignores the controls, so its counterfactual misses their moves
@@ -85,7 +85,7 @@ fn every_model_finds_a_ten_percent_lift() {
         }
         assert_eq!(run.counterfactual.draws.len(), 300);
         assert!(run.diagnostics.fit.r_squared > 0.5, "{model:?} R^2 {}", run.diagnostics.fit.r_squared);
-        let res = run.to_result(vec![s.input.clone()]);
+        let res = run.summarize(vec![s.input.clone()]).unwrap().result;
         let json = serde_json::to_value(&res).unwrap();
         assert_eq!(json["verb"], "forecast");
         assert!(json["path"].as_array().unwrap().len() > 30);
@@ -112,8 +112,8 @@ fn auto_reports_backtest_and_winner() {
         "{:?}",
         bt.rows
     );
-    let json = serde_json::to_value(run.to_result(vec![])).unwrap();
-    assert!(json["backtest"]["summary"].as_array().unwrap().len() == 3);
+    let json = serde_json::to_value(run.summarize(vec![]).unwrap().result).unwrap();
+    assert!(json["diagnostics"]["backtest"]["summary"].as_array().unwrap().len() == 3);
 }
 
 /// A control that jumps at the intervention triggers the break warning; untouched ones do not.
@@ -142,7 +142,7 @@ fn log_scale_washout_and_end_date() {
     assert_eq!(run.diagnostics.washout_periods, 5);
     // the simulated outcome is linear in the controls, so the log-scale model is only roughly
     // right: the lift is found, within a band around the true 10%
-    let rel = run.effects.effect.relative.unwrap();
+    let rel = run.summarize(vec![]).unwrap().result.effect.relative.unwrap();
     assert!(rel.lower > 0.05 && rel.upper < 0.15 && rel.lower > 0.0, "{rel:?}");
 }
 
@@ -179,7 +179,7 @@ fn events_calendar_becomes_indicators() {
         let run = analyse(&s, split, &params(model).backtest_folds(0).check().unwrap(), Some(&events)).unwrap();
         assert!(run.diagnostics.regressors.contains(&"event:promo".to_string()));
         assert!(run.warnings.iter().any(|w| w.contains("future-launch")));
-        let rel = run.effects.effect.relative.unwrap();
+        let rel = run.summarize(vec![]).unwrap().result.effect.relative.unwrap();
         assert!(rel.lower < 0.0 && 0.0 < rel.upper, "{model:?}: {rel:?}");
         if let Some(sd) = &run.diagnostics.structural {
             let (_, coef, se) = sd.coefficients.iter().find(|c| c.0 == "event:promo").unwrap();

@@ -64,7 +64,7 @@ fn run(lift: f64) -> (f64, f64) {
             truth += lift * lv[t] / N_POST as f64;
         }
         let r = analyse(&series(y), split, &params, None).unwrap();
-        let avg = &r.effects.effect.average;
+        let avg = r.summarize(vec![]).unwrap().result.effect.average;
         if avg.lower <= 0.0 && 0.0 <= avg.upper {
             covered += 1;
         }

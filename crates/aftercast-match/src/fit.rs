@@ -9,10 +9,11 @@ use crate::nearest::{self, MatchRule};
 use crate::params::{Caliper, Estimand, Method, SeparationPolicy, Trim, ValidParams};
 use crate::sensitivity::{self, EValues, RosenbaumBounds};
 use crate::weighting::{self, Weighting};
-use aftercast_core::result::{AnalysisResult, Rope, SampleCounts, TOOL_VERSION};
+use aftercast_core::estimate::{Estimate, Per, Point, PropensityHistogram, Scope, SensitivityCurve};
+use aftercast_core::result::{EffectDraws, SampleCounts};
 use aftercast_core::units::UnitTable;
 use aftercast_resample::rng::{child_seed, par_draws};
-use aftercast_resample::summary::{quantile_sorted, scalar_effects};
+use aftercast_resample::summary::quantile_sorted;
 use rand_distr::{Distribution, StandardNormal};
 use serde::{Deserialize, Serialize};
 
@@ -301,7 +302,7 @@ impl ValidParams {
         }
         .to_string();
         let att = p.estimand == Estimand::Att;
-        let draws_seed = child_seed(p.seed, "match-draws");
+        let draws_seed = child_seed(p.inference.seed, "match-draws");
         let mut se = None;
         let mut caliper = None;
         let mut rosenbaum = None;
@@ -352,7 +353,7 @@ impl ValidParams {
                 }
                 estimate = est.estimate;
                 se = Some(est.se);
-                draws = par_draws(draws_seed, p.draws, |_, s| {
+                draws = par_draws(draws_seed, p.inference.draws, |_, s| {
                     let z: f64 = StandardNormal.sample(s);
                     est.estimate + est.se * z
                 });
@@ -405,7 +406,7 @@ impl ValidParams {
                 }
                 let penalty = ps.fit.penalty;
                 let start = ps.fit.beta.clone();
-                let reps: Vec<Option<(f64, f64, bool)>> = par_draws(draws_seed, p.draws, |_, s| {
+                let reps: Vec<Option<(f64, f64, bool)>> = par_draws(draws_seed, p.inference.draws, |_, s| {
                     let omega: Vec<f64> = (0..n).map(|_| s.exp1()).collect();
                     let opts = LogitOptions { penalty, parallel: false, ..LogitOptions::default() };
                     let f = logit::fit(&design, &tr, Some(&omega), &opts, Some(&start));
@@ -444,7 +445,7 @@ impl ValidParams {
                     warnings
                         .push(format!("{undefined} bootstrap replicates left a group without weight and were dropped"));
                 }
-                replicates = Some(ReplicateReport { replicates: p.draws, not_converged, undefined });
+                replicates = Some(ReplicateReport { replicates: p.inference.draws, not_converged, undefined });
                 draws = ok.iter().map(|r| r.0).collect();
                 baseline_draws = if y_pre.is_none() || att { Some(ok.iter().map(|r| r.1).collect()) } else { None };
                 after = point.weights;
@@ -517,7 +518,7 @@ impl ValidParams {
             replicates,
             binary_outcome,
             outcome_sd,
-            seed: p.seed,
+            seed: p.inference.seed,
             warnings,
             assumptions,
         })
@@ -552,74 +553,116 @@ impl Fitted {
         }
     }
 
-    /// The shared JSON document of the `match` verb.
-    pub fn to_result(&self, level: f64, rope: &Rope, threshold: Option<f64>) -> AnalysisResult {
-        let (effect, verdict) = scalar_effects(
-            &self.draws,
-            self.baseline_draws.as_deref(),
-            Some(self.counts.treated_used),
-            level,
-            rope,
-            threshold,
-        );
-        let mut diagnostics = serde_json::Map::new();
-        let mut put = |k: &str, v: serde_json::Value| {
-            diagnostics.insert(k.to_string(), v);
-        };
-        put("point_estimate", serde_json::json!(self.estimate));
-        put("standard_error", serde_json::json!(self.se));
-        put("raw_difference", serde_json::json!(self.raw_difference));
-        put("outcome", serde_json::json!(self.outcome));
-        put("pre_outcome", serde_json::json!(self.pre_outcome));
-        put("propensity_model", serde_json::to_value(&self.propensity).unwrap_or_default());
-        put("caliper_logit", serde_json::json!(self.caliper));
-        put("balance_detail", serde_json::to_value(&self.balance).unwrap_or_default());
-        put("counts", serde_json::to_value(&self.counts).unwrap_or_default());
-        put("support", serde_json::to_value(&self.support).unwrap_or_default());
-        put("trim", serde_json::to_value(&self.trim).unwrap_or_default());
-        put("propensity_bins", serde_json::to_value(&self.propensity_bins).unwrap_or_default());
-        put("rosenbaum", serde_json::to_value(&self.rosenbaum).unwrap_or_default());
-        put("bootstrap", serde_json::to_value(&self.replicates).unwrap_or_default());
-        put("e_value", serde_json::to_value(self.evalues(level)).unwrap_or_default());
-        put(
-            "uncertainty",
-            serde_json::json!(match self.method {
+    /// The counterfactual level at the point answer: the average treated level over the draws
+    /// (effect plus baseline in each draw) minus the point effect.
+    fn point_baseline(&self) -> Option<f64> {
+        self.baseline_draws.as_ref().map(|b| {
+            let sum: f64 = b.iter().zip(&self.draws).map(|(b, d)| b + d).sum();
+            sum / b.len().max(1) as f64 - self.estimate
+        })
+    }
+
+    /// The one estimate of a matching or weighting fit: the point ATT/ATE, its draws, the
+    /// balance table, counts, typed diagnostics and the propensity and sensitivity figures.
+    /// `level` sets the E-value's interval.
+    pub fn estimate(&self, level: f64) -> Estimate<MatchDiagnostics> {
+        let diagnostics = MatchDiagnostics {
+            point_estimate: self.estimate,
+            standard_error: self.se,
+            raw_difference: self.raw_difference,
+            outcome: self.outcome.clone(),
+            pre_outcome: self.pre_outcome.clone(),
+            propensity_model: self.propensity.clone(),
+            caliper_logit: self.caliper,
+            balance_detail: self.balance.clone(),
+            counts: self.counts.clone(),
+            support: self.support.clone(),
+            trim: self.trim.clone(),
+            propensity_bins: self.propensity_bins.clone(),
+            rosenbaum: self.rosenbaum.clone(),
+            bootstrap: self.replicates.clone(),
+            e_value: self.evalues(level),
+            uncertainty: match self.method {
                 Method::Nearest => "normal draws around the estimate with the Abadie-Imbens (2006) standard error",
                 _ => "Bayesian bootstrap (Exp(1) unit weights) re-fitting the propensity model in every replicate",
-            }),
-        );
-        AnalysisResult {
-            tool_version: TOOL_VERSION.to_string(),
-            verb: "match".into(),
-            method: self.method.name().into(),
-            level,
-            seed: self.seed,
-            inputs: Vec::new(),
-            estimand: Some(self.estimand.clone()),
-            effect,
-            verdict,
-            rope: *rope,
+            }
+            .into(),
+        };
+        let mut est = Estimate::new(
+            "match",
+            self.method.name(),
+            &self.estimand,
+            Point::Scalar { effect: self.estimate, baseline: self.point_baseline() },
+            EffectDraws::Scalar { effect: self.draws.clone(), baseline: self.baseline_draws.clone() },
+            Scope { per: Per::Unit, units: self.counts.treated_used },
             diagnostics,
-            warnings: self.warnings.clone(),
-            path: None,
-            weights: None,
-            placebo: None,
-            balance: Some(self.balance.iter().map(BalanceEntry::row).collect()),
-            sample: Some(SampleCounts {
-                treated: self.counts.treated,
-                controls_used: self.counts.controls_used,
-                treated_dropped: self.counts.treated_unmatched + self.counts.treated_trimmed,
-            }),
-            truth: None,
-            estimates: None,
-            assumptions: self.assumptions.clone(),
-            extra: serde_json::Map::new(),
+        );
+        est.sections.balance = Some(self.balance.iter().map(BalanceEntry::row).collect());
+        est.sections.sample = Some(SampleCounts {
+            treated: self.counts.treated,
+            controls_used: self.counts.controls_used,
+            treated_dropped: self.counts.treated_unmatched + self.counts.treated_trimmed,
+        });
+        let b = &self.propensity_bins;
+        est.figures.propensity = Some(PropensityHistogram {
+            edges: b.edges.clone(),
+            treated_before: b.treated_before.clone(),
+            control_before: b.control_before.clone(),
+            treated_after: b.treated_after.clone(),
+            control_after: b.control_after.clone(),
+        });
+        est.figures.sensitivity = self.rosenbaum.as_ref().map(|r| SensitivityCurve {
+            gamma: r.grid.iter().map(|p| p.gamma).collect(),
+            p_upper: r.grid.iter().map(|p| p.p_upper).collect(),
+            alpha: r.alpha,
+        });
+        for w in &self.warnings {
+            est.warn(w.clone());
         }
+        est.assumptions = self.assumptions.clone();
+        est
     }
 }
 
-/// One call for the command line: check `params`, fit on `units`, and build the JSON document
-/// (inputs filled from the table).
+/// The typed diagnostics of a matching or weighting estimate.
+#[derive(Debug, Clone, Serialize)]
+pub struct MatchDiagnostics {
+    /// The point estimate.
+    pub point_estimate: f64,
+    /// Its standard error, where the method has an analytic one.
+    pub standard_error: Option<f64>,
+    /// Treated mean minus control mean, unadjusted.
+    pub raw_difference: f64,
+    /// Outcome column.
+    pub outcome: String,
+    /// Pre-period outcome column (matched difference-in-differences).
+    pub pre_outcome: Option<String>,
+    /// The propensity model.
+    pub propensity_model: PropensityReport,
+    /// Caliper on the logit scale.
+    pub caliper_logit: Option<f64>,
+    /// Balance of every design column.
+    pub balance_detail: Vec<BalanceEntry>,
+    /// Counts.
+    pub counts: Counts,
+    /// Common support.
+    pub support: Support,
+    /// Trimming.
+    pub trim: Option<TrimReport>,
+    /// Propensity histogram.
+    pub propensity_bins: PropensityBins,
+    /// Rosenbaum bounds.
+    pub rosenbaum: Option<RosenbaumBounds>,
+    /// Bootstrap replicate report.
+    pub bootstrap: Option<ReplicateReport>,
+    /// E-values.
+    pub e_value: EValues,
+    /// How the draws were made.
+    pub uncertainty: String,
+}
+
+/// One call for the command line: check `params`, fit on `units`, and hand back the fit and
+/// its estimate.
 ///
 /// # Errors
 /// Any [`MatchError`] of [`MatchParams::check`](crate::MatchParams::check) or [`ValidParams::fit`].
@@ -627,19 +670,9 @@ pub fn run(
     units: &UnitTable,
     outcome: &str,
     params: crate::MatchParams,
-    level: f64,
-    rope: &Rope,
-    threshold: Option<f64>,
-) -> MatchResult<(Fitted, AnalysisResult)> {
-    if !(level > 0.0 && level < 1.0) {
-        return Err(MatchError::BadParameter {
-            name: "--level",
-            value: level.to_string(),
-            detail: "between 0 and 1".into(),
-        });
-    }
+) -> MatchResult<(Fitted, Estimate<MatchDiagnostics>)> {
+    let level = params.inference.level;
     let fitted = params.check()?.fit(units, outcome)?;
-    let mut result = fitted.to_result(level, rope, threshold);
-    result.inputs = vec![units.input.clone()];
-    Ok((fitted, result))
+    let est = fitted.estimate(level);
+    Ok((fitted, est))
 }

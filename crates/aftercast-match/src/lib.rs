@@ -39,5 +39,5 @@ pub mod sensitivity;
 pub mod weighting;
 
 pub use error::{MatchError, MatchResult};
-pub use fit::{Counts, Fitted, run};
+pub use fit::{Counts, Fitted, MatchDiagnostics, run};
 pub use params::{Caliper, Estimand, MatchParams, Method, SeparationPolicy, Trim, ValidParams};

@@ -16,8 +16,7 @@
 //! | `separation` | penalise(1.0) | what to do when the groups separate | |
 //! | `trim` | none | common-support trimming before estimation | none, minmax, crump, fixed(a) |
 //! | `strata` | 5 | number of propensity strata | 2..=100 |
-//! | `draws` | 1000 | Bayesian-bootstrap replicates (weighting) or normal draws (nearest) | 50..=100000 |
-//! | `seed` | 20260301 | random seed | |
+//! | `inference` | 1000 draws, seed 20240601, level 0.9 | [`Inference`]: Bayesian-bootstrap replicates (weighting) or normal draws (nearest), seed, interval level | draws 50..=100000 |
 //! | `pre_outcome` | none | pre-period outcome: estimate on the change (matched DiD) | |
 //! | `variance_neighbours` | 2 | J of the Abadie-Imbens conditional variance | 1..=20 |
 //! | `alpha` | 0.05 | level of the Rosenbaum bound | (0, 0.5) |
@@ -25,6 +24,7 @@
 
 use crate::design::{DesignSpec, Term};
 use crate::error::{MatchError, MatchResult};
+use aftercast_core::estimate::Inference;
 use serde::{Deserialize, Serialize};
 
 /// The estimator.
@@ -194,10 +194,8 @@ pub struct MatchParams {
     pub trim: Trim,
     /// Number of strata.
     pub strata: usize,
-    /// Replicates / draws.
-    pub draws: usize,
-    /// Seed.
-    pub seed: u64,
+    /// Level, draws, seed, ROPE and threshold (one definition for every verb).
+    pub inference: Inference,
     /// Pre-period outcome column (matched difference-in-differences).
     pub pre_outcome: Option<String>,
     /// J of the Abadie-Imbens conditional variance.
@@ -226,8 +224,7 @@ impl MatchParams {
             separation: SeparationPolicy::default(),
             trim: Trim::None,
             strata: 5,
-            draws: 1000,
-            seed: 20260301,
+            inference: Inference::default(),
             pre_outcome: None,
             variance_neighbours: 2,
             alpha: 0.05,
@@ -328,12 +325,17 @@ impl MatchParams {
     }
     /// Replicates / draws.
     pub fn draws(mut self, d: usize) -> Self {
-        self.draws = d;
+        self.inference.draws = d;
         self
     }
     /// Seed.
     pub fn seed(mut self, s: u64) -> Self {
-        self.seed = s;
+        self.inference.seed = s;
+        self
+    }
+    /// Level, draws, seed, ROPE and threshold at once.
+    pub fn inference(mut self, inf: Inference) -> Self {
+        self.inference = inf;
         self
     }
     /// Pre-period outcome column.
@@ -377,8 +379,11 @@ impl MatchParams {
         if !(2..=100).contains(&self.strata) {
             return bad("--strata", self.strata.to_string(), "between 2 and 100");
         }
-        if !(50..=100_000).contains(&self.draws) {
-            return bad("--draws", self.draws.to_string(), "between 50 and 100000");
+        if !(50..=100_000).contains(&self.inference.draws) {
+            return bad("--draws", self.inference.draws.to_string(), "between 50 and 100000");
+        }
+        if !(self.inference.level > 0.0 && self.inference.level < 1.0) {
+            return bad("--level", self.inference.level.to_string(), "strictly between 0 and 1");
         }
         if !(1..=20).contains(&self.variance_neighbours) {
             return bad("variance_neighbours", self.variance_neighbours.to_string(), "between 1 and 20");

@@ -264,15 +264,16 @@ fn trimming_rules_drop_units_outside_the_limits() {
 #[test]
 fn ate_by_matching_and_result_json() {
     let units = simulate(600, 5, 1.0);
-    let (f, r) = aftercast_match::run(
+    let inf = aftercast_core::Inference { rope: "0.1".parse().unwrap(), ..Default::default() };
+    let (f, est) = aftercast_match::run(
         &units,
         "post",
-        MatchParams::new(["x1", "x2"]).estimand(Estimand::Ate).replace(true).pre_outcome("pre"),
-        0.9,
-        &"0.1".parse().unwrap(),
-        None,
+        MatchParams::new(["x1", "x2"]).estimand(Estimand::Ate).replace(true).pre_outcome("pre").inference(inf),
     )
     .unwrap();
+    let r = aftercast_resample::finish(est, &inf, vec![]).unwrap().result;
+    // The point answer in the result is the fit's own estimate.
+    assert_eq!(r.effect.average.estimate, f.estimate);
     assert_eq!(f.estimand, "ATE");
     let v = serde_json::to_value(&r).unwrap();
     assert_eq!(v["verb"], "match");

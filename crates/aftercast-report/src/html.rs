@@ -5,9 +5,11 @@
 //! Sections, in order (each a `<section id=...>`): `question`, `data`, one `analysis-<stem>` per
 //! analysis, `triangulation`, `caution`, `reproduce`.
 
-use crate::charts::{self, ChartExtras, EstimateBar, theme::ValueFormat};
-use crate::{CAUTION, ReportError, fmt_pct, fmt_signed, write_atomic};
-use aftercast_core::result::{AnalysisResult, RopeUnits, Summary, Verdict};
+use crate::charts::{self, EstimateBar, theme::ValueFormat};
+use crate::numbers::{self, point_and_interval};
+use crate::{CAUTION, ReportError, Table, write_atomic};
+use aftercast_core::estimate::{Figures, KeptDraws};
+use aftercast_core::result::{AnalysisResult, Summary, Verdict};
 use serde_json::Value;
 use std::fmt::Write as _;
 use std::path::Path;
@@ -21,8 +23,12 @@ pub struct ReportAnalysis {
     pub question: Option<String>,
     /// Its result document.
     pub result: AnalysisResult,
-    /// Data for charts beyond the result (draws, placebo gaps, backtest grids).
-    pub extras: ChartExtras,
+    /// The kept draws of its summaries (the distribution charts draw them).
+    pub draws: KeptDraws,
+    /// Typed figure data (placebo gaps, propensity histogram, sensitivity, power grid).
+    pub figures: Figures,
+    /// The verb's own tables (also printed in the terminal).
+    pub tables: Vec<Table>,
     /// Short identifier: chart file stem and section id (letters, digits, `-`, `_`).
     pub stem: String,
 }
@@ -130,20 +136,22 @@ pub fn triangulate(question: &str, analyses: &[&ReportAnalysis]) -> Triangulatio
             (a.label.clone(), s, a.result.verdict)
         })
         .collect();
-    let finite: Vec<&(String, Summary, Verdict)> =
-        rows.iter().filter(|(_, s, _)| s.lower.is_finite() && s.upper.is_finite() && s.lower <= s.upper).collect();
+    let finite: Vec<&(String, Summary, Verdict)> = rows
+        .iter()
+        .filter(|(_, s, _)| s.hdi_lower.is_finite() && s.hdi_upper.is_finite() && s.hdi_lower <= s.hdi_upper)
+        .collect();
     let opposite_directions = rows.iter().any(|r| direction(r.2) == 1) && rows.iter().any(|r| direction(r.2) == -1);
     let mut disjoint_pairs = Vec::new();
     for (i, a) in finite.iter().enumerate() {
         for b in &finite[i + 1..] {
-            if a.1.upper < b.1.lower || b.1.upper < a.1.lower {
+            if a.1.hdi_upper < b.1.hdi_lower || b.1.hdi_upper < a.1.hdi_lower {
                 disjoint_pairs.push((a.0.clone(), b.0.clone()));
             }
         }
     }
     let common = if finite.len() >= 2 && finite.len() == rows.len() {
-        let lo = finite.iter().map(|r| r.1.lower).fold(f64::NEG_INFINITY, f64::max);
-        let hi = finite.iter().map(|r| r.1.upper).fold(f64::INFINITY, f64::min);
+        let lo = finite.iter().map(|r| r.1.hdi_lower).fold(f64::NEG_INFINITY, f64::max);
+        let hi = finite.iter().map(|r| r.1.hdi_upper).fold(f64::INFINITY, f64::min);
         (lo <= hi).then_some((lo, hi))
     } else {
         None
@@ -272,72 +280,52 @@ fn verdict_chip(v: Verdict) -> String {
     format!("<span class=\"chip v-{w}\">{w}</span>", w = v.word())
 }
 
-fn interval_text(s: &Summary, pct: bool) -> String {
-    let f = |v: f64| if pct { fmt_pct(v) } else { fmt_signed(v) };
-    format!("[{}, {}]", f(s.lower), f(s.upper))
+fn table_html(out: &mut String, t: &Table) {
+    let _ = writeln!(out, "<h3>{}</h3><div class=\"table-wrap\"><table><thead><tr>", escape(&t.title));
+    for h in &t.headers {
+        let _ = write!(out, "<th>{}</th>", escape(h.trim()));
+    }
+    out.push_str("</tr></thead><tbody>\n");
+    for row in &t.rows {
+        out.push_str("<tr>");
+        for (k, c) in row.iter().enumerate() {
+            let class = if k == 0 { "" } else { " class=\"num\"" };
+            let _ = write!(out, "<td{class}>{}</td>", escape(c.trim()));
+        }
+        out.push_str("</tr>\n");
+    }
+    out.push_str("</tbody></table></div>\n");
+    if let Some(n) = &t.note {
+        let _ = writeln!(out, "<p class=\"note\">{}</p>", escape(n));
+    }
 }
 
-/// A unit-level estimand (ATT, ATE): no series path. Series verbs may also name an estimand.
-fn unit_level(r: &AnalysisResult) -> bool {
-    r.path.is_none() && r.estimand.is_some()
-}
-
-fn periods_after(r: &AnalysisResult) -> usize {
-    r.path.as_ref().map_or(0, |p| p.iter().filter(|x| x.post).count())
-}
-
-/// The verdict and the numbers in words.
+/// The verdict and the numbers in words (the same rows, points and intervals as the terminal).
 fn verdict_words(r: &AnalysisResult) -> String {
-    let lvl = format!("{:.0}%", r.level * 100.0);
-    let avg = &r.effect.average;
-    if !(avg.median.is_finite() || avg.mean.is_finite()) {
+    let lines = numbers::effect_lines(r);
+    if lines.iter().all(|l| !l.summary.estimate.is_finite()) {
         return "The effect could not be estimated: its summary is not a number. See the warnings and diagnostics."
             .into();
     }
-    let point = if avg.median.is_finite() { avg.median } else { avg.mean };
-    let mut s = match r.estimand.as_deref().filter(|_| unit_level(r)) {
-        Some(est) => format!(
-            "Per treated unit ({est}) the outcome differs by {} ({lvl} interval {}).",
-            fmt_signed(point),
-            interval_text(avg, false)
-        ),
-        None => {
-            let n = periods_after(r);
-            let over = if n > 0 { format!("Over the {n} periods after the change") } else { "After the change".into() };
-            format!(
-                "{over} the outcome was on average {} per period away from the counterfactual ({lvl} interval {}).",
-                fmt_signed(point),
-                interval_text(avg, false)
-            )
-        }
-    };
-    if let Some(rel) = r.effect.relative.as_ref().filter(|x| x.median.is_finite()) {
-        let _ = write!(
-            s,
-            " Relative to the counterfactual that is {} ({lvl} interval {}).",
-            fmt_pct(rel.median),
-            interval_text(rel, true)
-        );
+    let hdi = numbers::interval_name(r.level);
+    let mut s = numbers::lead_sentence(r);
+    for l in lines.iter().filter(|l| !l.judged && l.summary.estimate.is_finite()) {
+        let (p, i) = point_and_interval(&l.summary, l.percent);
+        let _ = write!(s, " Effect {}: {p} ({hdi} {i}).", l.label);
     }
-    if let Some(c) = r.effect.cumulative.as_ref().filter(|x| x.median.is_finite()) {
-        let what = if unit_level(r) { "Summed over the treated units" } else { "Added up over the post-period" };
-        let _ = write!(s, " {what} it comes to {} ({lvl} interval {}).", fmt_signed(c.median), interval_text(c, false));
-    }
+    let avg = &r.effect.average;
     if avg.prob_positive.is_finite() {
         let _ = write!(s, " The chance that the effect is above zero is {:.0}%.", avg.prob_positive * 100.0);
     }
-    if let Some(p) = avg.prob_above_threshold.filter(|p| p.is_finite()) {
-        let _ = write!(s, " The chance that it exceeds the threshold is {:.0}%.", p * 100.0);
+    if let (Some(p), Some(t)) = (avg.prob_above_threshold.filter(|p| p.is_finite()), r.threshold) {
+        let _ = write!(
+            s,
+            " The chance that the average effect exceeds {} is {:.0}%.",
+            numbers::signed(t, numbers::decimals_for(&[t])),
+            p * 100.0
+        );
     }
-    let rope = match r.rope.units {
-        RopeUnits::Percent => {
-            format!("between {} and {} of the counterfactual", fmt_pct(r.rope.low), fmt_pct(r.rope.high))
-        }
-        RopeUnits::Outcome => {
-            format!("between {} and {} in outcome units", fmt_signed(r.rope.low), fmt_signed(r.rope.high))
-        }
-    };
-    let _ = write!(s, " Effects {rope} are treated as too small to matter (the ROPE).");
+    let _ = write!(s, " Effects from {} are treated as too small to matter (the ROPE).", crate::rope_words(r));
     s
 }
 
@@ -399,9 +387,10 @@ fn derived_warnings(r: &AnalysisResult) -> Vec<String> {
     if let Some(est) = &r.estimates {
         for e in est.iter().filter(|e| !e.covers_truth) {
             w.push(format!(
-                "'{}' misses the experimental answer: its interval does not contain it (bias {}).",
+                "'{}' on {} misses the experimental answer: its interval does not contain it (bias {}).",
                 e.method,
-                fmt_signed(e.bias)
+                e.setting,
+                numbers::signed(e.bias, numbers::decimals_for(&[e.bias]))
             ));
         }
     }
@@ -421,8 +410,7 @@ fn number_text(f: f64) -> String {
     if !f.is_finite() {
         "n/a".into()
     } else if f.abs() >= 1000.0 {
-        let g = crate::fmt_abs(f.abs());
-        if f < 0.0 { format!("-{g}") } else { g }
+        numbers::signed(f, 0).trim_start_matches('+').to_string()
     } else if f != 0.0 && f.abs() < 0.001 {
         format!("{f:.3e}")
     } else {
@@ -486,34 +474,7 @@ fn diagnostics_html(out: &mut String, map: &serde_json::Map<String, Value>) {
 }
 
 fn effects_table(out: &mut String, r: &AnalysisResult) {
-    let lvl = format!("{:.0}%", r.level * 100.0);
-    let _ = writeln!(
-        out,
-        "<div class=\"table-wrap\"><table><thead><tr><th>effect</th><th>median</th><th>mean</th><th>{lvl} interval</th><th>{lvl} HDI</th><th>chance above zero</th></tr></thead><tbody>"
-    );
-    let per = if unit_level(r) { "average per unit" } else { "average per period" };
-    let total = if unit_level(r) { "total over treated units" } else { "total over the post-period" };
-    let rows: [(&str, Option<&Summary>, bool); 3] = [
-        (per, Some(&r.effect.average), false),
-        (total, r.effect.cumulative.as_ref(), false),
-        ("relative", r.effect.relative.as_ref(), true),
-    ];
-    for (name, s, pct) in rows {
-        let Some(s) = s else { continue };
-        let f = |v: f64| if pct { fmt_pct(v) } else { fmt_signed(v) };
-        let prob = if s.prob_positive.is_finite() { format!("{:.1}%", s.prob_positive * 100.0) } else { "n/a".into() };
-        let _ = writeln!(
-            out,
-            "<tr><td>{name}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">[{}, {}]</td><td class=\"num\">[{}, {}]</td><td class=\"num\">{prob}</td></tr>",
-            f(s.median),
-            f(s.mean),
-            f(s.lower),
-            f(s.upper),
-            f(s.hdi_lower),
-            f(s.hdi_upper)
-        );
-    }
-    out.push_str("</tbody></table></div>\n");
+    table_html(out, &crate::effect_table(r));
 }
 
 fn verb_tables(out: &mut String, r: &AnalysisResult) {
@@ -559,27 +520,16 @@ fn verb_tables(out: &mut String, r: &AnalysisResult) {
         }
         out.push_str("</tbody></table></div>\n");
     }
-    if let (Some(t), Some(est)) = (&r.truth, &r.estimates) {
-        let lvl = format!("{:.0}%", r.level * 100.0);
+    if let Some(t) = &r.truth {
+        let (p, i) = point_and_interval(t, false);
         let _ = writeln!(
             out,
-            "<h3>Against the experiment</h3><p>The randomized experiment's answer: {} ({lvl} interval {}).</p>",
-            fmt_signed(t.median),
-            interval_text(t, false)
+            "<h3>Against the experiment</h3><p>The randomized experiment's answer: {p} ({} {i}).</p>",
+            numbers::interval_name(r.level)
         );
-        out.push_str("<div class=\"table-wrap\"><table><thead><tr><th>method</th><th>estimate</th><th>interval</th><th>bias</th><th>covers the experiment</th></tr></thead><tbody>\n");
-        for e in est {
-            let _ = writeln!(
-                out,
-                "<tr><td>{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td>{}</td></tr>",
-                escape(&e.method),
-                fmt_signed(e.summary.median),
-                interval_text(&e.summary, false),
-                fmt_signed(e.bias),
-                if e.covers_truth { "yes" } else { "no" }
-            );
-        }
-        out.push_str("</tbody></table></div>\n");
+    }
+    if let Some(t) = crate::comparison_table(r) {
+        table_html(out, &t);
     }
 }
 
@@ -695,7 +645,7 @@ fn analysis_section(out: &mut String, a: &ReportAnalysis) {
         escape(&verdict_words(r))
     );
     effects_table(out, r);
-    let charts = charts::charts_for(r, &a.extras, &a.stem);
+    let charts = charts::charts_for(r, &a.draws, &a.figures, &a.stem);
     let (lead, rest) = charts.split_first().map_or((None, &[][..]), |(f, r)| (Some(f), r));
     if let Some(c) = lead {
         figure(out, c);
@@ -708,6 +658,9 @@ fn analysis_section(out: &mut String, a: &ReportAnalysis) {
         out.push_str("</div>\n");
     }
     verb_tables(out, r);
+    for t in &a.tables {
+        table_html(out, t);
+    }
     out.push_str("<h3>Warnings</h3>\n");
     let mut warnings: Vec<String> = r.warnings.clone();
     for w in derived_warnings(r) {
@@ -726,11 +679,6 @@ fn analysis_section(out: &mut String, a: &ReportAnalysis) {
     }
     out.push_str("<h3>Diagnostics</h3>\n");
     diagnostics_html(out, &r.diagnostics);
-    let extra: serde_json::Map<String, Value> = r.extra.iter().map(|(k, v)| (k.clone(), v.clone())).collect();
-    if !extra.is_empty() {
-        out.push_str("<h3>Further results</h3>\n");
-        diagnostics_html(out, &extra);
-    }
     out.push_str("<h3>What this rests on</h3>\n");
     if r.assumptions.is_empty() {
         out.push_str(
@@ -774,20 +722,24 @@ fn triangulation_section(out: &mut String, input: &ReportInput) {
         if !pct {
             out.push_str("<p>Not every method reports a relative effect, so the comparison uses the average effect; series methods report it per period and unit-level methods per unit, so check that the estimands match before reading agreement into it.</p>\n");
         }
-        out.push_str("<div class=\"table-wrap\"><table><thead><tr><th>method</th><th>estimate</th><th>interval</th><th>verdict</th></tr></thead><tbody>\n");
+        let _ = writeln!(
+            out,
+            "<div class=\"table-wrap\"><table><thead><tr><th>method</th><th>estimate</th><th>{}</th><th>verdict</th></tr></thead><tbody>",
+            numbers::interval_name(input.analyses.first().map_or(0.9, |a| a.result.level))
+        );
         for (label, s, v) in &t.rows {
-            let f = |x: f64| if pct { fmt_pct(x) } else { fmt_signed(x) };
+            let (p, i) = point_and_interval(s, pct);
             let _ = writeln!(
                 out,
-                "<tr><td>{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td>{}</td></tr>",
+                "<tr><td>{}</td><td class=\"num\">{p}</td><td class=\"num\">{i}</td><td>{}</td></tr>",
                 escape(label),
-                f(s.median),
-                interval_text(s, pct),
                 verdict_chip(*v)
             );
         }
         out.push_str("</tbody></table></div>\n");
-        let f = |x: f64| if pct { fmt_pct(x) } else { fmt_signed(x) };
+        let f = |x: f64| {
+            if pct { numbers::percent(x) } else { numbers::signed(x, numbers::decimals_for(&[x])) }
+        };
         let mut sentence = format!("<p><span class=\"chip a-{w}\">{w}</span> ", w = t.agreement.word());
         sentence.push_str(&escape(&match t.agreement {
             Agreement::Agree => format!(
@@ -871,20 +823,7 @@ pub fn render(input: &ReportInput) -> String {
         out.push_str("<div class=\"cards\">\n");
         for a in &input.analyses {
             let r = &a.result;
-            let headline = match r.effect.relative.as_ref().filter(|s| s.median.is_finite()) {
-                Some(rel) => format!(
-                    "{} relative, {:.0}% interval {}",
-                    fmt_pct(rel.median),
-                    r.level * 100.0,
-                    interval_text(rel, true)
-                ),
-                None => format!(
-                    "{} on average, {:.0}% interval {}",
-                    fmt_signed(r.effect.average.median),
-                    r.level * 100.0,
-                    interval_text(&r.effect.average, false)
-                ),
-            };
+            let headline = numbers::lead_sentence(r);
             let _ = writeln!(
                 out,
                 "<div class=\"card\"><h3><a href=\"#analysis-{}\">{}</a></h3><p>{}</p><p>{}</p></div>",

@@ -3,8 +3,9 @@
 
 pub mod charts;
 pub mod html;
+pub mod numbers;
 
-use aftercast_core::result::{AnalysisResult, RopeUnits, Summary};
+use aftercast_core::result::{AnalysisResult, RopeUnits};
 use std::io::Write;
 use std::path::Path;
 
@@ -58,93 +59,167 @@ pub fn write_json<T: serde::Serialize>(path: &Path, value: &T) -> Result<(), Rep
     write_atomic(path, &bytes)
 }
 
-/// Format a number for people: thousands separators, sensible decimals, explicit sign.
-pub fn fmt_signed(v: f64) -> String {
-    if !v.is_finite() {
-        return "n/a".into();
-    }
-    let sign = if v < 0.0 { "-" } else { "+" };
-    format!("{sign}{}", fmt_abs(v.abs()))
+/// A small table a verb hands to the terminal summary and the report beside the effect rows
+/// (the comparison with an experiment, a history summary, a planning table).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Table {
+    /// Title.
+    pub title: String,
+    /// Column headers.
+    pub headers: Vec<String>,
+    /// Rows of cells, as shown.
+    pub rows: Vec<Vec<String>>,
+    /// A sentence under the table.
+    pub note: Option<String>,
 }
 
-/// Format a non-negative magnitude with three significant figures (at least), grouped.
-pub fn fmt_abs(a: f64) -> String {
-    let decimals = if a >= 1000.0 {
-        0
-    } else if a >= 100.0 {
-        1
-    } else if a >= 1.0 {
-        2
-    } else if a == 0.0 {
-        0
-    } else {
-        (3.0 - a.log10().floor()).clamp(2.0, 8.0) as usize
-    };
-    let s = format!("{a:.decimals$}");
-    let (int, frac) = match s.split_once('.') {
-        Some((i, f)) => (i.to_string(), Some(f.to_string())),
-        None => (s, None),
-    };
-    let mut grouped = String::new();
-    for (i, c) in int.chars().enumerate() {
-        if i > 0 && (int.len() - i) % 3 == 0 {
-            grouped.push(',');
+impl Table {
+    /// Plain-text rendering with right-aligned columns after the first.
+    pub fn to_text(&self, indent: &str) -> String {
+        let n = self.headers.len();
+        let mut width = vec![0usize; n];
+        for row in std::iter::once(&self.headers).chain(&self.rows) {
+            for (k, c) in row.iter().enumerate().take(n) {
+                width[k] = width[k].max(c.chars().count());
+            }
         }
-        grouped.push(c);
-    }
-    match frac {
-        Some(f) => format!("{grouped}.{f}"),
-        None => grouped,
+        let line = |row: &[String]| {
+            let cells: Vec<String> = row
+                .iter()
+                .enumerate()
+                .take(n)
+                .map(|(k, c)| if k == 0 { format!("{c:<w$}", w = width[k]) } else { format!("{c:>w$}", w = width[k]) })
+                .collect();
+            format!("{indent}{}", cells.join("  ")).trim_end().to_string()
+        };
+        let mut out = vec![format!("{indent}{}", self.title), line(&self.headers)];
+        out.extend(self.rows.iter().map(|r| line(r)));
+        if let Some(n) = &self.note {
+            out.push(format!("{indent}{n}"));
+        }
+        out.join("\n")
     }
 }
 
-/// Format a fraction as a signed percentage.
-pub fn fmt_pct(v: f64) -> String {
-    if !v.is_finite() {
-        return "n/a".into();
+/// The comparison table of a `compare` result: every method against the experiment.
+pub fn comparison_table(r: &AnalysisResult) -> Option<Table> {
+    r.truth.as_ref()?;
+    let est = r.estimates.as_ref()?;
+    let hdi = numbers::interval_name(r.level);
+    let d = numbers::decimals_for(
+        &est.iter().flat_map(|e| [e.summary.estimate, e.summary.hdi_lower, e.summary.hdi_upper]).collect::<Vec<_>>(),
+    );
+    let rows = est
+        .iter()
+        .map(|e| {
+            vec![
+                format!("{} ({})", e.method, e.setting),
+                numbers::signed(e.summary.estimate, d),
+                format!("[{}, {}]", numbers::signed(e.summary.hdi_lower, d), numbers::signed(e.summary.hdi_upper, d)),
+                numbers::signed(e.bias, d),
+                if e.covers_truth { "yes" } else { "no" }.into(),
+                e.verdict.word().into(),
+                if e.verdict_agrees { "yes" } else { "no" }.into(),
+            ]
+        })
+        .collect();
+    Some(Table {
+        title: "Observational methods against the experiment".into(),
+        headers: vec![
+            "method (pool)".into(),
+            "estimate".into(),
+            hdi,
+            "bias".into(),
+            "covers truth".into(),
+            "verdict".into(),
+            "verdict agrees".into(),
+        ],
+        rows,
+        note: Some(format!(
+            "Bias = estimate minus the experiment's answer; verdicts are judged on the {} of the {}.",
+            numbers::interval_name(r.level),
+            match r.rope.units {
+                RopeUnits::Percent => "relative effect",
+                RopeUnits::Outcome => "average effect",
+            }
+        )),
+    })
+}
+
+fn rope_words(r: &AnalysisResult) -> String {
+    match r.rope.units {
+        RopeUnits::Percent => {
+            format!("{} to {} of the counterfactual", numbers::percent(r.rope.low), numbers::percent(r.rope.high))
+        }
+        RopeUnits::Outcome => {
+            let d = numbers::decimals_for(&[r.rope.low, r.rope.high]);
+            format!("{} to {} in outcome units", numbers::signed(r.rope.low, d), numbers::signed(r.rope.high, d))
+        }
     }
-    format!("{:+.2}%", v * 100.0)
 }
 
-fn interval_line(label: &str, s: &Summary, level: f64, pct: bool) -> String {
-    let f = |v: f64| if pct { fmt_pct(v) } else { fmt_signed(v) };
-    format!(
-        "  {label:<17}{:>12}   {:.0}% interval [{}, {}]   HDI [{}, {}]",
-        f(s.mean),
-        level * 100.0,
-        f(s.lower),
-        f(s.upper),
-        f(s.hdi_lower),
-        f(s.hdi_upper)
-    )
+/// The effect rows as a table (the same rows and numbers as the report's).
+pub fn effect_table(r: &AnalysisResult) -> Table {
+    let rows = numbers::effect_lines(r)
+        .iter()
+        .map(|l| {
+            let (p, i) = numbers::point_and_interval(&l.summary, l.percent);
+            let chance = if l.summary.prob_positive.is_finite() {
+                format!("{:.0}%", l.summary.prob_positive * 100.0)
+            } else {
+                "n/a".into()
+            };
+            vec![format!("{}{}", if l.judged { "* " } else { "  " }, l.label), p, i, chance]
+        })
+        .collect();
+    Table {
+        title: "Effect".into(),
+        headers: vec!["  quantity".into(), "estimate".into(), numbers::interval_name(r.level), "chance above 0".into()],
+        rows,
+        note: Some(format!(
+            "* the verdict is judged on this row's {}; effects from {} are too small to matter (ROPE).",
+            numbers::interval_name(r.level),
+            rope_words(r)
+        )),
+    }
 }
 
-/// A few plain lines: the numbers, the verdict in words, the warnings, the assumptions and the
-/// caution that observational estimates rest on untestable assumptions.
-pub fn terminal_summary(r: &AnalysisResult, headline: &str) -> String {
+/// The terminal summary: one sentence with the answer, then a compact table, the verb's own
+/// tables, warnings, assumptions and the caution. `compare` leads with its comparison table and
+/// `backtest` with its planning tables instead of a verdict about placebo effects.
+pub fn terminal_summary(r: &AnalysisResult, headline: &str, tables: &[Table]) -> String {
     let mut out = Vec::new();
     out.push(format!("aftercast {} ({}): {headline}", r.verb, r.method));
-    let per = if r.estimand.is_some() && r.path.is_none() { "per unit" } else { "per period" };
-    out.push(interval_line(&format!("average {per}"), &r.effect.average, r.level, false));
-    if let Some(c) = &r.effect.cumulative {
-        out.push(interval_line("total", c, r.level, false));
+    match r.verb.as_str() {
+        "compare" if r.truth.is_some() => {
+            let (p, i) = numbers::point_and_interval(&r.effect.average, false);
+            out.push(format!(
+                "  The randomized experiment's answer: {p} per treated unit, {} {i}.",
+                numbers::interval_name(r.level)
+            ));
+            if let Some(t) = comparison_table(r) {
+                out.push(t.to_text("  "));
+            }
+        }
+        "compare" | "backtest" => {}
+        _ => {
+            out.push(format!("  {}", numbers::lead_sentence(r)));
+            out.push(format!("  {}", r.verdict.sentence()));
+            out.push(effect_table(r).to_text("  "));
+            if let Some(p) = r.effect.average.prob_above_threshold
+                && let Some(t) = r.threshold
+            {
+                out.push(format!(
+                    "  chance the average effect is above {}: {:.0}%",
+                    numbers::signed(t, numbers::decimals_for(&[t])),
+                    p * 100.0
+                ));
+            }
+        }
     }
-    if let Some(rel) = &r.effect.relative {
-        out.push(interval_line("relative", rel, r.level, true));
+    for t in tables {
+        out.push(t.to_text("  "));
     }
-    out.push(format!("  chance the effect is above zero: {:.1}%", r.effect.average.prob_positive * 100.0));
-    if let Some(p) = r.effect.average.prob_above_threshold {
-        out.push(format!("  chance the effect is above the threshold: {:.1}%", p * 100.0));
-    }
-    let rope = match r.rope.units {
-        RopeUnits::Percent => format!("{} to {} of the counterfactual", fmt_pct(r.rope.low), fmt_pct(r.rope.high)),
-        RopeUnits::Outcome => format!("{} to {} in outcome units", fmt_signed(r.rope.low), fmt_signed(r.rope.high)),
-    };
-    out.push(format!(
-        "  verdict: {}. {} (smallest effect that matters: outside {rope})",
-        r.verdict.word(),
-        r.verdict.sentence()
-    ));
     for w in &r.warnings {
         out.push(format!("  warning: {w}"));
     }
@@ -161,16 +236,6 @@ pub fn terminal_summary(r: &AnalysisResult, headline: &str) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn numbers_are_grouped_and_signed() {
-        assert_eq!(fmt_signed(1794.34), "+1,794");
-        assert_eq!(fmt_signed(-8498.0), "-8,498");
-        assert_eq!(fmt_signed(12.345), "+12.35");
-        assert_eq!(fmt_pct(0.0312), "+3.12%");
-        assert_eq!(fmt_abs(1_234_567.0), "1,234,567");
-        assert_eq!(fmt_abs(0.01234), "0.01234");
-    }
 
     #[test]
     fn atomic_write_replaces_whole_file() {

@@ -5,8 +5,9 @@
 
 mod common;
 
+use aftercast_core::estimate::{Figures, KeptDraws};
 use aftercast_core::result::{AnalysisResult, Summary};
-use aftercast_report::charts::{self, ChartExtras, PosteriorSource, theme};
+use aftercast_report::charts::{self, PosteriorSource, theme};
 use std::path::Path;
 
 /// Thresholds of the pixel checks (one place).
@@ -74,13 +75,8 @@ fn out_dir(tmp: &Path) -> std::path::PathBuf {
     }
 }
 
-fn extras_for(stem: &str) -> ChartExtras {
-    if stem == "forecast" {
-        let (rel, avg) = common::forecast_draws(4000);
-        ChartExtras { relative_draws: Some(rel), average_draws: Some(avg), ..Default::default() }
-    } else {
-        ChartExtras::default()
-    }
+fn none() -> (KeptDraws, Figures) {
+    (KeptDraws::default(), Figures::default())
 }
 
 #[test]
@@ -95,8 +91,8 @@ fn every_view_of_every_verb_is_written_decodes_and_is_not_blank() {
         ("backtest", &["power", "mde", "posterior"]),
     ];
     for (stem, result) in common::all() {
-        let extras = extras_for(stem);
-        let planned = charts::charts_for(&result, &extras, stem);
+        let (draws, figures) = common::inputs_for(stem);
+        let planned = charts::charts_for(&result, &draws, &figures, stem);
         let names: Vec<&str> = planned.iter().map(|c| c.name.as_str()).collect();
         let views = expected_views.iter().find(|(s, _)| *s == stem).expect("expected views").1;
         for v in views {
@@ -106,7 +102,7 @@ fn every_view_of_every_verb_is_written_decodes_and_is_not_blank() {
             assert!(!c.is_note(), "{}: fixture data should draw, not fall back to a note", c.name);
             assert!(!c.caption.is_empty() && c.caption.ends_with('.'), "{}: caption is one sentence", c.name);
         }
-        let written = charts::write_all(&result, &extras, &dir, stem).expect("write_all");
+        let written = charts::write_all(&result, &draws, &figures, &dir, stem).expect("write_all");
         assert_eq!(written.len(), 2 * planned.len(), "{stem}: a PNG and an SVG per chart");
         for c in &planned {
             let png = std::fs::read(dir.join(format!("{}.png", c.name))).expect("png file");
@@ -123,7 +119,8 @@ fn every_view_of_every_verb_is_written_decodes_and_is_not_blank() {
 #[test]
 fn the_counterfactual_view_draws_observed_ink_and_clay_counterfactual() {
     let r = common::forecast();
-    let charts = charts::charts_for(&r, &ChartExtras::default(), "f");
+    let (d, f) = none();
+    let charts = charts::charts_for(&r, &d, &f, "f");
     let c = charts.iter().find(|c| c.name == "f-counterfactual").expect("chart");
     assert_eq!((c.width, c.height), (charts::WIDTH, charts::HEIGHT));
     let d = decode(&c.to_png().expect("png"));
@@ -136,9 +133,9 @@ fn the_counterfactual_view_draws_observed_ink_and_clay_counterfactual() {
 }
 
 #[test]
-fn posterior_marks_hdi_and_rope_from_draws_and_from_summary_alone() {
+fn posterior_marks_estimate_hdi_rope_and_threshold_from_draws() {
     let r = common::forecast();
-    let (rel, _) = common::forecast_draws(3000);
+    let (rel, avg) = common::forecast_draws(3000);
     let rope = Some((r.rope.low, r.rope.high));
     let s = r.effect.relative.expect("relative");
     let from_draws = charts::posterior_chart(
@@ -147,40 +144,44 @@ fn posterior_marks_hdi_and_rope_from_draws_and_from_summary_alone() {
         &s,
         0.9,
         rope,
+        None,
         "relative effect",
         theme::ValueFormat::Percent,
     );
     let d = decode(&from_draws.to_png().expect("png"));
     assert!(count_colour(&d, over_paper(theme::TEAL, 0.85)) > 2_000, "HDI bars in teal");
-    let only = charts::posterior_chart(
-        "q",
-        PosteriorSource::SummaryOnly,
-        &s,
-        0.9,
-        rope,
-        "relative effect",
-        theme::ValueFormat::Percent,
-    );
-    assert!(!only.is_note());
-    let d2 = decode(&only.to_png().expect("png"));
-    assert!(
-        count_colour(&d2, over_paper(theme::TEAL, 0.85)) > tol::MIN_COLOUR_PIXELS,
-        "HDI bar drawn from the summary"
-    );
-    assert!(luminance_variance(&d2) > tol::MIN_VARIANCE);
+    assert!(from_draws.caption.contains("verdict is judged"), "{}", from_draws.caption);
     let bare = charts::posterior_chart(
         "b",
-        PosteriorSource::SummaryOnly,
+        PosteriorSource::Draws(&rel),
         &s,
         0.9,
+        None,
         None,
         "relative effect",
         theme::ValueFormat::Percent,
     );
     assert!(!bare.caption.contains("ROPE"), "no ROPE, no ROPE in the caption");
     // the header (title) is in standalone files, left to the page in the report
-    assert!(only.to_svg(true).expect("svg").contains(&only.title));
-    assert!(!only.to_svg(false).expect("svg").contains(&only.title));
+    assert!(bare.to_svg(true).expect("svg").contains(&bare.title));
+    assert!(!bare.to_svg(false).expect("svg").contains(&bare.title));
+    // a threshold on the average effect is drawn (brick dashes) and named with its chance
+    let mut avg_summary = r.effect.average;
+    avg_summary.prob_above_threshold = Some(avg.iter().filter(|v| **v > 45.0).count() as f64 / avg.len() as f64);
+    let t = charts::posterior_chart(
+        "t",
+        PosteriorSource::Draws(&avg),
+        &avg_summary,
+        0.9,
+        None,
+        Some(45.0),
+        "average effect per period",
+        theme::ValueFormat::Number,
+    );
+    let svg = t.to_svg(true).expect("svg");
+    assert!(svg.contains("threshold +45.0: chance above"), "threshold in the legend");
+    let dt = decode(&t.to_png().expect("png"));
+    assert!(count_colour(&dt, theme::BRICK) > tol::MIN_COLOUR_PIXELS, "threshold line in brick");
     // a ready histogram works too
     let edges = [0.0, 0.01, 0.02, 0.03, 0.04, 0.05];
     let counts = [1.0, 5.0, 9.0, 4.0, 1.0];
@@ -190,6 +191,7 @@ fn posterior_marks_hdi_and_rope_from_draws_and_from_summary_alone() {
         &s,
         0.9,
         rope,
+        None,
         "relative effect",
         theme::ValueFormat::Percent,
     );
@@ -198,6 +200,7 @@ fn posterior_marks_hdi_and_rope_from_draws_and_from_summary_alone() {
 
 fn nan_summary() -> Summary {
     Summary {
+        estimate: f64::NAN,
         mean: f64::NAN,
         median: f64::NAN,
         sd: f64::NAN,
@@ -220,18 +223,28 @@ fn odd_data_draws_notes_and_never_panics() {
     r.effect.relative = Some(nan_summary());
     r.weights = Some(vec![]);
     r.balance = Some(vec![]);
-    r.diagnostics
-        .insert("propensity_bins".into(), serde_json::json!({"edges": [0.0, 0.5], "treated_before": [1.0, 2.0]}));
-    r.diagnostics.insert("rosenbaum".into(), serde_json::json!({"grid": [{"gamma": "x"}]}));
-    r.extra.insert("power".into(), serde_json::json!([{"post_length": null}]));
-    let extras = ChartExtras { relative_draws: Some(vec![0.02]), ..Default::default() };
-    let charts = charts::charts_for(&r, &extras, "odd");
+    let figures = Figures {
+        propensity: Some(aftercast_core::estimate::PropensityHistogram {
+            edges: vec![0.0, 0.5],
+            treated_before: vec![1.0, 2.0],
+            ..Default::default()
+        }),
+        sensitivity: Some(aftercast_core::estimate::SensitivityCurve {
+            gamma: vec![f64::NAN],
+            p_upper: vec![f64::NAN],
+            alpha: 0.05,
+        }),
+        power: vec![aftercast_core::estimate::PowerPoint { post_length: f64::NAN, effect: f64::NAN, power: f64::NAN }],
+        ..Figures::default()
+    };
+    let draws = KeptDraws { relative: vec![0.02], ..KeptDraws::default() };
+    let charts = charts::charts_for(&r, &draws, &figures, "odd");
     assert!(
         charts.iter().all(|c| c.is_note()),
         "{:?}",
         charts.iter().map(|c| (&c.name, c.is_note())).collect::<Vec<_>>()
     );
-    let files = charts::write_all(&r, &extras, tmp.path(), "odd").expect("notes are written");
+    let files = charts::write_all(&r, &draws, &figures, tmp.path(), "odd").expect("notes are written");
     for f in files.iter().filter(|f| f.extension().is_some_and(|e| e == "png")) {
         let d = decode(&std::fs::read(f).expect("read"));
         assert!(luminance_variance(&d) > 1.0, "the note text is visible in {}", f.display());
@@ -240,7 +253,8 @@ fn odd_data_draws_notes_and_never_panics() {
     let mut one = common::forecast();
     one.path.as_mut().expect("path").truncate(1);
     one.path.as_mut().expect("path")[0].observed = None;
-    for c in charts::charts_for(&one, &ChartExtras::default(), "one") {
+    let (d0, f0) = none();
+    for c in charts::charts_for(&one, &d0, &f0, "one") {
         c.to_png().expect("png of a one-period path");
         parse_svg(&c.to_svg(false).expect("svg"));
     }
@@ -252,6 +266,7 @@ fn odd_data_draws_notes_and_never_panics() {
         &s,
         0.9,
         Some((-0.5, 0.5)),
+        None,
         "effect",
         theme::ValueFormat::Number,
     );
@@ -268,7 +283,8 @@ fn write_errors_name_the_file() {
     let tmp = tempfile::tempdir().expect("tempdir");
     let blocker = tmp.path().join("file");
     std::fs::write(&blocker, b"x").expect("write");
-    let err = charts::write_all(&common::compare(), &ChartExtras::default(), &blocker.join("charts"), "c")
+    let (d, f) = none();
+    let err = charts::write_all(&common::compare(), &d, &f, &blocker.join("charts"), "c")
         .expect_err("cannot write under a file");
     assert!(err.to_string().contains("charts"), "{err}");
 }
@@ -283,26 +299,20 @@ fn weights_beyond_the_row_limit_are_summed() {
 }
 
 #[test]
-fn shapes_written_by_the_estimator_crates_are_read() {
-    // synthetic: `diagnostics.placebo_runs` is the whole placebo object with its `runs`
-    let mut s = common::synthetic();
-    let runs = s.extra.remove("placebo_runs").expect("runs");
-    s.diagnostics.insert("placebo_runs".into(), serde_json::json!({"exclude_factor": null, "ranks": [], "runs": runs}));
-    let c = charts::charts_for(&s, &ChartExtras::default(), "s");
+fn typed_figure_data_reaches_the_charts() {
+    // synthetic: one placebo gap per kept donor run
+    let s = common::synthetic();
+    let (d, f) = common::inputs_for("synthetic");
+    let c = charts::charts_for(&s, &d, &f, "s");
     let gaps = c.iter().find(|c| c.name == "s-placebo-gaps").expect("placebo chart");
     assert!(gaps.caption.contains("among 11 placebo gaps"), "{}", gaps.caption);
-    // backtest: the table under `extra.backtest` with `length`, `lift`, `increase`
-    let mut b = common::backtest();
-    b.extra.clear();
-    let power: Vec<serde_json::Value> = [7, 28]
-        .iter()
-        .flat_map(|len| (0..5).map(move |k| serde_json::json!({"length": len, "lift": 0.01 * f64::from(k), "power": 0.2 * f64::from(k), "detected": k, "origins": 5})))
-        .collect();
-    b.extra.insert(
-        "backtest".into(),
-        serde_json::json!({"power": power, "mde": [{"length": 7, "increase": 0.04, "decrease": 0.05}, {"length": 28, "increase": null, "decrease": 0.02}]}),
-    );
-    let c = charts::charts_for(&b, &ChartExtras::default(), "b");
+    // no placebo runs: no placebo chart (never an empty one)
+    let (d0, f0) = none();
+    assert!(charts::charts_for(&s, &d0, &f0, "s").iter().all(|c| c.name != "s-placebo-gaps"));
+    // backtest: lifts are fractions, labelled in percent
+    let b = common::backtest();
+    let (d, f) = common::inputs_for("backtest");
+    let c = charts::charts_for(&b, &d, &f, "b");
     for view in ["b-power", "b-mde"] {
         let chart = c.iter().find(|c| c.name == view).expect(view);
         assert!(!chart.is_note(), "{view} drawn");
@@ -314,10 +324,30 @@ fn shapes_written_by_the_estimator_crates_are_read() {
 }
 
 #[test]
+fn the_distribution_chart_histogram_holds_every_draw() {
+    // The posterior chart is drawn from the kept draws: its bar shares sum to one (density 1).
+    let (rel, _) = common::forecast_draws(4000);
+    let r = common::forecast();
+    let c = charts::posterior_chart(
+        "d",
+        PosteriorSource::Draws(&rel),
+        &r.effect.relative.expect("relative"),
+        0.9,
+        None,
+        None,
+        "relative effect",
+        theme::ValueFormat::Percent,
+    );
+    let shares = c.histogram_shares().expect("a histogram");
+    assert!((shares.iter().sum::<f64>() - 1.0).abs() < 1e-12);
+}
+
+#[test]
 fn the_rosenbaum_caption_brackets_the_crossing() {
     // fixture bound: p = 0.001 * Gamma^6 crosses 0.05 at Gamma = 50^(1/6) = 1.919, between grid points 1.9 and 2.0
     let r = common::matching();
-    let c = charts::charts_for(&r, &ChartExtras::default(), "m");
+    let (d, f) = common::inputs_for("match");
+    let c = charts::charts_for(&r, &d, &f, "m");
     let rb = c.iter().find(|c| c.name == "m-rosenbaum").expect("rosenbaum");
     assert!(rb.caption.contains("between 1.90 and 2.00"), "{}", rb.caption);
 }

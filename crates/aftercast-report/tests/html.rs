@@ -6,17 +6,20 @@
 mod common;
 
 use aftercast_core::result::{AnalysisResult, Verdict};
-use aftercast_report::charts::{self, ChartExtras};
+use aftercast_report::charts;
 use aftercast_report::html::{self, Agreement, Quantity, ReportAnalysis, ReportInput, StudyFile};
 
 fn analysis(label: &str, stem: &str, question: Option<&str>, result: AnalysisResult) -> ReportAnalysis {
-    let extras = if stem == "forecast" {
-        let (rel, avg) = common::forecast_draws(4000);
-        ChartExtras { relative_draws: Some(rel), average_draws: Some(avg), ..Default::default() }
-    } else {
-        ChartExtras::default()
-    };
-    ReportAnalysis { label: label.into(), question: question.map(str::to_string), result, extras, stem: stem.into() }
+    let (draws, figures) = common::inputs_for(stem);
+    ReportAnalysis {
+        label: label.into(),
+        question: question.map(str::to_string),
+        result,
+        draws,
+        figures,
+        tables: Vec::new(),
+        stem: stem.into(),
+    }
 }
 
 fn study() -> ReportInput {
@@ -97,7 +100,8 @@ fn report_is_well_formed_complete_and_self_contained() {
     }
 
     // every chart of every analysis is inline, plus one triangulation chart per multi-method question
-    let planned: usize = input.analyses.iter().map(|a| charts::charts_for(&a.result, &a.extras, &a.stem).len()).sum();
+    let planned: usize =
+        input.analyses.iter().map(|a| charts::charts_for(&a.result, &a.draws, &a.figures, &a.stem).len()).sum();
     let svgs = doc.descendants().filter(|n| n.has_tag_name("svg")).count();
     assert_eq!(svgs, planned + 1, "inline SVG charts");
     for f in doc.descendants().filter(|n| n.has_tag_name("figure")) {
@@ -124,10 +128,10 @@ fn report_is_well_formed_complete_and_self_contained() {
     assert!(text.contains("aftercast run study.toml --out report"), "the command");
     assert!(text.contains("[[analysis]]"), "the study file");
     assert!(text.contains("+3.52%"), "the forecast's relative effect in words");
-    assert!(text.contains("Per treated unit (ATT)"), "unit-level wording for match");
-    assert!(!text.contains("Per treated unit (effect"), "a series estimand is not a unit-level one");
+    assert!(text.contains("Effect average per treated unit: +61.0"), "unit-level wording for match");
+    assert!(text.contains("Effect relative to the counterfactual: +3.52%"), "the judged quantity leads");
     assert!(text.contains("'spend_pre' is still imbalanced"), "derived plain-language warning");
-    assert!(text.contains("'naive difference' misses the experimental answer"));
+    assert!(text.contains("'naive difference' on pool misses the experimental answer"));
     assert!(text.contains("Question: onboarding"), "the triangulated question");
     assert!(!text.contains("Question: sale"), "a single-method question is not triangulated");
 }

@@ -4,8 +4,10 @@
 
 pub mod bayes;
 pub mod blocks;
+pub mod finish;
 pub mod rng;
 pub mod summary;
 
+pub use finish::{FinishError, Finished, finish, judge, scalar_block};
 pub use rng::{Stream, par_draws};
-pub use summary::{hdi, scalar_effects, series_effects, summarize, verdict};
+pub use summary::{hdi, summarize, verdict};

@@ -6,7 +6,7 @@
 //! The highest-density interval is the shortest interval holding `ceil(level * n)` sorted draws
 //! (Chen & Shao 1999), which is consistent for unimodal posteriors.
 
-use aftercast_core::result::{EffectBlock, PathPoint, Rope, RopeUnits, Summary, Verdict};
+use aftercast_core::result::{PathPoint, Summary, Verdict};
 use aftercast_core::time::TimePoint;
 
 /// Type-7 quantile of sorted, finite values (`p` in [0, 1]).
@@ -42,7 +42,8 @@ pub fn hdi(sorted: &[f64], level: f64) -> (f64, f64) {
     best
 }
 
-/// Summarise draws. Non-finite draws are ignored (callers report how many there were); with no
+/// Summarise draws (`estimate` is set to their mean; set the method's point answer with
+/// [`Summary::with_estimate`]). Non-finite draws are ignored (callers report how many there were); with no
 /// finite draw every field is NaN.
 pub fn summarize(draws: &[f64], level: f64, threshold: Option<f64>) -> Summary {
     let mut sorted: Vec<f64> = draws.iter().copied().filter(|v| v.is_finite()).collect();
@@ -55,6 +56,7 @@ pub fn summarize_sorted(sorted: &[f64], level: f64, threshold: Option<f64>) -> S
     let n = sorted.len();
     if n == 0 {
         return Summary {
+            estimate: f64::NAN,
             mean: f64::NAN,
             median: f64::NAN,
             sd: f64::NAN,
@@ -73,6 +75,7 @@ pub fn summarize_sorted(sorted: &[f64], level: f64, threshold: Option<f64>) -> S
     let (hl, hu) = hdi(sorted, level);
     let above = |t: f64| (n - sorted.partition_point(|v| *v <= t)) as f64 / nf;
     Summary {
+        estimate: mean,
         mean,
         median: quantile_sorted(sorted, 0.5),
         sd: var.sqrt(),
@@ -109,90 +112,6 @@ pub fn verdict(interval: (f64, f64), rope: (f64, f64)) -> Verdict {
     }
 }
 
-/// Effects of a series method, ready for the JSON result.
-#[derive(Debug, Clone)]
-pub struct SeriesEffects {
-    /// Average, cumulative and relative summaries.
-    pub effect: EffectBlock,
-    /// The ROPE verdict.
-    pub verdict: Verdict,
-    /// One row per post-period with the counterfactual band and effect summaries.
-    pub path: Vec<PathPoint>,
-    /// Number of draws that produced a non-finite relative effect (zero counterfactual sum).
-    pub nonfinite_relative: usize,
-}
-
-/// Turn counterfactual path draws into effects. Per draw: pointwise effect observed - cf,
-/// cumulative sum, average per period, relative = sum(effect) / sum(cf). Post-periods whose
-/// observation is missing (NaN) are left out of the sums. The verdict is judged on the HDI of
-/// the relative effect for a percent ROPE, of the average effect for an outcome-unit ROPE.
-pub fn series_effects(
-    times: &[TimePoint],
-    observed: &[f64],
-    counterfactual: &[Vec<f64>],
-    level: f64,
-    rope: &Rope,
-    threshold: Option<f64>,
-) -> SeriesEffects {
-    let t_len = observed.len();
-    let d = counterfactual.len();
-    let mut avg = Vec::with_capacity(d);
-    let mut cum = Vec::with_capacity(d);
-    let mut rel = Vec::with_capacity(d);
-    let mut per_t: Vec<Vec<f64>> = vec![Vec::with_capacity(d); t_len];
-    let mut cum_t: Vec<Vec<f64>> = vec![Vec::with_capacity(d); t_len];
-    let n_obs = observed.iter().filter(|v| v.is_finite()).count().max(1) as f64;
-    for path in counterfactual {
-        let mut s_eff = 0.0;
-        let mut s_cf = 0.0;
-        for t in 0..t_len {
-            let y = observed[t];
-            if y.is_finite() {
-                let e = y - path[t];
-                s_eff += e;
-                s_cf += path[t];
-                per_t[t].push(e);
-            }
-            cum_t[t].push(s_eff);
-        }
-        avg.push(s_eff / n_obs);
-        cum.push(s_eff);
-        rel.push(s_eff / s_cf);
-    }
-    let nonfinite_relative = rel.iter().filter(|v| !v.is_finite()).count();
-    let average = summarize(&avg, level, threshold);
-    let cumulative = summarize(&cum, level, None);
-    let relative = summarize(&rel, level, None);
-    let judged = match rope.units {
-        RopeUnits::Percent => (relative.hdi_lower, relative.hdi_upper),
-        RopeUnits::Outcome => (average.hdi_lower, average.hdi_upper),
-    };
-    let v = verdict(judged, (rope.low, rope.high));
-    let path = (0..t_len)
-        .map(|t| {
-            let mut cf: Vec<f64> = counterfactual.iter().map(|p| p[t]).filter(|v| v.is_finite()).collect();
-            cf.sort_by(f64::total_cmp);
-            let tail = (1.0 - level) / 2.0;
-            PathPoint {
-                time: times[t],
-                observed: observed[t].is_finite().then_some(observed[t]),
-                counterfactual: quantile_sorted(&cf, 0.5),
-                lower: quantile_sorted(&cf, tail),
-                upper: quantile_sorted(&cf, 1.0 - tail),
-                post: true,
-                effect: (!per_t[t].is_empty()).then(|| summarize(&per_t[t], level, None)),
-                cumulative: Some(summarize(&cum_t[t], level, None)),
-            }
-        })
-        .collect();
-    SeriesEffects {
-        effect: EffectBlock { average, cumulative: Some(cumulative), relative: Some(relative) },
-        verdict: v,
-        path,
-        nonfinite_relative,
-    }
-}
-
 /// A pre-period row of a series result (counterfactual band of the in-sample fit).
 pub fn pre_point(time: TimePoint, observed: f64, fitted_draws: &mut [f64], level: f64) -> PathPoint {
     fitted_draws.sort_by(f64::total_cmp);
@@ -207,35 +126,6 @@ pub fn pre_point(time: TimePoint, observed: f64, fitted_draws: &mut [f64], level
         effect: None,
         cumulative: None,
     }
-}
-
-/// Effects of a unit-level estimand (ATT, ATE). `baseline[d]` is the counterfactual mean in
-/// draw `d` (for the relative effect); `n_treated` scales the average to a total. For a percent
-/// ROPE the verdict is judged on the relative effect and needs `baseline`; without it the
-/// average is judged against zero alone (gain, loss or inconclusive).
-pub fn scalar_effects(
-    effect: &[f64],
-    baseline: Option<&[f64]>,
-    n_treated: Option<usize>,
-    level: f64,
-    rope: &Rope,
-    threshold: Option<f64>,
-) -> (EffectBlock, Verdict) {
-    let average = summarize(effect, level, threshold);
-    let cumulative = n_treated.map(|n| {
-        let tot: Vec<f64> = effect.iter().map(|e| e * n as f64).collect();
-        summarize(&tot, level, None)
-    });
-    let relative = baseline.map(|b| {
-        let r: Vec<f64> = effect.iter().zip(b).map(|(e, b)| e / b).collect();
-        summarize(&r, level, None)
-    });
-    let v = match (rope.units, &relative) {
-        (RopeUnits::Percent, Some(r)) => verdict((r.hdi_lower, r.hdi_upper), (rope.low, rope.high)),
-        (RopeUnits::Percent, None) => verdict((average.hdi_lower, average.hdi_upper), (0.0, 0.0)),
-        (RopeUnits::Outcome, _) => verdict((average.hdi_lower, average.hdi_upper), (rope.low, rope.high)),
-    };
-    (EffectBlock { average, cumulative, relative }, v)
 }
 
 #[cfg(test)]
@@ -286,21 +176,5 @@ mod tests {
         assert!((quantile_sorted(&x, 0.5) - 2.5).abs() < 1e-12);
         assert!((quantile_sorted(&x, 0.1) - 1.3).abs() < 1e-12);
         assert_eq!(quantile_sorted(&x, 1.0), 4.0);
-    }
-
-    #[test]
-    fn series_effects_relative_is_per_draw_ratio() {
-        let times = [TimePoint::Period(1), TimePoint::Period(2)];
-        let observed = [110.0, 120.0];
-        let cf = vec![vec![100.0, 100.0], vec![50.0, 150.0]];
-        let rope = Rope::default();
-        let e = series_effects(&times, &observed, &cf, 0.9, &rope, None);
-        // Draw 1: effects 10, 20 -> rel 30/200 = 0.15; draw 2: 60, -30 -> 30/200 = 0.15.
-        let r = e.effect.relative.expect("relative");
-        assert!((r.mean - 0.15).abs() < 1e-12);
-        let c = e.effect.cumulative.expect("cumulative");
-        assert!((c.mean - 30.0).abs() < 1e-12);
-        assert!((e.effect.average.mean - 15.0).abs() < 1e-12);
-        assert_eq!(e.path.len(), 2);
     }
 }

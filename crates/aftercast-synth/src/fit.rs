@@ -445,7 +445,7 @@ fn run_placebos(prep: &Prepared, p: &SynthParams, engine: &Engine<'_>, units: &[
             r.kept = r.pre_rmspe <= lim;
         }
     }
-    let joint_p_value = (units.len() > 1).then(|| joint_permutation_p(units, &runs, p.seed));
+    let joint_p_value = (units.len() > 1).then(|| joint_permutation_p(units, &runs, p.inference.seed));
     Ok(Placebo { exclude_factor: p.placebo_exclude_factor, ranks, joint_p_value, runs })
 }
 

@@ -195,7 +195,7 @@ pub fn conformal(params: &ValidParams, panel: &Panel, treated: &str, start: Time
     }
     let h = x.tr_mul(&x);
     let cp = ConformalProblem { x, h, y: prep.y[prep.treated[0]].clone(), t0: prep.t0, demean };
-    let alpha = 1.0 - p.level;
+    let alpha = 1.0 - p.inference.level;
     let p0 = cp.p_value(0.0, &p.solver)?;
     // Search range: the SC point estimate ± 8 times the larger of pre-RMSPE and post spread.
     let fit = params.fit_quiet(panel, treated, start)?;
@@ -222,7 +222,7 @@ pub fn conformal(params: &ValidParams, panel: &Panel, treated: &str, start: Time
         }
         _ => (f64::NAN, f64::NAN, false),
     };
-    Ok(Conformal { p_value_zero: p0, periods: tn, interval: (lo, hi), level: p.level, open_ended: open })
+    Ok(Conformal { p_value_zero: p0, periods: tn, interval: (lo, hi), level: p.inference.level, open_ended: open })
 }
 
 impl ValidParams {

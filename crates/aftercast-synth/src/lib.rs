@@ -7,8 +7,8 @@
 //! inference ([`inference`]).
 //!
 //! Parameters are built with [`SynthParams`], checked into [`ValidParams`], and
-//! [`ValidParams::fit`] returns a [`Fitted`]. [`result::to_analysis_result`] turns a fit into
-//! the shared JSON document.
+//! [`ValidParams::fit`] returns a [`Fitted`]. [`result::estimate`] turns a fit into
+//! the one estimate (see `aftercast_core::estimate`).
 //!
 //! The numerical core is the exact simplex QP solver in [`simplex`].
 
@@ -26,4 +26,4 @@ pub mod simplex;
 pub use error::{SynthError, SynthResult};
 pub use fit::{Fitted, Placebo, PlaceboRun, PredictorBalance, UnitFit};
 pub use params::{Aggregation, Method, SynthParams, ValidParams};
-pub use result::{RunOptions, run};
+pub use result::{Robustness, RunOptions, SynthDiagnostics, estimate, run};

@@ -5,7 +5,6 @@
 //! | `method` | `weights` | estimator, see [`Method`] | any |
 //! | `placebo` | `true` | run placebo in space (needed for p-value and intervals) | bool |
 //! | `placebo_exclude_factor` | none | drop placebos whose pre-RMSPE exceeds k times the treated unit's | k > 0 |
-//! | `level` | 0.9 | interval level | (0, 1) |
 //! | `min_pre_periods` | 3 | fewest pre-periods accepted | ≥ 2 |
 //! | `min_donors` | 2 | fewest donors accepted | ≥ 2 |
 //! | `exclude` | none | units left out of the donor pool | unit names |
@@ -16,11 +15,12 @@
 //! | `cv_folds` | min(5, T0/3) | hold-out periods at the end of the pre-period for the ridge CV | ≥ 1 |
 //! | `sdid_placebo_reps` | 200 | placebo replications for the SDID variance with one treated unit | ≥ 20 |
 //! | `aggregate` | mean | how several treated units are combined, see [`Aggregation`] | any |
-//! | `seed` | 20260101 | seed for every random step (SDID placebo sets, permutation sets) | any u64 |
+//! | `inference` | level 0.9, seed 20240601 | [`Inference`]: level of the intervals, seed of every random step (SDID placebo sets, permutation sets) | level in (0, 1) |
 //! | `solver` | tol 1e-10 | simplex QP solver options | tol in (0, 1e-3] |
 
 use crate::error::{SynthError, SynthResult};
 use crate::simplex::SimplexOptions;
+use aftercast_core::estimate::Inference;
 use aftercast_core::time::TimePoint;
 use serde::{Deserialize, Serialize};
 
@@ -95,8 +95,8 @@ pub struct SynthParams {
     pub placebo: bool,
     /// Drop placebos whose pre-RMSPE exceeds this multiple of the treated unit's.
     pub placebo_exclude_factor: Option<f64>,
-    /// Interval level.
-    pub level: f64,
+    /// Level, draws, seed, ROPE and threshold (one definition for every verb).
+    pub inference: Inference,
     /// Fewest pre-periods accepted.
     pub min_pre_periods: usize,
     /// Fewest donors accepted.
@@ -117,8 +117,6 @@ pub struct SynthParams {
     pub sdid_placebo_reps: usize,
     /// How several treated units are combined.
     pub aggregate: Aggregation,
-    /// Seed of every random step.
-    pub seed: u64,
     /// Simplex solver options.
     pub solver: SimplexOptions,
 }
@@ -129,7 +127,7 @@ impl Default for SynthParams {
             method: Method::Weights,
             placebo: true,
             placebo_exclude_factor: None,
-            level: 0.9,
+            inference: Inference::default(),
             min_pre_periods: 3,
             min_donors: 2,
             exclude: Vec::new(),
@@ -140,7 +138,6 @@ impl Default for SynthParams {
             cv_folds: None,
             sdid_placebo_reps: 200,
             aggregate: Aggregation::Mean,
-            seed: 20_260_101,
             solver: SimplexOptions::default(),
         }
     }
@@ -167,8 +164,18 @@ impl SynthParams {
         placebo: bool);
     setter!(/// Exclude placebos with pre-RMSPE above k times the treated unit's.
         placebo_exclude_factor: Option<f64>);
-    setter!(/// Set the interval level.
-        level: f64);
+    setter!(/// Level, draws, seed, ROPE and threshold at once.
+        inference: Inference);
+    /// Set the interval level.
+    pub fn level(mut self, v: f64) -> Self {
+        self.inference.level = v;
+        self
+    }
+    /// Set the seed.
+    pub fn seed(mut self, v: u64) -> Self {
+        self.inference.seed = v;
+        self
+    }
     setter!(/// Set the fewest pre-periods accepted.
         min_pre_periods: usize);
     setter!(/// Set the fewest donors accepted.
@@ -189,8 +196,6 @@ impl SynthParams {
         sdid_placebo_reps: usize);
     setter!(/// Aggregation of several treated units.
         aggregate: Aggregation);
-    setter!(/// Seed.
-        seed: u64);
     setter!(/// Solver options.
         solver: SimplexOptions);
 
@@ -202,8 +207,8 @@ impl SynthParams {
         let bad = |name: &'static str, value: String, detail: &str| {
             Err(SynthError::BadParameter { name, value, detail: detail.to_string() })
         };
-        if !(self.level > 0.0 && self.level < 1.0) {
-            return bad("level", self.level.to_string(), "must lie strictly between 0 and 1");
+        if !(self.inference.level > 0.0 && self.inference.level < 1.0) {
+            return bad("level", self.inference.level.to_string(), "must lie strictly between 0 and 1");
         }
         if let Some(k) = self.placebo_exclude_factor
             && !(k.is_finite() && k > 0.0)

@@ -1,25 +1,72 @@
-//! From a [`Fitted`] synthetic control to the shared JSON document ([`AnalysisResult`]).
+//! From a [`Fitted`] synthetic control to the one estimate ([`Estimate`]) with typed
+//! diagnostics ([`SynthDiagnostics`]).
 
-use crate::fit::Fitted;
+use crate::fit::{Fitted, Placebo, UnitFit};
+use crate::inference::{Conformal, LeaveOneOut, PlaceboInTime};
 use crate::params::Method;
-use aftercast_core::result::{AnalysisResult, EffectDraws, PlaceboSummary, Rope, TOOL_VERSION};
-use aftercast_core::table::InputInfo;
-use aftercast_resample::summary::{pre_point, series_effects};
-use serde_json::{Map, Value, json};
+use crate::sdid::SdidFit;
+use aftercast_core::estimate::{Estimate, NamedCurve, Per, Point, Scope, TotalRule};
+use aftercast_core::result::{EffectDraws, PathPoint, PlaceboSummary};
+use serde::Serialize;
 
-/// What the result document needs beyond the fit.
-#[derive(Debug, Clone)]
-pub struct ResultOptions {
-    /// Interval level.
-    pub level: f64,
-    /// Region of practical equivalence.
-    pub rope: Rope,
-    /// Optional threshold for `prob_above_threshold`.
-    pub threshold: Option<f64>,
-    /// Seed of the run.
-    pub seed: u64,
-    /// Input files.
-    pub inputs: Vec<InputInfo>,
+/// Where the draws of a synthetic control come from, and how many.
+#[derive(Debug, Clone, Serialize)]
+pub struct DrawSource {
+    /// Placebo prediction errors, sdid placebo or jackknife, ...
+    pub source: String,
+    /// Number of counterfactual paths.
+    pub count: usize,
+}
+
+/// The typed diagnostics of a synthetic control (the `diagnostics` object of its result).
+#[derive(Debug, Clone, Serialize)]
+pub struct SynthDiagnostics {
+    /// One fit per treated unit.
+    pub treated: Vec<UnitFit>,
+    /// Size of the donor pool.
+    pub donors: usize,
+    /// Share of each treated unit in the combined path.
+    pub unit_shares: Vec<f64>,
+    /// Pre-periods.
+    pub pre_periods: usize,
+    /// Post-periods.
+    pub post_periods: usize,
+    /// Source and count of the draws.
+    pub draws: DrawSource,
+    /// Pre-period RMSPE of the combined path (for one treated unit: that unit's).
+    pub pre_rmspe: f64,
+    /// Pre-period R² of the combined path.
+    pub r2_pre: f64,
+    /// Donors with non-zero weight in the combined weights.
+    pub nonzero_donors: usize,
+    /// Placebo-in-space runs and ranks.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub placebo_runs: Option<Placebo>,
+    /// Synthetic difference-in-differences details.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub sdid: Option<SdidFit>,
+    /// Conformal inference (one treated unit, weights or intercept).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub conformal: Option<Conformal>,
+    /// Placebo in time.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub placebo_in_time: Option<PlaceboInTime>,
+    /// Leave-one-out over the donors with weight.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub leave_one_out: Option<LeaveOneOut>,
+}
+
+/// The robustness checks run beside the fit.
+#[derive(Debug, Clone, Default)]
+pub struct Robustness {
+    /// Conformal inference.
+    pub conformal: Option<Conformal>,
+    /// Placebo in time.
+    pub placebo_in_time: Option<PlaceboInTime>,
+    /// Leave-one-out.
+    pub leave_one_out: Option<LeaveOneOut>,
+    /// Checks that could not run, as warnings.
+    pub warnings: Vec<String>,
 }
 
 impl Fitted {
@@ -50,7 +97,7 @@ fn sentence_assumptions(method: Method) -> Vec<String> {
     a
 }
 
-/// Donor weights of the aggregate: the unit's own for one treated unit, the share-weighted
+/// Donor weights of the combined path: the unit's own for one treated unit, the share-weighted
 /// mean of the units' weights for several.
 fn weights_of(fit: &Fitted) -> Vec<aftercast_core::result::UnitWeight> {
     if fit.units.len() == 1 {
@@ -64,134 +111,109 @@ fn weights_of(fit: &Fitted) -> Vec<aftercast_core::result::UnitWeight> {
         .collect()
 }
 
-/// Build the shared result document of the `synthetic` verb.
-///
-/// `extra_diagnostics` is merged into `diagnostics` (e.g. conformal, placebo in time,
-/// leave-one-out sections from [`crate::inference`]).
-pub fn to_analysis_result(fit: &Fitted, opts: &ResultOptions, extra_diagnostics: Map<String, Value>) -> AnalysisResult {
-    let eff = series_effects(
-        fit.post_times(),
-        fit.post_observed(),
-        &fit.draws.counterfactual,
-        opts.level,
-        &opts.rope,
-        opts.threshold,
-    );
-    let mut path = Vec::with_capacity(fit.times.len());
-    for t in 0..fit.first_post {
-        let mut d = [fit.synthetic[t]];
-        path.push(pre_point(fit.times[t], fit.observed[t], &mut d, opts.level));
-    }
-    path.extend(eff.path.iter().cloned());
-    let mut warnings = fit.warnings.clone();
-    if eff.nonfinite_relative > 0 {
-        warnings.push(format!(
-            "{} draws had a zero counterfactual sum; their relative effect is undefined",
-            eff.nonfinite_relative
-        ));
-    }
-    let mut diag = Map::new();
-    let units: Vec<Value> = fit
-        .units
-        .iter()
-        .map(|u| {
-            json!({
-                "unit": u.unit,
-                "pre_rmspe": u.pre_rmspe,
-                "post_rmspe": u.post_rmspe,
-                "rmspe_ratio": u.rmspe_ratio,
-                "r2_pre": u.r2_pre,
-                "nonzero_donors": u.nonzero_donors,
-                "outside_range_share": u.outside_range_share,
-                "outside_hull": u.outside_hull,
-                "intercept": u.intercept,
-                "ridge_lambda": u.ridge_lambda,
-                "v_objective": u.v_objective,
-                "solver": u.solver,
-                "balance": u.balance,
-                "weights": u.weights,
-                "simplex_weights": u.simplex_weights,
-                "gap": u.gap,
-            })
-        })
-        .collect();
-    diag.insert("treated".into(), Value::Array(units));
-    diag.insert("donors".into(), json!(fit.donors.len()));
-    diag.insert("unit_shares".into(), json!(fit.unit_shares));
-    diag.insert("pre_periods".into(), json!(fit.first_post));
-    diag.insert("post_periods".into(), json!(fit.times.len() - fit.first_post));
-    diag.insert("draws".into(), json!({"source": fit.draws.source, "count": fit.draws.counterfactual.len()}));
-    // Pre-period fit of the aggregated path (for one treated unit: that unit's).
+/// The one estimate of a synthetic control: the actual synthetic path as the point
+/// counterfactual, the placebo-based path draws, typed diagnostics and the placebo gaps.
+/// With several treated units the numbers are per treated unit (of the combined path) and the
+/// total over all treated units is the sum of their own gaps.
+pub fn estimate(fit: &Fitted, robustness: Robustness) -> Estimate<SynthDiagnostics> {
     let p0 = fit.first_post;
     let gap: Vec<f64> = (0..p0).map(|t| fit.observed[t] - fit.synthetic[t]).collect();
     let ybar = fit.observed[..p0].iter().sum::<f64>() / p0 as f64;
     let sst: f64 = fit.observed[..p0].iter().map(|y| (y - ybar).powi(2)).sum();
-    diag.insert("pre_rmspe".into(), json!(crate::fit::rmspe(&gap)));
-    diag.insert("r2_pre".into(), json!(1.0 - gap.iter().map(|g| g * g).sum::<f64>() / sst));
-    let nonzero = weights_of(fit).iter().filter(|w| w.weight.abs() > crate::fit::WEIGHT_ZERO).count();
-    diag.insert("nonzero_donors".into(), json!(nonzero));
-    if let Some(pl) = &fit.placebo {
-        diag.insert("placebo_runs".into(), serde_json::to_value(pl).unwrap_or(Value::Null));
+    let weights = weights_of(fit);
+    let nonzero = weights.iter().filter(|w| w.weight.abs() > crate::fit::WEIGHT_ZERO).count();
+    let diagnostics = SynthDiagnostics {
+        treated: fit.units.clone(),
+        donors: fit.donors.len(),
+        unit_shares: fit.unit_shares.clone(),
+        pre_periods: p0,
+        post_periods: fit.times.len() - p0,
+        draws: DrawSource { source: fit.draws.source.clone(), count: fit.draws.counterfactual.len() },
+        pre_rmspe: crate::fit::rmspe(&gap),
+        r2_pre: 1.0 - gap.iter().map(|g| g * g).sum::<f64>() / sst,
+        nonzero_donors: nonzero,
+        placebo_runs: fit.placebo.clone(),
+        sdid: fit.sdid.clone(),
+        conformal: robustness.conformal,
+        placebo_in_time: robustness.placebo_in_time,
+        leave_one_out: robustness.leave_one_out,
+    };
+    // sdid fits the combined treated path as one unit; the shares still count the treated units
+    let n_units = fit.unit_shares.len().max(fit.units.len());
+    let scope = Scope { per: Per::Period, units: n_units };
+    let estimand = if n_units > 1 || fit.method == Method::Sdid {
+        "ATT (average over treated units and post-periods)"
+    } else {
+        "effect on the treated unit, per post-period"
+    };
+    let mut est = Estimate::new(
+        "synthetic",
+        fit.method.name(),
+        estimand,
+        Point::Path(fit.synthetic[p0..].to_vec()),
+        fit.effect_draws(),
+        scope,
+        diagnostics,
+    );
+    if n_units > 1 {
+        let post_sum = |gap: &[f64]| gap[p0..].iter().filter(|g| g.is_finite()).sum::<f64>();
+        let point = if fit.units.len() == n_units {
+            fit.units.iter().map(|u| post_sum(&u.gap)).sum()
+        } else {
+            // one combined fit: n times its gap (exact when the units are combined by a plain mean)
+            let combined: Vec<f64> = fit.observed.iter().zip(&fit.synthetic).map(|(y, s)| y - s).collect();
+            n_units as f64 * post_sum(&combined)
+        };
+        est.total = Some(TotalRule { units: n_units, point });
     }
-    if let Some(s) = &fit.sdid {
-        diag.insert("sdid".into(), serde_json::to_value(s).unwrap_or(Value::Null));
-    }
-    diag.extend(extra_diagnostics);
-    let weights = Some(weights_of(fit));
-    let placebo = fit.placebo.as_ref().map(|pl| {
+    // The pre-period fit is exact arithmetic (no draws): the band is the synthetic path itself.
+    est.sections.pre_path = (0..p0)
+        .map(|t| PathPoint {
+            time: fit.times[t],
+            observed: fit.observed[t].is_finite().then_some(fit.observed[t]),
+            counterfactual: fit.synthetic[t],
+            lower: fit.synthetic[t],
+            upper: fit.synthetic[t],
+            post: false,
+            effect: None,
+            cumulative: None,
+        })
+        .collect();
+    est.sections.weights = Some(weights);
+    est.sections.placebo = fit.placebo.as_ref().map(|pl| {
         if pl.ranks.len() == 1 {
             let r = &pl.ranks[0];
             PlaceboSummary { p_value: r.p_value, rank: r.rank, units: r.units }
         } else {
-            let p = pl.joint_p_value.unwrap_or(f64::NAN);
-            PlaceboSummary { p_value: p, rank: 0, units: pl.runs.len() + pl.ranks.len() }
+            PlaceboSummary {
+                p_value: pl.joint_p_value.unwrap_or(f64::NAN),
+                rank: 0,
+                units: pl.runs.len() + pl.ranks.len(),
+            }
         }
     });
-    AnalysisResult {
-        tool_version: TOOL_VERSION.to_string(),
-        verb: "synthetic".into(),
-        method: fit.method.name().into(),
-        level: opts.level,
-        seed: opts.seed,
-        inputs: opts.inputs.clone(),
-        estimand: Some(if fit.units.len() > 1 || fit.method == Method::Sdid {
-            "ATT (average over treated units and post-periods)".into()
-        } else {
-            "effect on the treated unit, per post-period".into()
-        }),
-        effect: eff.effect,
-        verdict: eff.verdict,
-        rope: opts.rope,
-        diagnostics: diag,
-        warnings,
-        path: Some(path),
-        weights,
-        placebo,
-        balance: None,
-        sample: None,
-        truth: None,
-        estimates: None,
-        assumptions: sentence_assumptions(fit.method),
-        extra: Map::new(),
+    est.figures.placebo_gaps = fit
+        .placebo
+        .iter()
+        .flat_map(|pl| pl.runs.iter().filter(|r| r.kept))
+        .map(|r| NamedCurve { name: r.unit.clone(), values: r.gap.clone() })
+        .collect();
+    for w in fit.warnings.iter().chain(&robustness.warnings) {
+        est.warn(w.clone());
     }
+    est.assumptions = sentence_assumptions(fit.method);
+    est
 }
 
 /// Options of [`run`] beyond the estimator's parameters.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Copy)]
 pub struct RunOptions {
-    /// Region of practical equivalence.
-    pub rope: Rope,
-    /// Optional threshold for `prob_above_threshold`.
-    pub threshold: Option<f64>,
-    /// Input files.
-    pub inputs: Vec<InputInfo>,
     /// Also run the robustness checks (conformal inference, placebo in time, leave-one-out)
-    /// and put them into `diagnostics`. A check that cannot run becomes a warning.
+    /// and put them into the diagnostics. A check that cannot run becomes a warning.
     pub robustness: bool,
 }
 
-/// Fit and build the result document in one call (what the `synthetic` verb calls).
-/// Level and seed come from the parameters.
+/// Fit and build the estimate in one call (what the `synthetic` verb calls).
 ///
 /// # Errors
 /// As [`ValidParams::fit`](crate::ValidParams::fit); all of them are caused by the input.
@@ -200,41 +222,26 @@ pub fn run(
     treated: &[String],
     start: aftercast_core::time::TimePoint,
     params: &crate::ValidParams,
-    opts: &RunOptions,
-) -> crate::SynthResult<(Fitted, AnalysisResult)> {
+    opts: RunOptions,
+) -> crate::SynthResult<(Fitted, Estimate<SynthDiagnostics>)> {
     let fit = params.fit(panel, treated, start)?;
-    let mut extra = Map::new();
-    let mut warnings = Vec::new();
+    let mut rb = Robustness::default();
     if opts.robustness && fit.method != Method::Sdid {
         if treated.len() == 1 && matches!(fit.method, Method::Weights | Method::Intercept) {
             match crate::inference::conformal(params, panel, &treated[0], start) {
-                Ok(c) => {
-                    extra.insert("conformal".into(), serde_json::to_value(c).unwrap_or(Value::Null));
-                }
-                Err(e) => warnings.push(format!("conformal inference skipped: {e}")),
+                Ok(c) => rb.conformal = Some(c),
+                Err(e) => rb.warnings.push(format!("conformal inference skipped: {e}")),
             }
         }
         match crate::inference::placebo_in_time(params, panel, treated, start, None) {
-            Ok(p) => {
-                extra.insert("placebo_in_time".into(), serde_json::to_value(p).unwrap_or(Value::Null));
-            }
-            Err(e) => warnings.push(format!("placebo in time skipped: {e}")),
+            Ok(p) => rb.placebo_in_time = Some(p),
+            Err(e) => rb.warnings.push(format!("placebo in time skipped: {e}")),
         }
         match crate::inference::leave_one_out(params, panel, treated, start, &fit) {
-            Ok(l) => {
-                extra.insert("leave_one_out".into(), serde_json::to_value(l).unwrap_or(Value::Null));
-            }
-            Err(e) => warnings.push(format!("leave-one-out skipped: {e}")),
+            Ok(l) => rb.leave_one_out = Some(l),
+            Err(e) => rb.warnings.push(format!("leave-one-out skipped: {e}")),
         }
     }
-    let ro = ResultOptions {
-        level: params.get().level,
-        rope: opts.rope,
-        threshold: opts.threshold,
-        seed: params.get().seed,
-        inputs: opts.inputs.clone(),
-    };
-    let mut doc = to_analysis_result(&fit, &ro, extra);
-    doc.warnings.extend(warnings);
-    Ok((fit, doc))
+    let est = estimate(&fit, rb);
+    Ok((fit, est))
 }

@@ -296,7 +296,7 @@ pub(crate) fn fit_sdid(prep: &Prepared, p: &SynthParams, outcome: &str, shares: 
         if controls.len() < 3 {
             return Err(SynthError::TooFewDonors { found: controls.len(), needed: 3 });
         }
-        let base = aftercast_resample::rng::child_seed(p.seed, "sdid-placebo");
+        let base = aftercast_resample::rng::child_seed(p.inference.seed, "sdid-placebo");
         let reps = p.sdid_placebo_reps;
         let res: Vec<Option<Vec<f64>>> = aftercast_resample::rng::par_draws(base, reps, |_, s| {
             use rand::RngExt;

@@ -88,8 +88,7 @@ fn placebo_scaled_intervals_cover_zero_near_nominal_when_nothing_happened() {
     // 90% interval of the average effect should cover zero in roughly 90% of runs. 100 seeded
     // panels, 30 donors; accept 78%-99% (binomial sd 3% around 90%, plus the coarseness of 30
     // draws).
-    use aftercast_core::result::Rope;
-    use aftercast_synth::result::{ResultOptions, to_analysis_result};
+    use aftercast_synth::result::{Robustness, estimate};
     let params = SynthParams::new().check().unwrap();
     let runs = 100;
     let mut covered = 0;
@@ -98,8 +97,9 @@ fn placebo_scaled_intervals_cover_zero_near_nominal_when_nothing_happened() {
         let (names, y) = common::factor_panel(&mut sim, 31, 30, 1.0);
         let panel = common::panel_from_matrix(&names, &y);
         let fit = params.fit(&panel, &[names[30].clone()], TimePoint::Period(24)).unwrap();
-        let opts = ResultOptions { level: 0.9, rope: Rope::default(), threshold: None, seed: 1, inputs: vec![] };
-        let doc = to_analysis_result(&fit, &opts, serde_json::Map::new());
+        let doc = aftercast_resample::finish(estimate(&fit, Robustness::default()), &params.get().inference, vec![])
+            .unwrap()
+            .result;
         if doc.effect.average.lower <= 0.0 && 0.0 <= doc.effect.average.upper {
             covered += 1;
         }

@@ -2,7 +2,7 @@
 
 use crate::error::{CalibrateError, CalibrateResult};
 use crate::estimators::{MethodEstimate, UnitEstimator};
-use crate::options::DrawOptions;
+use aftercast_core::estimate::Inference;
 use aftercast_core::units::UnitTable;
 use aftercast_match::design::Term;
 use aftercast_match::{Caliper, Estimand, MatchParams, Method};
@@ -50,7 +50,7 @@ impl UnitEstimator for MatchEstimator {
         s: &UnitTable,
         outcome: &str,
         covariates: &[String],
-        opts: &DrawOptions,
+        opts: &Inference,
     ) -> CalibrateResult<MethodEstimate> {
         let mut p = self.params.clone();
         if p.covariates.is_empty() {

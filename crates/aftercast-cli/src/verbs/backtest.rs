@@ -44,8 +44,8 @@ pub struct Args {
     /// Window lengths for power and MDE, comma-separated (default: a quarter, half and all of the post-period).
     #[arg(long, default_value = "")]
     pub lengths: String,
-    /// Injected multiplicative lifts in percent, comma-separated.
-    #[arg(long, default_value = "-5,1,2,5,10")]
+    /// Injected multiplicative lifts in percent, comma-separated (negative values allowed).
+    #[arg(allow_hyphen_values = true, long, default_value = "-5,1,2,5,10")]
     pub lifts: String,
     /// Shortest fitting span in periods (default: twice the post-period, at least 10).
     #[arg(long)]
@@ -83,7 +83,6 @@ pub struct Args {
 
 fn run_plasmode(a: &Args, path: &std::path::Path) -> anyhow::Result<crate::verbs::Outcome> {
     use aftercast_calibrate::plasmode::{PlasmodeSpec, plasmode};
-    use aftercast_core::result::{AnalysisResult, EffectBlock};
     use aftercast_core::units::{UnitSpec, UnitTable};
     let covariates = comma_list(&a.covariates);
     if covariates.is_empty() {
@@ -100,59 +99,33 @@ fn run_plasmode(a: &Args, path: &std::path::Path) -> anyhow::Result<crate::verbs
     let units = UnitTable::from_table(&table, &spec)?;
     let methods = crate::verbs::compare::methods_from(&a.methods, &[])?;
     let refs: Vec<&dyn aftercast_calibrate::UnitEstimator> = methods.iter().map(|m| m.as_ref()).collect();
-    let opts = aftercast_calibrate::DrawOptions {
-        level: a.common.level,
-        draws: usize::try_from(a.common.draws).unwrap_or(usize::MAX),
-        seed: a.common.seed,
-        rope: a.common.rope,
-        threshold: a.common.threshold,
-    };
+    let opts = a.common.inference();
     let pspec = PlasmodeSpec { effect: a.effect, replicates: a.replicates };
     let reports = plasmode(&units, &a.outcome, &covariates, &refs, &pspec, &opts).map_err(classify)?;
-    let first = reports.first().ok_or_else(|| bad_input_msg("--methods: no method given"))?;
-    let average = aftercast_resample::summarize(&first.estimates, a.common.level, a.common.threshold);
-    let mut extra = serde_json::Map::new();
-    extra.insert("plasmode".into(), serde_json::to_value(&reports)?);
-    let mut diagnostics = serde_json::Map::new();
-    diagnostics.insert(
-        "effect_is".into(),
-        serde_json::json!(format!("estimates of {} over the simulated data sets", first.method)),
-    );
-    diagnostics.insert("known_effect".into(), serde_json::json!(a.effect));
-    let result = AnalysisResult {
-        estimand: Some("ATT of the simulated outcomes".into()),
-        diagnostics,
-        assumptions: vec![
-            "The outcome model (linear in the covariates, normal noise) is a fair stand-in for the real outcomes."
-                .into(),
-            "Treatment depends on the covariates only, as in the simulated data by construction.".into(),
-        ],
-        extra,
-        ..AnalysisResult::new(
-            "backtest",
-            "plasmode",
-            a.common.level,
-            a.common.seed,
-            vec![units.input.clone()],
-            EffectBlock { average, cumulative: None, relative: None },
-            aftercast_resample::verdict(
-                (average.hdi_lower, average.hdi_upper),
-                (a.common.rope.low, a.common.rope.high),
-            ),
-            a.common.rope,
-        )
+    let est = aftercast_calibrate::plasmode::estimate(&reports, &pspec, units.n_treated()).map_err(classify)?;
+    let headline = format!("plasmode: {} simulated data sets, known effect {}", a.replicates, a.effect);
+    let d = aftercast_report::numbers::decimals_for(&reports.iter().flat_map(|r| [r.bias, r.rmse]).collect::<Vec<_>>());
+    let table = aftercast_report::Table {
+        title: "How each method does on data with a known effect".into(),
+        headers: ["method", "bias", "RMSE", "coverage", "power", "failures"].map(String::from).to_vec(),
+        rows: reports
+            .iter()
+            .map(|r| {
+                vec![
+                    r.method.clone(),
+                    aftercast_report::numbers::signed(r.bias, d),
+                    aftercast_report::numbers::signed(r.rmse, d).trim_start_matches('+').to_string(),
+                    format!("{:.0}%", 100.0 * r.coverage),
+                    format!("{:.0}%", 100.0 * r.power),
+                    r.failures.to_string(),
+                ]
+            })
+            .collect(),
+        note: None,
     };
-    let mut headline = format!("plasmode: {} simulated data sets, known effect {}", a.replicates, a.effect);
-    for r in &reports {
-        headline.push_str(&format!(
-            "; {} bias {:.4}, coverage {:.0}%, power {:.0}%",
-            r.method,
-            r.bias,
-            100.0 * r.coverage,
-            100.0 * r.power
-        ));
-    }
-    Ok(crate::verbs::Outcome { result, headline })
+    let mut out = crate::verbs::Outcome::new(est, &opts, vec![units.input.clone()], headline)?;
+    out.tables.push(table);
+    Ok(out)
 }
 
 /// Run the verb and return the result document plus a one-line headline for the terminal.
@@ -244,27 +217,53 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     let flag = aftercast_calibrate::interrupt::stop_flag().map_err(|m| anyhow::anyhow!("cannot handle Ctrl-C: {m}"))?;
     let control = RunControl { stop: Some(&flag), partial: a.partial.as_deref(), progress: !a.common.quiet };
     let report = backtest::run(&model, &data, &bspec, &control).map_err(classify)?;
-    let result = report.to_result(&a.common.rope, vec![series.input.clone()]);
-    let mde = report
-        .mde
-        .iter()
-        .map(|m| match m.increase {
-            Some(v) => format!("{} periods {:.1}%", m.length, 100.0 * v),
-            None => format!("{} periods: not reached", m.length),
-        })
-        .collect::<Vec<_>>()
-        .join(", ");
     let headline = format!(
-        "{} on '{}': {} of {} placebo dates{}; false positives {:.0}% at level {:.0}%, MDE at {:.0}% power: {}",
-        report.model,
+        "planning on '{}' with the {} model: {} of {} placebo dates{}",
         a.outcome,
+        report.model,
         report.origins_completed,
         report.origins_planned,
         if report.interrupted { " (interrupted)" } else { "" },
-        100.0 * report.false_positive_rate,
-        100.0 * bspec.level,
-        100.0 * bspec.power,
-        mde
     );
-    Ok(crate::verbs::Outcome { result, headline })
+    let table = planning_table(&report, bspec.power);
+    let mut out =
+        crate::verbs::Outcome::new(report.estimate(), &a.common.inference(), vec![series.input.clone()], headline)?;
+    out.tables.push(table);
+    Ok(out)
+}
+
+/// The planning table: per wait, the smallest visible lift and the power at each lift asked.
+fn planning_table(report: &aftercast_calibrate::BacktestReport, power: f64) -> aftercast_report::Table {
+    use aftercast_report::numbers::percent;
+    let mut lifts: Vec<f64> = report.power.iter().map(|p| p.lift).collect();
+    lifts.sort_by(f64::total_cmp);
+    lifts.dedup();
+    let mut headers = vec!["wait (periods)".to_string(), format!("smallest lift seen at {:.0}% power", 100.0 * power)];
+    headers.extend(lifts.iter().map(|l| format!("power at {}", percent(*l))));
+    let rows = report
+        .mde
+        .iter()
+        .map(|m| {
+            let mut row = vec![
+                m.length.to_string(),
+                m.increase.map_or("not reached".into(), |v| percent(v).trim_start_matches('+').to_string()),
+            ];
+            for l in &lifts {
+                let p = report.power.iter().find(|p| p.length == m.length && p.lift == *l);
+                row.push(p.map_or("n/a".into(), |p| format!("{:.0}%", 100.0 * p.power)));
+            }
+            row
+        })
+        .collect();
+    aftercast_report::Table {
+        title: "How long to wait".into(),
+        headers,
+        rows,
+        note: Some(format!(
+            "False positives where nothing happened: {:.0}% of {} placebo dates (interval level {:.0}%).",
+            100.0 * report.false_positive_rate,
+            report.origins_completed,
+            100.0 * report.spec.level
+        )),
+    }
 }

@@ -6,12 +6,10 @@ use crate::failure::{bad_input, bad_input_msg};
 use aftercast_calibrate::adapters::matching::MatchEstimator;
 use aftercast_calibrate::history;
 use aftercast_calibrate::sample::{UnitCompareSpec, read_experiment, read_pool};
-use aftercast_calibrate::{
-    CalibrateError, DrawOptions, Naive, Regression, RegressionKind, UnitEstimator, compare_units,
-};
-use aftercast_core::result::{AnalysisResult, EffectBlock};
+use aftercast_calibrate::{CalibrateError, Naive, Regression, RegressionKind, UnitEstimator, compare_units};
 use aftercast_match::Method;
-use serde_json::{Map, json};
+use aftercast_report::Table;
+use aftercast_report::numbers::{decimals_for, signed};
 use std::path::PathBuf;
 
 /// Arguments of `compare` (flag names are the contract in ../shared/DESIGN.md).
@@ -88,13 +86,38 @@ pub(crate) fn classify(e: CalibrateError) -> anyhow::Error {
     }
 }
 
-fn options(c: &Common) -> DrawOptions {
-    DrawOptions {
-        level: c.level,
-        draws: usize::try_from(c.draws).unwrap_or(usize::MAX),
-        seed: c.seed,
-        rope: c.rope,
-        threshold: c.threshold,
+/// The per-method table of a comparison history.
+fn history_table(rows: &[history::MethodSummary]) -> Table {
+    let d = decimals_for(&rows.iter().flat_map(|r| [r.mean_bias, r.rmse]).collect::<Vec<_>>());
+    Table {
+        title: "How far each method has landed from experimental truths".into(),
+        headers: vec![
+            "method".into(),
+            "records".into(),
+            "mean bias".into(),
+            "mean relative bias".into(),
+            "RMSE".into(),
+            "coverage".into(),
+            "widen intervals by".into(),
+        ],
+        rows: rows
+            .iter()
+            .map(|r| {
+                vec![
+                    r.method.clone(),
+                    r.records.to_string(),
+                    signed(r.mean_bias, d),
+                    r.mean_relative_bias.map_or("n/a".into(), aftercast_report::numbers::percent),
+                    signed(r.rmse, d).trim_start_matches('+').to_string(),
+                    format!("{:.0}% at {:.0}%", 100.0 * r.coverage, 100.0 * r.level),
+                    format!("x{:.2}", r.inflation_factor),
+                ]
+            })
+            .collect(),
+        note: Some(
+            "Widen a new interval of a method by its factor before trusting its nominal level (docs/calibrate.md)."
+                .into(),
+        ),
     }
 }
 
@@ -106,47 +129,12 @@ fn summarize_history(a: &Args, path: &std::path::Path) -> anyhow::Result<crate::
     if records.is_empty() {
         return Err(bad_input_msg(format!("{}: the history holds no comparison", path.display())));
     }
-    let rows = history::summarize(&records);
-    let bias: Vec<f64> = records.iter().map(|r| r.estimate - r.truth).collect();
-    let average = aftercast_resample::summarize(&bias, a.common.level, None);
-    let mut extra = Map::new();
-    extra.insert("history_summary".into(), serde_json::to_value(&rows)?);
-    let mut diagnostics = Map::new();
-    diagnostics.insert("effect_is".into(), json!("estimate minus truth over every recorded comparison"));
-    diagnostics.insert("records".into(), json!(records.len()));
-    let result = AnalysisResult {
-        estimand: Some("bias of observational methods".into()),
-        diagnostics,
-        assumptions: vec!["Past experiments are a fair sample of the situations the methods will be used in.".into()],
-        extra,
-        ..AnalysisResult::new(
-            "compare",
-            "history-summary",
-            a.common.level,
-            a.common.seed,
-            Vec::new(),
-            EffectBlock { average, cumulative: None, relative: None },
-            aftercast_resample::verdict(
-                (average.hdi_lower, average.hdi_upper),
-                (a.common.rope.low, a.common.rope.high),
-            ),
-            a.common.rope,
-        )
-    };
-    let mut headline = format!("history of {} comparisons:", records.len());
-    for r in &rows {
-        headline.push_str(&format!(
-            " {} mean bias {:.4}, RMSE {:.4}, coverage {:.0}% at {:.0}%, widen intervals x{:.2};",
-            r.method,
-            r.mean_bias,
-            r.rmse,
-            100.0 * r.coverage,
-            100.0 * r.level,
-            r.inflation_factor
-        ));
-    }
-    headline.pop();
-    Ok(crate::verbs::Outcome { result, headline })
+    let est = history::estimate(&records).map_err(classify)?;
+    let table = history_table(&est.diagnostics.history_summary);
+    let headline = format!("history of {} comparisons ({})", records.len(), path.display());
+    let mut out = crate::verbs::Outcome::new(est, &a.common.inference(), Vec::new(), headline)?;
+    out.tables.push(table);
+    Ok(out)
 }
 
 fn compare_arm_series(a: &Args, path: &std::path::Path) -> anyhow::Result<crate::verbs::Outcome> {
@@ -195,20 +183,17 @@ fn compare_arm_series(a: &Args, path: &std::path::Path) -> anyhow::Result<crate:
     let forecast = if daily { StructuralModel::daily() } else { StructuralModel::local_level() };
     let synthetic = SyntheticModel { level: a.common.level, ..SyntheticModel::default() };
     let donor_models: Vec<&dyn PathModel> = if donors.is_empty() { Vec::new() } else { vec![&synthetic] };
-    let c = compare_series(&arms, &[&forecast], &donor_models, &options(&a.common)).map_err(classify)?;
+    let inf = a.common.inference();
+    let c = compare_series(&arms, &[&forecast], &donor_models, &inf).map_err(classify)?;
     if let Some(h) = &a.history {
         history::append(h, &c.history_records()).map_err(classify)?;
     }
-    let mut headline = format!(
-        "experimental truth for '{}' (treated arm, {} window periods): {:.4} per period",
+    let headline = format!(
+        "series methods against a past experiment on '{}' ({} window periods)",
         a.treated_arm,
-        split.post_len(),
-        c.truth.point
+        split.post_len()
     );
-    for r in &c.rows {
-        headline.push_str(&format!("; {} {:.4} (bias {:.4})", r.method, r.estimate, r.bias));
-    }
-    Ok(crate::verbs::Outcome { result: c.to_result(), headline })
+    crate::verbs::Outcome::new(c.estimate(), &inf, c.inputs.clone(), headline)
 }
 
 /// The unit-level methods named in a comma list.
@@ -267,26 +252,16 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         comma_list(&a.terms).iter().map(|t| t.parse()).collect::<Result<_, _>>().map_err(bad_input)?;
     let methods = methods_from(&a.methods, &terms)?;
     let refs: Vec<&dyn UnitEstimator> = methods.iter().map(|m| m.as_ref()).collect();
-    let c = compare_units(&experiment, &pools, &spec, &refs, &options(&a.common)).map_err(classify)?;
+    let inf = a.common.inference();
+    let c = compare_units(&experiment, &pools, &spec, &refs, &inf).map_err(classify)?;
     if let Some(h) = &a.history {
         history::append(h, &c.history_records()).map_err(classify)?;
     }
-    let result = c.to_result();
-    let worst = c.rows.iter().max_by(|x, y| x.bias.abs().total_cmp(&y.bias.abs()));
-    let best = c.rows.iter().min_by(|x, y| x.bias.abs().total_cmp(&y.bias.abs()));
-    let mut headline = format!(
-        "experimental truth for '{}': {:.4} ({} treated, {} control); {} observational estimates",
+    let headline = format!(
+        "observational methods against a randomized experiment on '{}' ({} treated, {} control)",
         spec.outcome,
-        c.truth.point,
         experiment.n_treated(),
         experiment.len() - experiment.n_treated(),
-        c.rows.len()
     );
-    if let (Some(b), Some(w)) = (best, worst) {
-        headline.push_str(&format!(
-            "; closest {} on {} (bias {:.4}), farthest {} on {} (bias {:.4})",
-            b.method, b.setting, b.bias, w.method, w.setting, w.bias
-        ));
-    }
-    Ok(crate::verbs::Outcome { result, headline })
+    crate::verbs::Outcome::new(c.estimate(), &inf, c.inputs.clone(), headline)
 }

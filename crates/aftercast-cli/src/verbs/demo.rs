@@ -2,7 +2,7 @@
 //! a study file DIR/study.toml that analyses it with every verb this build has, and run it.
 
 use crate::common::check_out_dir;
-use crate::demo::ScenarioTruth;
+use aftercast_demo::ScenarioTruth;
 use clap::CommandFactory;
 use std::fmt::Write as _;
 
@@ -129,7 +129,7 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
 /// Bad input when the folder is not empty (without --force); internal errors otherwise.
 pub fn run(a: &Args) -> anyhow::Result<()> {
     check_out_dir(&a.output.out, a.output.force)?;
-    let truth = crate::demo::write_scenario(&a.output.out.join("data"))?;
+    let truth = aftercast_demo::write_scenario(&a.output.out.join("data"))?;
     aftercast_report::write_json(&a.output.out.join("truth.json"), &truth)?;
     let study = demo_study(&truth);
     let study_path = a.output.out.join("study.toml");

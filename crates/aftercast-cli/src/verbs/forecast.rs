@@ -134,16 +134,13 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     }
     let split = series.split(&a.start, a.end.as_deref(), a.washout, 8).map_err(bad_input)?;
     let model: ModelKind = a.model.parse().map_err(bad_input)?;
+    let inf = a.common.inference();
     let mut params = ForecastParams::builder()
         .model(model)
         .trend(trend_of(&a.trend)?)
         .log(a.log)
-        .level(a.common.level)
-        .draws(usize::try_from(a.common.draws).unwrap_or(usize::MAX))
-        .seed(a.common.seed)
-        .backtest_folds(if model == ModelKind::Auto { a.folds.max(1) } else { a.folds })
-        .rope(a.common.rope);
-    params.threshold = a.common.threshold;
+        .inference(inf)
+        .backtest_folds(if model == ModelKind::Auto { a.folds.max(1) } else { a.folds });
     params.hw_seasonality = seasonality_of(&a.hw_seasonality)?;
     params.hw_damped = a.damped;
     if a.no_season {
@@ -164,8 +161,8 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         None => None,
     };
     let run = analyse(&series, split, &params, events.as_ref()).map_err(classify)?;
-    let mut result = run.to_result(inputs);
-    result.warnings.splice(0..0, series.notes.iter().cloned());
+    let mut est = run.estimate();
+    est.warnings.splice(0..0, series.notes.iter().cloned());
     let headline = format!(
         "{} of '{}' from {} ({} model, {} pre-periods, {} post-periods)",
         if a.log { "Multiplicative effect" } else { "Effect" },
@@ -175,5 +172,5 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         split.pre_end,
         split.post_len()
     );
-    Ok(crate::verbs::Outcome { result, headline })
+    crate::verbs::Outcome::new(est, &inf, inputs, headline)
 }

@@ -160,14 +160,12 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         .strata(a.strata)
         .penalty(a.penalty)
         .separation(separation)
-        .draws(usize::try_from(a.common.draws).unwrap_or(usize::MAX))
-        .seed(a.common.seed);
+        .inference(a.common.inference());
     if let Some(p) = &a.pre_outcome {
         params = params.pre_outcome(p.clone());
     }
-    let (fitted, result) =
-        aftercast_match::run(&units, &a.outcome, params, a.common.level, &a.common.rope, a.common.threshold)
-            .map_err(bad_input)?;
+    let inf = params.inference;
+    let (fitted, est) = aftercast_match::run(&units, &a.outcome, params).map_err(bad_input)?;
     let headline = format!(
         "{} of '{}' on '{}'{} by {} ({} treated, {} controls used, {} treated left out)",
         fitted.estimand,
@@ -179,5 +177,5 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         fitted.counts.controls_used,
         fitted.counts.treated_unmatched + fitted.counts.treated_trimmed
     );
-    Ok(crate::verbs::Outcome { result, headline })
+    crate::verbs::Outcome::new(est, &inf, vec![units.input.clone()], headline)
 }

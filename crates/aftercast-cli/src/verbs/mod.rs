@@ -11,15 +11,35 @@ pub mod synthetic;
 pub mod windows;
 
 use crate::common::{Common, write_outputs};
-use aftercast_core::result::AnalysisResult;
+use aftercast_resample::Finished;
 
-/// What an analysis verb hands back to `main`.
+/// What an analysis verb hands back to `main`: the estimate through the one summary path, a
+/// headline, and the verb's own tables.
 #[derive(Debug)]
 pub struct Outcome {
-    /// The full result document.
-    pub result: AnalysisResult,
+    /// The result document, the kept draws and the figure data.
+    pub finished: Finished,
     /// One line saying what was estimated on what (for the terminal summary).
     pub headline: String,
+    /// The verb's own tables (comparison, history summary, planning), shown in the terminal
+    /// and the report.
+    pub tables: Vec<aftercast_report::Table>,
+}
+
+impl Outcome {
+    /// An estimate through the one summary path.
+    ///
+    /// # Errors
+    /// The summary path's errors (internal).
+    pub fn new<D: serde::Serialize>(
+        est: aftercast_core::Estimate<D>,
+        inf: &aftercast_core::Inference,
+        inputs: Vec<aftercast_core::InputInfo>,
+        headline: String,
+    ) -> anyhow::Result<Outcome> {
+        let finished = aftercast_resample::finish(est, inf, inputs)?;
+        Ok(Outcome { finished, headline, tables: Vec::new() })
+    }
 }
 
 /// Print the terminal summary (unless quiet) and write `--json` / `--out` outputs.
@@ -27,9 +47,9 @@ pub struct Outcome {
 /// # Errors
 /// Output failures.
 pub fn finish(common: &Common, outcome: Outcome) -> anyhow::Result<()> {
-    write_outputs(common, &outcome.result, &outcome.headline)?;
+    write_outputs(common, &outcome)?;
     if !common.quiet {
-        print!("{}", aftercast_report::terminal_summary(&outcome.result, &outcome.headline));
+        print!("{}", aftercast_report::terminal_summary(&outcome.finished.result, &outcome.headline, &outcome.tables));
     }
     Ok(())
 }

@@ -67,6 +67,7 @@ pub fn run_study(study_path: &Path, out: &Path, force: bool, quiet: bool) -> any
     check_out_dir(out, force)?;
     let base = study_path.parent().map(Path::to_path_buf).unwrap_or_else(|| PathBuf::from("."));
     let mut entries = Vec::new();
+    let mut outcomes = Vec::new();
     for a in &study.analyses {
         let argv = study.argv(a, &base)?;
         let cli = crate::Cli::try_parse_from(&argv).map_err(|e| {
@@ -85,9 +86,14 @@ pub fn run_study(study_path: &Path, out: &Path, force: bool, quiet: bool) -> any
         };
         if !quiet {
             println!("== {} ==", a.name);
-            print!("{}", aftercast_report::terminal_summary(&outcome.result, &outcome.headline));
+            print!(
+                "{}",
+                aftercast_report::terminal_summary(&outcome.finished.result, &outcome.headline, &outcome.tables)
+            );
         }
-        aftercast_report::write_json(&out.join("analyses").join(format!("{}.json", a.name)), &outcome.result)?;
+        let analyses_dir = out.join("analyses");
+        aftercast_report::write_json(&analyses_dir.join(format!("{}.json", a.name)), &outcome.finished.result)?;
+        crate::common::write_draws(&analyses_dir.join(format!("{}.draws.parquet", a.name)), &outcome.finished.draws)?;
         entries.push(StudyEntry {
             name: a.name.clone(),
             question: a.question.clone(),
@@ -95,9 +101,10 @@ pub fn run_study(study_path: &Path, out: &Path, force: bool, quiet: bool) -> any
             command: shell_line(&argv),
             truth: a.truth,
             truth_of: a.truth_of.clone(),
-            headline: outcome.headline,
-            result: outcome.result,
+            headline: outcome.headline.clone(),
+            result: outcome.finished.result.clone(),
         });
+        outcomes.push(outcome);
     }
     let doc = StudyResult {
         tool_version: TOOL_VERSION.to_string(),
@@ -116,12 +123,12 @@ pub fn run_study(study_path: &Path, out: &Path, force: bool, quiet: bool) -> any
     aftercast_report::write_json(&out.join("result.json"), &doc)?;
     let charts = out.join("charts");
     let mut analyses = Vec::new();
-    for e in &doc.analyses {
+    for (e, outcome) in doc.analyses.iter().zip(&outcomes) {
         let label = e.describe.clone().unwrap_or_else(|| e.headline.clone());
         // The report groups analyses by their question, shown in the study's own words.
         let question = e.question.as_ref().map(|k| study.questions.get(k).cloned().unwrap_or_else(|| k.clone()));
-        let a = crate::common::report_analysis(e.result.clone(), &label, question, &e.name);
-        aftercast_report::charts::write_all(&a.result, &a.extras, &charts, &a.stem)?;
+        let a = crate::common::report_analysis(outcome, &label, question, &e.name);
+        aftercast_report::charts::write_all(&a.result, &a.draws, &a.figures, &charts, &a.stem)?;
         analyses.push(a);
     }
     let input = aftercast_report::html::ReportInput {

@@ -110,10 +110,10 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         }
     };
     let predictors: Vec<String> = comma_list(&a.predictors);
+    let inf = a.common.inference();
     let params = SynthParams::new()
         .method(method)
-        .level(a.common.level)
-        .seed(a.common.seed)
+        .inference(inf)
         .end(end)
         .exclude(comma_list(&a.exclude))
         .placebo_exclude_factor(a.placebo_exclude)
@@ -124,22 +124,24 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         .sdid_placebo_reps(usize::try_from(a.common.draws).unwrap_or(usize::MAX).clamp(20, 500))
         .check()
         .map_err(bad_input)?;
-    let opts = RunOptions {
-        rope: a.common.rope,
-        threshold: a.common.threshold,
-        inputs: vec![table.info()],
-        robustness: !a.no_robustness,
+    let opts = RunOptions { robustness: !a.no_robustness };
+    let (fit, est) = aftercast_synth::run(&panel, &treated, start, &params, opts).map_err(bad_input)?;
+    let d = &est.diagnostics;
+    let rmspe = d.pre_rmspe;
+    let who = if treated.len() == 1 {
+        treated[0].clone()
+    } else {
+        format!("{} treated units (numbers per treated unit, and their total)", treated.len())
     };
-    let (fit, result) = aftercast_synth::run(&panel, &treated, start, &params, &opts).map_err(bad_input)?;
     let headline = format!(
-        "effect on '{}' of {} from {} by synthetic control ({}; {} donors, {} with weight, pre-period RMSPE {:.4})",
+        "effect on '{}' of {who} from {} by synthetic control ({}; {} donors, {} with weight, pre-period RMSPE {})",
         a.outcome,
-        treated.join(", "),
         a.start,
         method.name(),
         fit.donors.len(),
-        fit.units.iter().map(|u| u.nonzero_donors).max().unwrap_or(0),
-        fit.units.first().map(|u| u.pre_rmspe).unwrap_or(f64::NAN)
+        d.nonzero_donors,
+        aftercast_report::numbers::signed(rmspe, aftercast_report::numbers::decimals_for(&[rmspe]))
+            .trim_start_matches('+'),
     );
-    Ok(crate::verbs::Outcome { result, headline })
+    crate::verbs::Outcome::new(est, &inf, vec![table.info()], headline)
 }

@@ -6,7 +6,7 @@
 //!   [`weights_chart`], [`propensity_chart`], [`balance_chart`], [`rosenbaum_chart`],
 //!   [`posterior_chart`], [`estimates_chart`], [`power_chart`], [`mde_chart`]);
 //! - [`charts_for`] / [`write_all`], which pick what to draw from an [`AnalysisResult`](aftercast_core::result::AnalysisResult) plus the
-//!   [`ChartExtras`] a verb can hand over (draws, placebo gaps, backtest grids).
+//!   kept draws and typed figure data (`aftercast_core::estimate::Figures`).
 //!
 //! A chart is written with [`Chart::to_png`], [`Chart::to_svg`] or [`Chart::write`]. Odd data
 //! (empty paths, NaN summaries, a single draw) never panics: the chart draws a note instead.
@@ -15,7 +15,7 @@ mod pick;
 mod render;
 pub mod theme;
 
-pub use pick::{ChartExtras, MdePoint, PowerPoint, charts_for, write_all};
+pub use pick::{charts_for, write_all};
 
 use crate::{ReportError, write_atomic};
 use aftercast_core::result::Summary;
@@ -194,6 +194,7 @@ pub(crate) struct PosteriorPlot {
     pub histogram: Option<(Vec<f64>, Vec<f64>)>,
     pub summary: Summary,
     pub rope: Option<(f64, f64)>,
+    pub threshold: Option<f64>,
     pub x_label: String,
     pub x_format: ValueFormat,
 }
@@ -260,6 +261,14 @@ impl Chart {
     /// Whether the chart only carries a note (no data could be drawn).
     pub fn is_note(&self) -> bool {
         matches!(self.body, Body::Note(_))
+    }
+
+    /// The bar shares of a distribution chart's histogram (they sum to one), if it has one.
+    pub fn histogram_shares(&self) -> Option<&[f64]> {
+        match &self.body {
+            Body::Posterior(p) => p.histogram.as_ref().map(|(_, shares)| shares.as_slice()),
+            _ => None,
+        }
     }
 
     /// Change the pixel size.
@@ -753,8 +762,6 @@ pub enum PosteriorSource<'a> {
     Draws(&'a [f64]),
     /// A ready histogram: bin edges (bins + 1) and counts or shares per bin.
     Histogram(&'a [f64], &'a [f64]),
-    /// No draws kept: the interval is drawn from the summary alone.
-    SummaryOnly,
 }
 
 fn histogram_of(draws: &[f64]) -> Option<(Vec<f64>, Vec<f64>)> {
@@ -778,19 +785,21 @@ fn histogram_of(draws: &[f64]) -> Option<(Vec<f64>, Vec<f64>)> {
     Some((edges, counts))
 }
 
-/// Posterior (bootstrap) distribution of an effect with its highest-density interval and the
-/// ROPE marked; with [`PosteriorSource::SummaryOnly`] (or fewer than two distinct draws) only
-/// the intervals of the summary are drawn.
+/// Distribution of an effect over its draws with the point answer, the highest-density interval,
+/// the ROPE and (when given) a threshold marked; when the draws do not vary (fewer than two
+/// distinct values) only the intervals of the summary are drawn.
+#[allow(clippy::too_many_arguments)]
 pub fn posterior_chart(
     name: &str,
     source: PosteriorSource<'_>,
     summary: &Summary,
     level: f64,
     rope: Option<(f64, f64)>,
+    threshold: Option<f64>,
     quantity: &str,
     format: ValueFormat,
 ) -> Chart {
-    let values = [summary.median, summary.hdi_lower, summary.hdi_upper];
+    let values = [summary.estimate, summary.hdi_lower, summary.hdi_upper];
     let histogram = match source {
         PosteriorSource::Draws(d) => histogram_of(d),
         PosteriorSource::Histogram(e, c) => {
@@ -800,7 +809,6 @@ pub fn posterior_chart(
                 && c.iter().sum::<f64>() > 0.0;
             ok.then(|| (e.to_vec(), c.to_vec()))
         }
-        PosteriorSource::SummaryOnly => None,
     };
     if histogram.is_none() && values.iter().any(|v| !v.is_finite()) {
         return Chart::note(
@@ -814,31 +822,29 @@ pub fn posterior_chart(
         (e, c.iter().map(|v| v / total).collect::<Vec<f64>>())
     });
     let pct = format!("{:.0}%", level * 100.0);
-    let caption = match (&histogram, rope) {
-        (Some(_), Some(_)) => format!(
-            "How the {quantity} is spread over the bootstrap draws; the dark bars hold the {pct} highest-density interval and the ochre strip is the range too small to matter (ROPE)."
+    let rope_words = if rope.is_some() { "; the ochre strip is the range too small to matter (ROPE)" } else { "" };
+    let caption = match &histogram {
+        Some(_) => format!(
+            "How the {quantity} is spread over the draws; the dark bars hold the {pct} highest-density interval, on which the verdict is judged{rope_words}."
         ),
-        (Some(_), None) => format!(
-            "How the {quantity} is spread over the bootstrap draws; the dark bars hold the {pct} highest-density interval."
-        ),
-        (None, Some(_)) => format!(
-            "The {pct} highest-density interval (thick) and equal-tailed interval (thin) of the {quantity}, drawn from the summary because no draws were kept; the ochre strip is the ROPE."
-        ),
-        (None, None) => format!(
-            "The {pct} highest-density interval (thick) and equal-tailed interval (thin) of the {quantity}, drawn from the summary because no draws were kept."
+        None => format!(
+            "The draws of the {quantity} hardly vary, so only its {pct} highest-density interval (thick) and equal-tailed interval (thin) are drawn{rope_words}."
         ),
     };
     let v = |x: f64| theme::fmt_value(x, format);
-    let mut median = format!("median {}", v(summary.median));
+    let mut point = format!("estimate {}", v(summary.estimate));
     if summary.prob_positive.is_finite() {
-        median.push_str(&format!(", P(above 0) {:.0}%", summary.prob_positive * 100.0));
+        point.push_str(&format!(", chance above 0: {:.0}%", summary.prob_positive * 100.0));
     }
     let mut legend = vec![
         (format!("{pct} HDI [{}, {}]", v(summary.hdi_lower), v(summary.hdi_upper)), theme::TEAL, Swatch::Band),
-        (median, theme::INK, Swatch::Line),
+        (point, theme::INK, Swatch::Line),
     ];
     if let Some((a, b)) = rope {
         legend.push((format!("ROPE [{}, {}]", v(a), v(b)), theme::OCHRE, Swatch::Band));
+    }
+    if let (Some(t), Some(pa)) = (threshold, summary.prob_above_threshold) {
+        legend.push((format!("threshold {}: chance above {:.0}%", v(t), pa * 100.0), theme::BRICK, Swatch::Dashed));
     }
     let mut c = Chart::new(
         name,
@@ -848,6 +854,7 @@ pub fn posterior_chart(
             histogram,
             summary: *summary,
             rope,
+            threshold: threshold.filter(|_| summary.prob_above_threshold.is_some()),
             x_label: quantity.to_string(),
             x_format: format,
         }),

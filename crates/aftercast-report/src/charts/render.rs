@@ -542,7 +542,7 @@ fn posterior<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, p: &PosteriorPlo
     let s = &p.summary;
     let base: Vec<f64> = match &p.histogram {
         Some((edges, _)) => vec![edges[0], edges[edges.len() - 1], s.hdi_lower, s.hdi_upper],
-        None => vec![s.lower, s.upper, s.hdi_lower, s.hdi_upper, s.median],
+        None => vec![s.lower, s.upper, s.hdi_lower, s.hdi_upper, s.estimate],
     };
     let Some(mut xr) = extent(base.iter()) else { return note(area, "The summary holds no finite interval.") };
     if xr.1 - xr.0 <= 0.0 {
@@ -629,9 +629,9 @@ fn posterior<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, p: &PosteriorPlo
                     .map_err(e)?;
                 }
             }
-            if s.median.is_finite() {
+            if s.estimate.is_finite() {
                 cc.draw_series(std::iter::once(PathElement::new(
-                    vec![(s.median, 0.0), (s.median, 1.06 * m)],
+                    vec![(s.estimate, 0.0), (s.estimate, 1.06 * m)],
                     INK.stroke_width(2),
                 )))
                 .map_err(e)?;
@@ -654,17 +654,14 @@ fn posterior<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, p: &PosteriorPlo
                 )))
                 .map_err(e)?;
             }
-            if s.median.is_finite() {
-                cc.draw_series(std::iter::once(Circle::new((s.median, y), 8, INK.filled()))).map_err(e)?;
+            if s.estimate.is_finite() {
+                cc.draw_series(std::iter::once(Circle::new((s.estimate, y), 8, INK.filled()))).map_err(e)?;
             }
-            let el = EmptyElement::at((x0, 0.0))
-                + Text::new(
-                    "No draws were kept: the intervals come from the summary.",
-                    (8, -24),
-                    font(NOTE_SIZE, false, &MUTED),
-                );
-            cc.draw_series(std::iter::once(el)).map_err(e)?;
         }
+    }
+    if let Some(t) = p.threshold.filter(|t| *t >= x0 && *t <= x1) {
+        cc.draw_series(DashedLineSeries::new(vec![(t, y0.max(0.0)), (t, y1)], 3, 3, theme::BRICK.stroke_width(2)))
+            .map_err(e)?;
     }
     if let (Some((a, b)), false) = (p.rope, rope_shown) {
         let side = if b < x0 { "left" } else { "right" };

@@ -115,7 +115,7 @@ pub fn fmt_tick(v: f64, span: f64, format: ValueFormat) -> String {
 /// Format a value for an annotation (the interval numbers drawn in a chart).
 pub fn fmt_value(v: f64, format: ValueFormat) -> String {
     match format {
-        ValueFormat::Percent => crate::fmt_pct(v),
+        ValueFormat::Percent => crate::numbers::percent(v),
         ValueFormat::Share => {
             if v.is_finite() {
                 format!("{v:.3}")
@@ -123,7 +123,7 @@ pub fn fmt_value(v: f64, format: ValueFormat) -> String {
                 "n/a".into()
             }
         }
-        ValueFormat::Number => crate::fmt_signed(v),
+        ValueFormat::Number => crate::numbers::signed(v, crate::numbers::decimals_for(&[v])),
     }
 }
 

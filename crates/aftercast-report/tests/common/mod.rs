@@ -4,9 +4,12 @@
 //! experiment and a backtest grid.
 #![allow(dead_code)]
 
+use aftercast_core::estimate::{
+    Figures, KeptDraws, MdePoint, NamedCurve, Per, PowerPoint, PropensityHistogram, Scope, SensitivityCurve,
+};
 use aftercast_core::result::{
-    AnalysisResult, BalanceRow, EffectBlock, EstimateRow, PathPoint, PlaceboSummary, Rope, RopeUnits, SampleCounts,
-    Summary, UnitWeight, Verdict,
+    AnalysisResult, BalanceRow, EffectBlock, EstimateRow, IntervalKind, Judged, JudgedOn, PathPoint, PlaceboSummary,
+    Rope, RopeUnits, SampleCounts, Summary, UnitWeight, Verdict,
 };
 use aftercast_core::table::InputInfo;
 use aftercast_core::time::TimePoint;
@@ -34,6 +37,7 @@ impl Lcg {
 pub fn summary(mean: f64, sd: f64) -> Summary {
     let z = 1.6448536269514722;
     Summary {
+        estimate: mean,
         mean,
         median: mean,
         sd,
@@ -73,9 +77,19 @@ fn base(verb: &str, method: &str, effect: EffectBlock, verdict: Verdict, rope: R
             rows: 162,
         }],
         estimand: None,
+        scope: Scope::series(),
+        judged_on: JudgedOn {
+            quantity: match (rope.units, effect.relative.is_some()) {
+                (RopeUnits::Percent, true) => Judged::Relative,
+                (RopeUnits::Percent, false) => Judged::Sign,
+                (RopeUnits::Outcome, _) => Judged::Average,
+            },
+            interval: IntervalKind::Hdi,
+        },
         effect,
         verdict,
         rope,
+        threshold: None,
         diagnostics: serde_json::Map::new(),
         warnings: vec![],
         path: None,
@@ -86,7 +100,6 @@ fn base(verb: &str, method: &str, effect: EffectBlock, verdict: Verdict, rope: R
         truth: None,
         estimates: None,
         assumptions: vec![],
-        extra: serde_json::Map::new(),
     }
 }
 
@@ -129,6 +142,7 @@ pub fn forecast() -> AnalysisResult {
         average: summary(39.2, 6.1),
         cumulative: Some(summary(1646.0, 256.0)),
         relative: Some(summary(0.0352, 0.0055)),
+        total: None,
     };
     let mut r = base("forecast", "structural", effect, Verdict::Gain, Rope::default());
     r.estimand = Some("effect on the series over the post-period (observed minus counterfactual)".into());
@@ -183,6 +197,7 @@ pub fn synthetic() -> AnalysisResult {
         average: summary(-15.8, 3.9),
         cumulative: Some(summary(-190.0, 41.0)),
         relative: Some(summary(-0.19, 0.045)),
+        total: None,
     };
     let mut r =
         base("synthetic", "weights", effect, Verdict::Loss, Rope { low: -0.02, high: 0.02, units: RopeUnits::Percent });
@@ -201,13 +216,6 @@ pub fn synthetic() -> AnalysisResult {
         .collect(),
     );
     r.placebo = Some(PlaceboSummary { p_value: 1.0 / 13.0, rank: 1, units: 13 });
-    let runs: Vec<serde_json::Value> = (0..12)
-        .map(|k| {
-            let gap: Vec<f64> = years.iter().map(|y| if *y >= 1989 { 5.0 * rng.normal() } else { 2.5 * rng.normal() }).collect();
-            json!({"unit": format!("Donor {k}"), "pre_rmspe": 2.0, "post_rmspe": 5.0, "ratio": 2.5, "gap": gap, "kept": k != 11})
-        })
-        .collect();
-    r.extra.insert("placebo_runs".into(), json!(runs));
     r.assumptions = vec![
         "No donor was affected by the programme.".into(),
         "The treated unit lies in the convex hull of the donors before 1989.".into(),
@@ -222,6 +230,7 @@ pub fn matching() -> AnalysisResult {
         average: summary(61.0, 18.0),
         cumulative: Some(summary(61.0 * 412.0, 18.0 * 412.0)),
         relative: Some(summary(0.071, 0.021)),
+        total: None,
     };
     let mut r = base(
         "match",
@@ -231,6 +240,7 @@ pub fn matching() -> AnalysisResult {
         Rope { low: -25.0, high: 25.0, units: RopeUnits::Outcome },
     );
     r.estimand = Some("ATT".into());
+    r.scope = Scope { per: Per::Unit, units: 412 };
     r.balance = Some(
         [
             ("age", 0.42, 0.03),
@@ -250,21 +260,6 @@ pub fn matching() -> AnalysisResult {
         .collect(),
     );
     r.sample = Some(SampleCounts { treated: 420, controls_used: 398, treated_dropped: 8 });
-    let edges: Vec<f64> = (0..=20).map(|i| f64::from(i) / 20.0).collect();
-    let bump = |c: f64, w: f64| -> Vec<f64> {
-        let v: Vec<f64> = (0..20).map(|i| (-(((f64::from(i) + 0.5) / 20.0 - c) / w).powi(2)).exp()).collect();
-        let s: f64 = v.iter().sum();
-        v.iter().map(|x| x / s).collect()
-    };
-    r.diagnostics.insert(
-        "propensity_bins".into(),
-        json!({"edges": edges, "treated_before": bump(0.62, 0.18), "control_before": bump(0.3, 0.16), "treated_after": bump(0.55, 0.17), "control_after": bump(0.53, 0.17)}),
-    );
-    let grid: Vec<serde_json::Value> = (0..=20)
-        .map(|i| 1.0 + 0.1 * f64::from(i))
-        .map(|g: f64| json!({"gamma": g, "p_upper": (0.001 * g.powf(6.0)).min(1.0)}))
-        .collect();
-    r.diagnostics.insert("rosenbaum".into(), json!({"pairs_used": 412, "zero_pairs": 0, "statistic": 51234.0, "method": "normal", "grid": grid, "alpha": 0.05}));
     r.diagnostics.insert("standard_error".into(), json!(18.0));
     r.warnings = vec!["8 of 420 treated customers had no control within the caliper and were left out.".into()];
     r.assumptions = vec!["No unmeasured trait drives both joining and spending (no hidden confounding).".into()];
@@ -273,7 +268,7 @@ pub fn matching() -> AnalysisResult {
 
 /// Comparison with last year's randomized holdout.
 pub fn compare() -> AnalysisResult {
-    let effect = EffectBlock { average: summary(55.0, 20.0), cumulative: None, relative: None };
+    let effect = EffectBlock { average: summary(55.0, 20.0), cumulative: None, relative: None, total: None };
     let mut r = base(
         "compare",
         "experiment",
@@ -291,9 +286,16 @@ pub fn compare() -> AnalysisResult {
                 EstimateRow {
                     method: (*m).into(),
                     summary: s,
+                    setting: "pool".into(),
+                    estimand: "ATT".into(),
                     bias: mean - truth.median,
-                    covers_truth: s.lower <= truth.median && truth.median <= s.upper,
-                    extra: Default::default(),
+                    relative_bias: (mean - truth.median) / truth.median,
+                    bias_in_truth_sd: (mean - truth.median) / truth.sd,
+                    covers_truth: s.hdi_lower <= truth.median && truth.median <= s.hdi_upper,
+                    verdict: Verdict::GainButSmall,
+                    verdict_agrees: true,
+                    diagnostics: Default::default(),
+                    warnings: Vec::new(),
                 }
             })
             .collect(),
@@ -301,25 +303,82 @@ pub fn compare() -> AnalysisResult {
     r
 }
 
-/// Placebo backtest grid: power by effect and post length, MDE per length.
+/// Placebo backtest result (its grid is in [`inputs_for`]).
 pub fn backtest() -> AnalysisResult {
-    let effect = EffectBlock { average: summary(0.0, 0.01), cumulative: None, relative: Some(summary(0.0, 0.01)) };
-    let mut r = base("backtest", "structural", effect, Verdict::Negligible, Rope::default());
-    let mut power = Vec::new();
-    let mut mde = Vec::new();
-    for len in [7.0f64, 14.0, 28.0, 56.0] {
-        let se = 0.02 / len.sqrt();
-        for k in 0..=10 {
-            let eff = 0.002 * f64::from(k);
-            let p = 0.5 * (1.0 + erf((eff / se - 1.645) / std::f64::consts::SQRT_2));
-            power.push(json!({"post_length": len, "effect": eff, "power": p}));
+    let effect =
+        EffectBlock { average: summary(0.0, 0.01), cumulative: None, relative: Some(summary(0.0, 0.01)), total: None };
+    base("backtest", "structural", effect, Verdict::Negligible, Rope::default())
+}
+
+fn normal_draws(seed: u64, n: usize, mean: f64, sd: f64) -> Vec<f64> {
+    let mut rng = Lcg::new(seed);
+    (0..n).map(|_| mean + sd * rng.normal()).collect()
+}
+
+/// The kept draws and figure data of a fixture, as the summary path hands them over.
+pub fn inputs_for(stem: &str) -> (KeptDraws, Figures) {
+    let mut figures = Figures::default();
+    let draws = match stem {
+        "forecast" => {
+            let (rel, avg) = forecast_draws(4000);
+            KeptDraws { relative: rel, average: avg, ..KeptDraws::default() }
         }
-        mde.push(json!({"post_length": len, "mde": 2.486 * se}));
-    }
-    r.extra.insert("power".into(), json!(power));
-    r.extra.insert("mde".into(), json!(mde));
-    r.extra.insert("false_positive_rate".into(), json!(0.07));
-    r
+        "synthetic" => {
+            let mut rng = Lcg::new(5);
+            figures.placebo_gaps = (0..11)
+                .map(|k| NamedCurve {
+                    name: format!("Donor {k}"),
+                    values: (1970..=2000)
+                        .map(|y| if y >= 1989 { 5.0 * rng.normal() } else { 2.5 * rng.normal() })
+                        .collect(),
+                })
+                .collect();
+            KeptDraws {
+                relative: normal_draws(6, 2000, -0.19, 0.045),
+                average: normal_draws(7, 2000, -15.8, 3.9),
+                ..KeptDraws::default()
+            }
+        }
+        "match" => {
+            let edges: Vec<f64> = (0..=20).map(|i| f64::from(i) / 20.0).collect();
+            let bump = |c: f64, w: f64| -> Vec<f64> {
+                let v: Vec<f64> = (0..20).map(|i| (-(((f64::from(i) + 0.5) / 20.0 - c) / w).powi(2)).exp()).collect();
+                let s: f64 = v.iter().sum();
+                v.iter().map(|x| x / s).collect()
+            };
+            figures.propensity = Some(PropensityHistogram {
+                edges,
+                treated_before: bump(0.62, 0.18),
+                control_before: bump(0.3, 0.16),
+                treated_after: bump(0.55, 0.17),
+                control_after: bump(0.53, 0.17),
+            });
+            let gamma: Vec<f64> = (0..=20).map(|i| 1.0 + 0.1 * f64::from(i)).collect();
+            let p_upper = gamma.iter().map(|g| (0.001 * g.powf(6.0)).min(1.0)).collect();
+            figures.sensitivity = Some(SensitivityCurve { gamma, p_upper, alpha: 0.05 });
+            KeptDraws { average: normal_draws(8, 2000, 61.0, 18.0), ..KeptDraws::default() }
+        }
+        "compare" => KeptDraws { average: normal_draws(9, 2000, 55.0, 20.0), ..KeptDraws::default() },
+        "backtest" => {
+            for len in [7.0f64, 14.0, 28.0, 56.0] {
+                let se = 0.02 / len.sqrt();
+                for k in 0..=10 {
+                    let eff = 0.002 * f64::from(k);
+                    let p = 0.5 * (1.0 + erf((eff / se - 1.645) / std::f64::consts::SQRT_2));
+                    figures.power.push(PowerPoint { post_length: len, effect: eff, power: p });
+                }
+                figures.mde.push(MdePoint { post_length: len, mde: 2.486 * se });
+            }
+            figures.lifts_are_relative = true;
+            KeptDraws {
+                relative: normal_draws(10, 500, 0.0, 0.01),
+                average: normal_draws(11, 500, 0.0, 0.01),
+                ..KeptDraws::default()
+            }
+        }
+        _ => KeptDraws::default(),
+    };
+    (draws, figures)
 }
 
 /// Every fixture with a file stem.

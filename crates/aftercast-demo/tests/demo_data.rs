@@ -1,13 +1,10 @@
-//! Tests of the invented demo scenario (`demo-data/`, generator in `src/demo/`).
+//! Tests of the invented demo scenario (`demo-data/`, generator in this crate's `src/`).
 //!
 //! The scenario is regenerated once per test run into a scratch folder; every test reads the
 //! regenerated files like a user would (plain CSV text) and re-computes the true effects that
 //! `ScenarioTruth` states, so neither the files nor the README can drift from the generator.
 
-#[path = "../src/demo/mod.rs"]
-#[allow(dead_code)]
-mod demo;
-
+use aftercast_demo as demo;
 use chrono::{Datelike, Duration, NaiveDate, NaiveDateTime, Weekday};
 use std::collections::{BTreeMap, HashMap, HashSet};
 use std::path::{Path, PathBuf};

@@ -18,7 +18,8 @@
 use chrono::{Duration, NaiveDate};
 use serde::Serialize;
 
-use super::util::{cents, date, iso, std_normal, uniform};
+use crate::error::DemoResult;
+use crate::util::{cents, date, iso, std_normal, uniform};
 use aftercast_resample::rng::Stream;
 
 /// Invented region names.
@@ -160,7 +161,7 @@ fn season(t_days: f64) -> f64 {
 }
 
 /// Generates `regions_weekly.csv`.
-pub fn generate(seed: u64, stream: u64) -> anyhow::Result<RegionsData> {
+pub fn generate(seed: u64, stream: u64) -> DemoResult<RegionsData> {
     let mut rng = Stream::new(seed, stream);
     let first: NaiveDate = date(2023, 7, 3)?;
     let origin = date(2024, 1, 1)?;

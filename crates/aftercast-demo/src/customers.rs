@@ -28,7 +28,8 @@
 
 use serde::Serialize;
 
-use super::util::{bernoulli, categorical, cents, fix_sum, gamma_mean, logistic, poisson, std_normal, uniform};
+use crate::error::DemoResult;
+use crate::util::{bernoulli, categorical, cents, fix_sum, gamma_mean, logistic, poisson, std_normal, uniform};
 use aftercast_resample::rng::Stream;
 
 /// Sales areas (the `region` column of the customer files).
@@ -158,7 +159,7 @@ struct Customer {
     engagement: f64,
 }
 
-fn draw_customer(rng: &mut Stream) -> anyhow::Result<Customer> {
+fn draw_customer(rng: &mut Stream) -> DemoResult<Customer> {
     let area = categorical(rng, &AREA_WEIGHTS);
     let age = categorical(rng, &AGE_WEIGHTS);
     let tenure = (1.0 + gamma_mean(rng, 1.5, 30.0)?.floor()).min(240.0) as u32;
@@ -172,7 +173,7 @@ fn draw_customer(rng: &mut Stream) -> anyhow::Result<Customer> {
 }
 
 /// 90-day spend without treatment, in cents.
-fn draw_untreated_spend(rng: &mut Stream, c: &Customer) -> anyhow::Result<i64> {
+fn draw_untreated_spend(rng: &mut Stream, c: &Customer) -> DemoResult<i64> {
     let sp = (c.spend_pre as f64 / 100.0).ln_1p();
     let vp = (c.visits_pre as f64).ln_1p();
     let p = logistic(-0.7 + 0.9 * c.engagement + 0.25 * sp + 0.15 * vp);
@@ -190,7 +191,7 @@ fn draw_raw_effect(
     base: f64,
     convert_p: f64,
     convert_mean: f64,
-) -> anyhow::Result<f64> {
+) -> DemoResult<f64> {
     let converts = bernoulli(rng, convert_p);
     let converted = gamma_mean(rng, 2.0, convert_mean)?;
     Ok(if y0_cents > 0 {
@@ -236,7 +237,7 @@ fn mean_cents(v: impl Iterator<Item = i64>) -> f64 {
 }
 
 /// Generates `members.csv` (50,000 customers).
-pub fn generate_members(seed: u64, stream: u64) -> anyhow::Result<MembersData> {
+pub fn generate_members(seed: u64, stream: u64) -> DemoResult<MembersData> {
     let mut rng = Stream::new(seed, stream);
     let n = 50_000;
     let mut cust = Vec::with_capacity(n);
@@ -295,7 +296,7 @@ pub fn generate_members(seed: u64, stream: u64) -> anyhow::Result<MembersData> {
 
 /// Generates `past_test/experiment.csv` (12,000 customers, 6,000 per arm) and
 /// `past_test/pool.csv` (20,000 customers who never got the offer; `arm` is `control`).
-pub fn generate_past_test(seed: u64, stream: u64) -> anyhow::Result<PastTestData> {
+pub fn generate_past_test(seed: u64, stream: u64) -> DemoResult<PastTestData> {
     let mut rng = Stream::new(seed, stream);
     let n = 12_000;
     let n_pool = 20_000;

@@ -18,7 +18,8 @@
 use chrono::{Datelike, Duration, NaiveDate, Weekday};
 use serde::Serialize;
 
-use super::util::{cents, date, iso, poisson, std_normal, to_cents};
+use crate::error::{DemoError, DemoResult};
+use crate::util::{cents, date, iso, poisson, std_normal, to_cents};
 use aftercast_resample::rng::Stream;
 
 /// Lift on the launch day.
@@ -122,12 +123,12 @@ struct Holiday {
     catalogue: f64,
 }
 
-fn nth_weekday(y: i32, m: u32, wd: Weekday, n: u32) -> anyhow::Result<NaiveDate> {
+fn nth_weekday(y: i32, m: u32, wd: Weekday, n: u32) -> DemoResult<NaiveDate> {
     NaiveDate::from_weekday_of_month_opt(y, m, wd, n as u8)
-        .ok_or_else(|| anyhow::anyhow!("no weekday {n} {wd:?} in {y}-{m}"))
+        .ok_or_else(|| DemoError::Invalid { what: format!("weekday {n} {wd:?} of {y}-{m}") })
 }
 
-fn last_weekday(y: i32, m: u32, wd: Weekday) -> anyhow::Result<NaiveDate> {
+fn last_weekday(y: i32, m: u32, wd: Weekday) -> DemoResult<NaiveDate> {
     let first_next = if m == 12 { date(y + 1, 1, 1)? } else { date(y, m + 1, 1)? };
     let mut d = first_next - Duration::days(1);
     while d.weekday() != wd {
@@ -136,7 +137,7 @@ fn last_weekday(y: i32, m: u32, wd: Weekday) -> anyhow::Result<NaiveDate> {
     Ok(d)
 }
 
-fn easter(y: i32) -> anyhow::Result<NaiveDate> {
+fn easter(y: i32) -> DemoResult<NaiveDate> {
     // Anonymous Gregorian algorithm (Meeus/Jones/Butcher).
     let a = y % 19;
     let b = y / 100;
@@ -155,7 +156,7 @@ fn easter(y: i32) -> anyhow::Result<NaiveDate> {
     date(y, month as u32, day as u32)
 }
 
-fn holidays(first: NaiveDate, last: NaiveDate) -> anyhow::Result<Vec<Holiday>> {
+fn holidays(first: NaiveDate, last: NaiveDate) -> DemoResult<Vec<Holiday>> {
     let mut out = Vec::new();
     for y in first.year()..=last.year() {
         let e = easter(y)?;
@@ -209,7 +210,7 @@ fn weather_season(t: f64) -> f64 {
 }
 
 /// Generates `app_daily.csv` and `calendar.csv`.
-pub fn generate(seed: u64, stream: u64) -> anyhow::Result<AppData> {
+pub fn generate(seed: u64, stream: u64) -> DemoResult<AppData> {
     let mut rng = Stream::new(seed, stream);
     let first = date(2024, 1, 1)?;
     let last = date(2026, 6, 30)?;

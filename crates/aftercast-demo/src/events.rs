@@ -22,7 +22,8 @@
 
 use serde::Serialize;
 
-use super::util::{
+use crate::error::DemoResult;
+use crate::util::{
     bernoulli, categorical, cents, date, epoch_seconds, fix_sum, gamma_mean, iso_timestamp, logistic, poisson,
     std_normal, uniform,
 };
@@ -135,7 +136,7 @@ fn time_in_day(rng: &mut Stream, day_start: i64) -> i64 {
 }
 
 /// Generates `events.csv` and `exposures.csv`.
-pub fn generate(seed: u64, stream: u64) -> anyhow::Result<EventsData> {
+pub fn generate(seed: u64, stream: u64) -> DemoResult<EventsData> {
     let mut rng = Stream::new(seed, stream);
     let start = epoch_seconds(date(2026, 1, 1)?);
     let end = epoch_seconds(date(2026, 4, 20)?);

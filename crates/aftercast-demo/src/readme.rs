@@ -1,8 +1,8 @@
 //! `README.md` of the demo folder, written from the [`ScenarioTruth`] so that the numbers it
 //! states are always the ones in the files.
 
-use super::ScenarioTruth;
-use super::{DEMO_SEED, STREAM_APP, STREAM_EVENTS, STREAM_MEMBERS, STREAM_PAST_TEST, STREAM_REGIONS};
+use crate::ScenarioTruth;
+use crate::{DEMO_SEED, STREAM_APP, STREAM_EVENTS, STREAM_MEMBERS, STREAM_PAST_TEST, STREAM_REGIONS};
 
 fn money(x: f64) -> String {
     let neg = x < 0.0;

@@ -1,4 +1,5 @@
-//! The invented demo scenario: Fernhill Outfitters, a fictional outdoor-gear retailer.
+//! aftercast-demo: the invented demo scenario, Fernhill Outfitters, a fictional outdoor-gear
+//! retailer.
 //!
 //! Everything here is made up and generated deterministically from fixed seeds, so the files
 //! under `demo-data/` are reproduced byte for byte by [`write_scenario`]. Every true effect is
@@ -12,15 +13,23 @@
 //!   non-experimental pool ([`customers`]).
 //! - `events.csv`, `exposures.csv`: the Trail Planner event log ([`events`]).
 //! - `README.md`: the story, the columns and every true effect ([`readme`]).
+//!
+//! ```no_run
+//! let truth = aftercast_demo::write_scenario(std::path::Path::new("demo-out"))?;
+//! assert_eq!(truth.loyalty.sample_att, 6.0);
+//! # Ok::<(), aftercast_demo::DemoError>(())
+//! ```
 
 pub mod app;
 pub mod customers;
+pub mod error;
 pub mod events;
 pub mod readme;
 pub mod regions;
 pub mod util;
 
-use anyhow::Context;
+pub use error::{DemoError, DemoResult};
+
 use serde::Serialize;
 use std::path::Path;
 
@@ -75,10 +84,13 @@ pub struct ScenarioTruth {
 /// The output is a pure function of [`DEMO_SEED`]: two calls write identical bytes.
 ///
 /// # Errors
-/// Fails when `dir` or a file in it cannot be created or written.
-pub fn write_scenario(dir: &Path) -> anyhow::Result<ScenarioTruth> {
-    std::fs::create_dir_all(dir.join("past_test"))
-        .with_context(|| format!("creating the demo folder {}", dir.display()))?;
+/// [`DemoError::Io`] when `dir` or a file in it cannot be created or written.
+pub fn write_scenario(dir: &Path) -> DemoResult<ScenarioTruth> {
+    std::fs::create_dir_all(dir.join("past_test")).map_err(|source| DemoError::Io {
+        path: dir.to_path_buf(),
+        what: "creating the demo folder".to_string(),
+        source,
+    })?;
     let mut files = Vec::new();
 
     let app = app::generate(DEMO_SEED, STREAM_APP)?;

@@ -1,26 +1,40 @@
 //! Small helpers shared by the demo generators: file writing, fixed-decimal formatting,
 //! dates and a few random draws.
 
-use anyhow::Context;
 use chrono::NaiveDate;
 use rand::{Rng, RngExt};
 use rand_distr::{Distribution, Gamma, Poisson, StandardNormal};
 use std::path::Path;
 
-use super::WrittenFile;
+use crate::WrittenFile;
+use crate::error::{DemoError, DemoResult};
 
 /// Writes `text` to `dir/rel` through a temporary name and a rename.
-pub fn write_file(dir: &Path, rel: &str, text: &str, rows: usize) -> anyhow::Result<WrittenFile> {
+///
+/// # Errors
+/// [`DemoError::Io`] when the temporary file cannot be written or renamed.
+pub fn write_file(dir: &Path, rel: &str, text: &str, rows: usize) -> DemoResult<WrittenFile> {
     let path = dir.join(rel);
     let tmp = dir.join(format!("{rel}.tmp"));
-    std::fs::write(&tmp, text.as_bytes()).with_context(|| format!("writing demo file {}", tmp.display()))?;
-    std::fs::rename(&tmp, &path).with_context(|| format!("renaming {} to {}", tmp.display(), path.display()))?;
+    std::fs::write(&tmp, text.as_bytes()).map_err(|source| DemoError::Io {
+        path: tmp.clone(),
+        what: "writing a demo file".to_string(),
+        source,
+    })?;
+    std::fs::rename(&tmp, &path).map_err(|source| DemoError::Io {
+        path: tmp.clone(),
+        what: format!("renaming to {}", path.display()),
+        source,
+    })?;
     Ok(WrittenFile { path: rel.to_string(), rows })
 }
 
 /// A calendar date from constant parts (the demo only uses valid constant dates).
-pub fn date(y: i32, m: u32, d: u32) -> anyhow::Result<NaiveDate> {
-    NaiveDate::from_ymd_opt(y, m, d).with_context(|| format!("invalid demo date {y}-{m}-{d}"))
+///
+/// # Errors
+/// [`DemoError::Invalid`] when the parts are not a calendar date.
+pub fn date(y: i32, m: u32, d: u32) -> DemoResult<NaiveDate> {
+    NaiveDate::from_ymd_opt(y, m, d).ok_or_else(|| DemoError::Invalid { what: format!("{y}-{m}-{d}") })
 }
 
 /// `YYYY-MM-DD`.
@@ -71,18 +85,28 @@ pub fn bernoulli<R: Rng + ?Sized>(rng: &mut R, p: f64) -> bool {
 }
 
 /// A Poisson count with mean `lambda` (0 when `lambda` is not positive).
-pub fn poisson<R: Rng + ?Sized>(rng: &mut R, lambda: f64) -> anyhow::Result<u64> {
+///
+/// # Errors
+/// [`DemoError::Distribution`] when `lambda` is not finite or too large for `rand_distr`.
+pub fn poisson<R: Rng + ?Sized>(rng: &mut R, lambda: f64) -> DemoResult<u64> {
     if lambda <= 0.0 {
         return Ok(0);
     }
-    let d = Poisson::new(lambda).with_context(|| format!("Poisson mean {lambda}"))?;
+    let d = Poisson::new(lambda)
+        .map_err(|e| DemoError::Distribution { what: format!("Poisson mean {lambda}"), message: e.to_string() })?;
     let x: f64 = d.sample(rng);
     Ok(x as u64)
 }
 
 /// A Gamma draw with the given shape and mean.
-pub fn gamma_mean<R: Rng + ?Sized>(rng: &mut R, shape: f64, mean: f64) -> anyhow::Result<f64> {
-    let d = Gamma::new(shape, mean / shape).with_context(|| format!("Gamma shape {shape} mean {mean}"))?;
+///
+/// # Errors
+/// [`DemoError::Distribution`] when the shape or the scale is not positive and finite.
+pub fn gamma_mean<R: Rng + ?Sized>(rng: &mut R, shape: f64, mean: f64) -> DemoResult<f64> {
+    let d = Gamma::new(shape, mean / shape).map_err(|e| DemoError::Distribution {
+        what: format!("Gamma shape {shape} mean {mean}"),
+        message: e.to_string(),
+    })?;
     Ok(d.sample(rng))
 }
 

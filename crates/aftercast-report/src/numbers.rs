@@ -1,0 +1,147 @@
+//! The one place that turns a result's summaries into the numbers people read: which rows are
+//! shown (average, cumulative, total over the treated units, relative) under which label, the
+//! point answer (`estimate`) and the interval the verdict is judged on (the HDI). The terminal
+//! summary and the HTML report both print through here, so they cannot disagree.
+
+use aftercast_core::estimate::Per;
+use aftercast_core::result::{AnalysisResult, Judged, Summary};
+
+/// One row of effect numbers.
+#[derive(Debug, Clone)]
+pub struct EffectLine {
+    /// What the row is ("average per period", "total over the treated units", ...).
+    pub label: String,
+    /// Its summary.
+    pub summary: Summary,
+    /// Whether the values are fractions shown as percentages.
+    pub percent: bool,
+    /// Whether the verdict was judged on this row's interval.
+    pub judged: bool,
+}
+
+/// The rows of a result, in the order shown everywhere: the judged quantity first.
+pub fn effect_lines(r: &AnalysisResult) -> Vec<EffectLine> {
+    let judged = r.judged_on.quantity;
+    let mut lines = Vec::new();
+    if let Some(rel) = r.effect.relative {
+        lines.push(EffectLine {
+            label: "relative to the counterfactual".into(),
+            summary: rel,
+            percent: true,
+            judged: judged == Judged::Relative,
+        });
+    }
+    lines.push(EffectLine {
+        label: format!("average {}", r.scope.average_label()),
+        summary: r.effect.average,
+        percent: false,
+        judged: judged != Judged::Relative,
+    });
+    if let Some(c) = r.effect.cumulative {
+        lines.push(EffectLine { label: r.scope.cumulative_label().into(), summary: c, percent: false, judged: false });
+    }
+    if let Some(t) = r.effect.total {
+        lines.push(EffectLine {
+            label: format!("total over all {} treated units", r.scope.units),
+            summary: t,
+            percent: false,
+            judged: false,
+        });
+    }
+    lines.sort_by_key(|l| !l.judged);
+    lines
+}
+
+/// The row the verdict was judged on.
+pub fn judged_line(r: &AnalysisResult) -> EffectLine {
+    effect_lines(r).into_iter().find(|l| l.judged).unwrap_or_else(|| EffectLine {
+        label: "average".into(),
+        summary: r.effect.average,
+        percent: false,
+        judged: true,
+    })
+}
+
+/// Decimals that give three significant figures to the largest magnitude of a group, so a
+/// point and its interval share one format.
+pub fn decimals_for(values: &[f64]) -> usize {
+    let m = values.iter().filter(|v| v.is_finite()).fold(0.0_f64, |a, v| a.max(v.abs()));
+    if m == 0.0 {
+        return 0;
+    }
+    (2.0 - m.log10().floor()).clamp(0.0, 6.0) as usize
+}
+
+/// A signed number with `decimals` decimals and thousands separators.
+pub fn signed(v: f64, decimals: usize) -> String {
+    if !v.is_finite() {
+        return "n/a".into();
+    }
+    let s = format!("{:.decimals$}", v.abs());
+    let (int, frac) = s.split_once('.').map_or((s.as_str(), None), |(i, f)| (i, Some(f)));
+    let mut grouped = String::new();
+    for (i, c) in int.chars().enumerate() {
+        if i > 0 && (int.len() - i) % 3 == 0 {
+            grouped.push(',');
+        }
+        grouped.push(c);
+    }
+    let body = match frac {
+        Some(f) => format!("{grouped}.{f}"),
+        None => grouped,
+    };
+    if body.chars().all(|c| c == '0' || c == '.' || c == ',') {
+        return body;
+    }
+    format!("{}{body}", if v < 0.0 { "-" } else { "+" })
+}
+
+/// A signed percentage (fractions in), two decimals, or more for very small values.
+pub fn percent(v: f64) -> String {
+    if !v.is_finite() {
+        return "n/a".into();
+    }
+    signed(v * 100.0, 2) + "%"
+}
+
+/// Point and interval of a summary in one shared format: (`"+1,234"`, `"[+1,010, +1,460]"`).
+/// The interval is the highest-density interval, the one the verdict is judged on.
+pub fn point_and_interval(s: &Summary, pct: bool) -> (String, String) {
+    if pct {
+        return (percent(s.estimate), format!("[{}, {}]", percent(s.hdi_lower), percent(s.hdi_upper)));
+    }
+    let d = decimals_for(&[s.estimate, s.hdi_lower, s.hdi_upper]);
+    (signed(s.estimate, d), format!("[{}, {}]", signed(s.hdi_lower, d), signed(s.hdi_upper, d)))
+}
+
+/// The name of the interval shown: "90% HDI".
+pub fn interval_name(level: f64) -> String {
+    format!("{:.0}% HDI", level * 100.0)
+}
+
+/// One sentence: the verdict and the judged effect with its interval.
+pub fn lead_sentence(r: &AnalysisResult) -> String {
+    let line = judged_line(r);
+    let (p, i) = point_and_interval(&line.summary, line.percent);
+    let scope = match (r.scope.per, r.scope.units, line.percent) {
+        (Per::Period, n, false) if n > 1 => format!(" (per treated unit; {n} treated units)"),
+        _ => String::new(),
+    };
+    format!("Verdict: {}. Effect {}: {p}, {} {i}{scope}.", r.verdict.word(), line.label, interval_name(r.level))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn point_and_interval_share_decimals() {
+        assert_eq!(decimals_for(&[93.78, 184.2]), 0);
+        assert_eq!(decimals_for(&[9.5, 1.2]), 2);
+        assert_eq!(decimals_for(&[0.0123]), 4);
+        assert_eq!(signed(1794.34, 0), "+1,794");
+        assert_eq!(signed(-8498.0, 0), "-8,498");
+        assert_eq!(signed(-0.0001, 2), "0.00");
+        assert_eq!(percent(0.0312), "+3.12%");
+    }
+}
