@@ -52,23 +52,23 @@ run_both() { # name, then the windows flags (without --output/--series-output/--
 
 echo "== fixture"
 fx="$root/crates/aftercast-windows/tests/fixtures"
-run_both fixture --events "$fx/events.csv" --exposures "$fx/exposures.csv" --group-col region \
+run_both fixture --events "$fx/events.csv" --exposures "$fx/exposures.csv" --group region \
   --window 7d --window deferred:2d+3d --window pre:3d --window calendar:2d \
   --metric orders=sum,count,active_days,mean_per_active_day,any --metric revenue=sum \
   --ratio rpo=revenue/orders --allow-negative revenue \
-  --tz +02:00 --start 2024-02-01 --end 2024-03-20 --reference 2024-03-10 --series daily
+  --tz +02:00 --from 2024-02-01 --until 2024-03-20 --reference 2024-03-10 --series daily
 
 echo "== fixture, day-start anchoring, weekly series, UTC"
-run_both fixture_daystart --events "$fx/events.csv" --exposures "$fx/exposures.csv" --group-col region \
+run_both fixture_daystart --events "$fx/events.csv" --exposures "$fx/exposures.csv" --group region \
   --window 7d --window pre:3d --metric orders=sum,active_days,any --anchoring day-start \
-  --start 2024-02-01 --end 2024-03-20 --reference 2024-03-10 --series weekly
+  --from 2024-02-01 --until 2024-03-20 --reference 2024-03-10 --series weekly
 
 echo "== generated log: $events events"
 "$gen" --events "$events" --units 20000 --out-events "$work/gen.parquet" --out-exposures "$work/gen_exposures.csv"
-run_both generated --events "$work/gen.parquet" --exposures "$work/gen_exposures.csv" --group-col region \
+run_both generated --events "$work/gen.parquet" --exposures "$work/gen_exposures.csv" --group region \
   --window 7d --window 14d --window 28d --window pre:28d --window deferred:3d+7d --window calendar:14d \
   --metric visit=sum,count,active_days,any --metric order=sum,count,active_days,mean_per_active_day \
   --metric refund=sum --ratio net=refund/order \
-  --tz +02:00 --start 2026-01-01 --end 2026-04-01 --reference 2026-02-15 --bad-rows skip --series daily
+  --tz +02:00 --from 2026-01-01 --until 2026-04-01 --reference 2026-02-15 --bad-rows skip --series daily
 
 echo "== all equal"

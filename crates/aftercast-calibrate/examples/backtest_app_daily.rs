@@ -1,14 +1,13 @@
 //! Timing run: placebo backtest of the structural model (local linear trend, weekly dummy
 //! season, the two control series as regressors) with 50 placebo dates on the demo's daily app
-//! revenue before the launch, in parallel, with a progress bar when stderr is a terminal and
-//! Ctrl-C stopping cleanly. Partial results go to `backtest_partial.jsonl` in the temp dir.
+//! revenue before the launch, in parallel (progress bars and Ctrl-C are the binary's; `aftercast
+//! backtest` has them). Partial results go to `backtest_partial.jsonl` in the temp dir.
 //!
 //! `cargo run -p aftercast-calibrate --example backtest_app_daily [--release] [-- --yearly]`
 //! (`--yearly` adds a yearly trigonometric season with 4 harmonics and fits on at least 400 days)
 
 use aftercast_calibrate::adapters::forecast::StructuralModel;
 use aftercast_calibrate::backtest::{self, BacktestData, BacktestSpec, RunControl};
-use aftercast_calibrate::interrupt::stop_flag;
 use aftercast_core::series::{Series, SeriesSpec};
 use aftercast_core::table::RawTable;
 
@@ -31,9 +30,8 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let mut bspec = BacktestSpec::new(split.post_len());
     bspec.placebos = 50;
     bspec.draws = 200;
-    let flag = stop_flag()?;
     let partial = std::env::temp_dir().join("backtest_partial.jsonl");
-    let control = RunControl { stop: Some(&flag), partial: Some(&partial), progress: true };
+    let control = RunControl { stop: None, partial: Some(&partial), progress: None };
     let mut model = StructuralModel::daily();
     if std::env::args().any(|a| a == "--yearly") {
         model.seasons.push(aftercast_forecast::structural::SeasonKind::Trig { period: 365.25, harmonics: 4 });

@@ -32,9 +32,10 @@
 //! `δ_k = 1 - 1 / a_hi`.
 //!
 //! Runs are parallel over origins ([`par_draws`], one stream per origin, so the finished
-//! results do not depend on the thread count), can show a progress bar on stderr when it is a
-//! terminal, write each finished origin to a JSON-lines file at once, and stop cleanly when a
-//! stop flag is raised (e.g. by Ctrl-C, see [`crate::interrupt`]).
+//! results do not depend on the thread count), report their progress to a [`Progress`] the
+//! caller supplies (the binary draws a bar on a terminal), write each finished origin to a
+//! JSON-lines file at once, and stop cleanly when a stop flag is raised (the binary raises it
+//! on Ctrl-C).
 
 use crate::error::{CalibrateError, CalibrateResult};
 use aftercast_core::estimate::{Estimate, MdePoint, Per, Point, PowerPoint, Scope};
@@ -176,15 +177,27 @@ pub struct BacktestData<'a> {
     pub times: Option<&'a [TimePoint]>,
 }
 
-/// Where finished results go while the run goes on, and how it is stopped.
-#[derive(Debug, Default, Clone, Copy)]
+/// Where finished results go while the run goes on, how it is stopped and who hears of its
+/// progress.
+#[derive(Default, Clone, Copy)]
 pub struct RunControl<'a> {
     /// Raised (e.g. by Ctrl-C) to stop: origins not started yet are skipped.
     pub stop: Option<&'a AtomicBool>,
     /// JSON-lines file receiving a header line and then every finished origin at once.
     pub partial: Option<&'a Path>,
-    /// Show a progress bar on stderr (only drawn when stderr is a terminal).
-    pub progress: bool,
+    /// Told how many origins there are and each time one finishes (e.g. a progress bar the
+    /// binary draws on a terminal).
+    pub progress: Option<&'a dyn Progress>,
+}
+
+/// Progress of a long run, reported by the library and shown (or not) by the caller.
+pub trait Progress: Sync {
+    /// The run has `total` steps.
+    fn start(&self, total: u64, what: &str);
+    /// One more step finished.
+    fn step(&self);
+    /// The run ended (finished or stopped).
+    fn finish(&self);
 }
 
 /// Per-window numbers of one origin.
@@ -543,7 +556,9 @@ pub fn run(
         }
         None => None,
     };
-    let bar = crate::interrupt::progress_bar(origins.len() as u64, control.progress, "placebo origins");
+    if let Some(p) = control.progress {
+        p.start(origins.len() as u64, "placebo origins");
+    }
     let seed = child_seed(spec.seed, "backtest-origins");
     let write_error: Mutex<Option<CalibrateError>> = Mutex::new(None);
     type Outcome = Option<Result<OriginResult, (usize, String)>>;
@@ -576,10 +591,14 @@ pub fn run(
                 slot.get_or_insert(e);
             }
         }
-        bar.inc(1);
+        if let Some(p) = control.progress {
+            p.step();
+        }
         Some(out)
     });
-    bar.finish_and_clear();
+    if let Some(p) = control.progress {
+        p.finish();
+    }
     if let Some(e) = write_error.into_inner().ok().flatten() {
         return Err(e);
     }

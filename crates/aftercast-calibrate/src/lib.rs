@@ -32,7 +32,6 @@ pub mod compare;
 pub mod error;
 pub mod estimators;
 pub mod history;
-pub mod interrupt;
 pub mod plasmode;
 pub mod sample;
 pub mod series;

@@ -122,7 +122,7 @@ fn interruption_keeps_finished_origins_in_the_partial_file() {
     let flag = AtomicBool::new(false);
     let model =
         StopsAfter { inner: NormalPredictive { window: 40 }, calls: AtomicUsize::new(0), after: 5, flag: &flag };
-    let control = RunControl { stop: Some(&flag), partial: Some(&partial), progress: false };
+    let control = RunControl { stop: Some(&flag), partial: Some(&partial), progress: None };
     let r = backtest::run(&model, &data, &spec(), &control).unwrap();
     assert!(r.interrupted);
     assert!(r.origins_completed >= 5 && r.origins_completed < 120, "{}", r.origins_completed);
@@ -135,7 +135,7 @@ fn interruption_keeps_finished_origins_in_the_partial_file() {
     assert_eq!(lines.last().unwrap()["interrupted"], true);
     // stopped before anything ran: an error, not an empty report
     let flag = AtomicBool::new(true);
-    let control = RunControl { stop: Some(&flag), partial: None, progress: false };
+    let control = RunControl { stop: Some(&flag), partial: None, progress: None };
     let e = backtest::run(&NormalPredictive { window: 40 }, &data, &spec(), &control).unwrap_err();
     assert!(e.to_string().contains("interrupted"));
 }

@@ -5,6 +5,7 @@
 
 mod common;
 mod failure;
+mod progress;
 mod study;
 mod verbs;
 

@@ -411,10 +411,30 @@ pub fn prepare(
     let mut regs = Vec::new();
     let mut names = Vec::new();
     let mut breaks = Vec::new();
-    for (name, x) in &series.controls {
-        if let Some((t, v)) = x[..n].iter().enumerate().find(|(_, v)| !v.is_finite()) {
+    for name in &pp.log_controls {
+        if !series.controls.iter().any(|(c, _)| c == name) {
+            let controls: Vec<&str> = series.controls.iter().map(|(c, _)| c.as_str()).collect();
+            return Err(ForecastError::UnknownLogControl { name: name.clone(), controls: controls.join(",") });
+        }
+    }
+    for (name, raw) in &series.controls {
+        if let Some((t, v)) = raw[..n].iter().enumerate().find(|(_, v)| !v.is_finite()) {
             return Err(ForecastError::NonFiniteControl { name: name.clone(), value: *v, at: pts[t].to_string() });
         }
+        let logged: Vec<f64>;
+        let x: &[f64] = if pp.log_controls.contains(name) {
+            if let Some((t, v)) = raw[..n].iter().enumerate().find(|(_, v)| **v <= 0.0) {
+                return Err(ForecastError::NonPositiveControlForLog {
+                    name: name.clone(),
+                    at: pts[t].to_string(),
+                    value: *v,
+                });
+            }
+            logged = raw.iter().map(|v| v.ln()).collect();
+            &logged
+        } else {
+            raw
+        };
         let pre = &x[..split.pre_end];
         if pre.iter().all(|v| *v == pre[0]) {
             warnings.push(format!("control '{name}' is constant in the pre-period and is left out"));

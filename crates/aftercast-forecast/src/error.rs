@@ -59,6 +59,24 @@ pub enum ForecastError {
         /// The value.
         value: f64,
     },
+    /// A control named for the log scale cannot be put on it.
+    #[error("--log-controls: control '{name}' is {value} at {at}; the log scale needs positive values")]
+    NonPositiveControlForLog {
+        /// The control name.
+        name: String,
+        /// The time, as text.
+        at: String,
+        /// The value.
+        value: f64,
+    },
+    /// A control named for the log scale is not among the controls.
+    #[error("--log-controls: '{name}' is not one of the --controls ({controls})")]
+    UnknownLogControl {
+        /// The name given.
+        name: String,
+        /// The controls, comma-separated.
+        controls: String,
+    },
     /// Multiplicative seasonality needs positive values.
     #[error("multiplicative Holt-Winters needs positive values; the value at {at} is {value}")]
     NonPositiveForMultiplicative {

@@ -293,3 +293,16 @@ impl HwFit {
         })
     }
 }
+
+impl std::str::FromStr for Seasonality {
+    type Err = String;
+    /// `additive` or `multiplicative` (`none` leaves the season out).
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        match s.trim() {
+            "none" => Ok(Seasonality::None),
+            "additive" => Ok(Seasonality::Additive),
+            "multiplicative" => Ok(Seasonality::Multiplicative),
+            other => Err(format!("'{other}' is not a seasonality (additive, multiplicative, none)")),
+        }
+    }
+}

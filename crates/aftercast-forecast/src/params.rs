@@ -157,6 +157,10 @@ pub struct ForecastParams {
     pub trend: Trend,
     /// Model the log of the outcome.
     pub log: bool,
+    /// Controls entered on the log scale (a count that relates to the outcome
+    /// multiplicatively); each value must be positive.
+    #[serde(default)]
+    pub log_controls: Vec<String>,
     /// Level, draws, seed, ROPE and threshold (one definition for every verb).
     pub inference: Inference,
     /// Structural parameter uncertainty.
@@ -182,6 +186,7 @@ impl Default for ForecastParams {
             seasons: None,
             trend: Trend::LinearTrend,
             log: false,
+            log_controls: Vec::new(),
             inference: Inference::default(),
             parameter_uncertainty: true,
             parameter_sets: 100,
@@ -226,6 +231,11 @@ impl ForecastParams {
     /// Model the log of the outcome.
     pub fn log(mut self, on: bool) -> Self {
         self.log = on;
+        self
+    }
+    /// Controls to enter on the log scale.
+    pub fn log_controls(mut self, names: Vec<String>) -> Self {
+        self.log_controls = names;
         self
     }
     /// Level, draws, seed, ROPE and threshold at once.

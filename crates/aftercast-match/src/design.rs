@@ -40,6 +40,15 @@ pub enum Factor {
     },
 }
 
+impl Factor {
+    /// The column the factor is computed from.
+    pub fn column(&self) -> &str {
+        match self {
+            Factor::Power { name, .. } | Factor::Zero { name } | Factor::Log1p { name } => name,
+        }
+    }
+}
+
 /// A derived model term: the product of its factors.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
 pub struct Term {

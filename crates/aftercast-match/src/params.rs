@@ -157,6 +157,33 @@ pub enum SeparationPolicy {
     Error,
 }
 
+impl std::str::FromStr for Caliper {
+    type Err = String;
+    /// `none`, or a width in standard deviations of the logit of the propensity score.
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        let t = s.trim();
+        if t.eq_ignore_ascii_case("none") {
+            return Ok(Caliper::None);
+        }
+        match t.parse::<f64>() {
+            Ok(v) if v.is_finite() && v > 0.0 => Ok(Caliper::SdOfLogit(v)),
+            _ => Err(format!("'{t}' is not a caliper (a positive width in SDs of the logit, or none)")),
+        }
+    }
+}
+
+impl std::str::FromStr for SeparationPolicy {
+    type Err = String;
+    /// `penalise` (refit with penalty 1 and warn) or `error`.
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        match s.trim() {
+            "penalise" | "penalize" => Ok(SeparationPolicy::Penalise(1.0)),
+            "error" => Ok(SeparationPolicy::Error),
+            other => Err(format!("'{other}' is not a separation policy (penalise, error)")),
+        }
+    }
+}
+
 impl Default for SeparationPolicy {
     fn default() -> Self {
         SeparationPolicy::Penalise(1.0)
@@ -236,6 +263,47 @@ impl MatchParams {
     pub fn terms(mut self, terms: impl IntoIterator<Item = Term>) -> Self {
         self.terms.extend(terms);
         self
+    }
+
+    /// The columns a unit table must hold for these parameters: the outcome (and the pre-period
+    /// outcome), the covariates read as numbers unless named in `categorical` (exact-matching
+    /// columns are categorical), and every column a term's factors name.
+    pub fn unit_spec(
+        &self,
+        treatment: &str,
+        outcome: &str,
+        categorical: &[String],
+        id: Option<String>,
+        missing: aftercast_core::MissingPolicy,
+    ) -> aftercast_core::units::UnitSpec {
+        let mut categorical = categorical.to_vec();
+        for e in &self.exact {
+            if !categorical.contains(e) {
+                categorical.push(e.clone());
+            }
+        }
+        let mut outcomes = vec![outcome.to_string()];
+        outcomes.extend(self.pre_outcome.iter().cloned());
+        let mut numeric: Vec<String> = self.covariates.iter().filter(|c| !categorical.contains(c)).cloned().collect();
+        for t in &self.terms {
+            for f in &t.factors {
+                let name = f.column();
+                if !numeric.iter().any(|n| n == name)
+                    && !categorical.iter().any(|c| c == name)
+                    && !outcomes.iter().any(|o| o == name)
+                {
+                    numeric.push(name.to_string());
+                }
+            }
+        }
+        aftercast_core::units::UnitSpec {
+            id,
+            treatment: treatment.to_string(),
+            outcomes,
+            numeric,
+            categorical,
+            missing,
+        }
     }
 
     /// Add squares of these covariates (`--squares a,b`).

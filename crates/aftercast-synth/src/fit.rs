@@ -242,7 +242,7 @@ impl ValidParams {
     pub fn fit(&self, panel: &Panel, treated: &[String], start: TimePoint) -> SynthResult<Fitted> {
         let p = &self.0;
         let prep = prepare(panel, treated, start, p)?;
-        let shares = unit_shares(&p.aggregate, prep.treated.len())?;
+        let shares = unit_shares(&p.aggregate, panel, treated, start)?;
         if p.method == Method::Sdid {
             return sdid::fit_sdid(&prep, p, &panel.name, shares);
         }
@@ -295,9 +295,43 @@ impl ValidParams {
     }
 }
 
-pub(crate) fn unit_shares(agg: &Aggregation, n: usize) -> SynthResult<Vec<f64>> {
+/// Shares of the treated units in the combined path: equal, given sizes, or each unit's
+/// pre-period mean of a size column of the panel (periods before `start`, at least one).
+pub(crate) fn unit_shares(
+    agg: &Aggregation,
+    panel: &Panel,
+    treated: &[String],
+    start: TimePoint,
+) -> SynthResult<Vec<f64>> {
+    let n = treated.len();
     match agg {
         Aggregation::Mean => Ok(vec![1.0 / n as f64; n]),
+        Aggregation::BySize(col) => {
+            let Some((_, m)) = panel.covariates.iter().find(|(name, _)| name == col) else {
+                let cols: Vec<&str> = panel.covariates.iter().map(|(c, _)| c.as_str()).collect();
+                return Err(SynthError::BadParameter {
+                    name: "--size",
+                    value: col.clone(),
+                    detail: format!("no such column was read from the panel (read: {})", cols.join(", ")),
+                });
+            };
+            let t0 = panel.axis.first_at_or_after(start).max(1);
+            let mut sizes = Vec::with_capacity(n);
+            for u in treated {
+                let i = panel.unit_index(u, "unit")?;
+                let pre = &m[i][..t0.min(m[i].len())];
+                let size = pre.iter().sum::<f64>() / pre.len().max(1) as f64;
+                if !(size.is_finite() && size > 0.0) {
+                    return Err(SynthError::BadParameter {
+                        name: "--size",
+                        value: format!("{size} for unit '{u}'"),
+                        detail: format!("the pre-period mean of '{col}' must be positive"),
+                    });
+                }
+                sizes.push(size);
+            }
+            unit_shares(&Aggregation::Weighted(sizes), panel, treated, start)
+        }
         Aggregation::Weighted(w) => {
             if w.len() != n {
                 return Err(SynthError::BadParameter {

@@ -258,7 +258,9 @@ pub fn fit_staggered(params: &ValidParams, panel: &Panel, treated: &[(String, Ti
         return Err(SynthError::NoTreated);
     }
     let names: Vec<String> = treated.iter().map(|t| t.0.clone()).collect();
-    let shares = crate::fit::unit_shares(&params.0.aggregate, names.len())?;
+    // sizes are taken over the periods before the earliest start
+    let first_start = treated.iter().map(|t| t.1).min().unwrap_or(treated[0].1);
+    let shares = crate::fit::unit_shares(&params.0.aggregate, panel, &names, first_start)?;
     let mut fits = Vec::with_capacity(treated.len());
     for (name, start) in treated {
         let mut p = params.0.clone();

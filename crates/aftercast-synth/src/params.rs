@@ -84,6 +84,9 @@ pub enum Aggregation {
     /// Mean weighted by a per-unit size (e.g. population or revenue); one value per treated unit,
     /// in the order the treated units are given.
     Weighted(Vec<f64>),
+    /// Mean weighted by each treated unit's pre-period mean of this panel column (a size such
+    /// as population or store count).
+    BySize(String),
 }
 
 /// Unchecked parameters (a builder).

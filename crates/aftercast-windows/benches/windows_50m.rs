@@ -47,8 +47,8 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         .metric("visit", &aggs)
         .metric("order", &aggs)
         .metric("refund", &aggs)
-        .start(ts("2026-01-01")?)
-        .end(ts("2026-04-01")?)
+        .from(ts("2026-01-01")?)
+        .until(ts("2026-04-01")?)
         .bad_rows(BadRowPolicy::Skip)
         .check()?;
     let opts = ExposureOptions {

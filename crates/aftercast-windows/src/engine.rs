@@ -314,9 +314,9 @@ pub struct InclusionCounts {
     pub units: u64,
     /// Units whose window is complete (their cells are filled).
     pub included: u64,
-    /// Units excluded because the window ends after the analysis end.
+    /// Units excluded because the window ends after the data end (`until`).
     pub excluded_ends_after_end: u64,
-    /// Units excluded because the window starts before the data start.
+    /// Units excluded because the window starts before the data start (`from`).
     pub excluded_starts_before_start: u64,
 }
 
@@ -352,7 +352,7 @@ pub struct WindowsOutput {
 /// (Parquet) with `threads` workers (0 = all cores). The output does not depend on `threads`.
 ///
 /// # Errors
-/// Read errors of the event source; with [`crate::BadRowPolicy::Fail`] the first bad row (by
+/// Read errors of the event source; with [`crate::BadRowPolicy::Error`] the first bad row (by
 /// line) as [`WindowsError::BadTimestamp`], [`WindowsError::UnknownUnit`],
 /// [`WindowsError::BadValue`], [`WindowsError::NegativeValue`], [`WindowsError::MissingCell`]
 /// or [`WindowsError::Malformed`]; [`WindowsError::Overflow`].
@@ -367,7 +367,7 @@ pub struct WindowsOutput {
 /// let spec = WindowSpec::params()
 ///     .window(WindowKind::parse("7d")?)
 ///     .metric("orders", &[Aggregation::Sum, Aggregation::Count])
-///     .end(t("2024-04-01"))
+///     .until(t("2024-04-01"))
 ///     .check()?;
 /// let units = Exposures::from_rows(vec![UnitRow { unit: "a".into(), exposure: Some(t("2024-03-01")), group: "all".into() }], None, None)?;
 /// let out = run(&EventSource::new(&path, spec.columns().clone()), &units, &spec, 1)?;
@@ -381,9 +381,9 @@ pub fn run(
     threads: usize,
 ) -> WindowsResult<WindowsOutput> {
     let widened;
-    let exposures = match spec.universe() {
-        crate::params::UnitUniverse::Exposures => exposures,
-        crate::params::UnitUniverse::ExposuresAndEvents => {
+    let exposures = match spec.population() {
+        crate::params::Population::Exposures => exposures,
+        crate::params::Population::ExposuresAndEvents => {
             let mut all = exposures.clone();
             all.add_unlisted(crate::source::event_unit_ids(events)?)?;
             widened = all;

@@ -15,7 +15,7 @@
 //!     .window(WindowKind::parse("pre:28d")?)
 //!     .metric("orders", &[Aggregation::Sum, Aggregation::ActiveDays])
 //!     .ratio("aov", "revenue", "orders")
-//!     .end(t("2024-06-01"))
+//!     .until(t("2024-06-01"))
 //!     .check()?;
 //! assert_eq!(spec.value_columns().len(), 2 * (2 + 2));
 //! # Ok::<(), WindowsError>(())
@@ -39,7 +39,7 @@ pub use engine::{
 pub use error::{Cell, WindowsError, WindowsResult};
 pub use exposure::{ExposureOptions, Exposures, UnitRow};
 pub use params::{
-    Aggregation, Anchoring, BadRowPolicy, EventColumns, SeriesFrequency, UnitUniverse, WindowDef, WindowKind,
+    Aggregation, Anchoring, BadRowPolicy, EventColumns, Population, SeriesFrequency, WindowDef, WindowKind,
     WindowParams, WindowSpec,
 };
 pub use source::{EventFormat, EventSource};

@@ -258,11 +258,12 @@ pub fn spec_json(spec: &WindowSpec) -> Value {
         .map(|r| json!({"name": r.name, "numerator": r.numerator, "denominator": r.denominator}))
         .collect();
     json!({
-        "end": format_timestamp(spec.end(), off),
-        "start": spec.start().map(|s| format_timestamp(s, off)),
+        "from": spec.from().map(|s| format_timestamp(s, off)),
+        "until": format_timestamp(spec.until(), off),
         "utc_offset": off.to_string(),
         "anchoring": match spec.anchoring() { crate::Anchoring::Exact => "exact", crate::Anchoring::DayStart => "day-start" },
-        "bad_rows": match spec.bad_rows() { crate::BadRowPolicy::Fail => "fail", crate::BadRowPolicy::Skip => "skip" },
+        "bad_rows": spec.bad_rows().to_string(),
+        "population": spec.population().to_string(),
         "duplicates": "counted (each row is one event)",
         "allow_negative": spec.allow_negative(),
         "windows": windows,

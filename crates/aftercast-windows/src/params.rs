@@ -2,17 +2,17 @@
 //!
 //! | parameter | default | meaning | allowed |
 //! |---|---|---|---|
-//! | `window` | none (at least one) | a window relative to each unit's anchor, or ending at the analysis end | lengths > 0, delay >= 0, names `[A-Za-z_][A-Za-z0-9_]*`, unique |
+//! | `window` | none (at least one) | a window relative to each unit's anchor, or ending at the data end (`until`) | lengths > 0, delay >= 0, names `[A-Za-z_][A-Za-z0-9_]*`, unique |
 //! | `metric` | none (at least one metric or ratio) | a metric name of the event log and its aggregations | names `[A-Za-z0-9_]+`; aggregations non-empty, no repeats |
 //! | `ratio` | none | sum of one metric over sum of another, kept as `_num` and `_den` columns | names as metrics |
-//! | `end` | required | analysis end (data end), exclusive | an instant |
-//! | `start` | none | data start, inclusive; windows starting before it are incomplete | before `end` |
+//! | `until` | required | data end, exclusive; windows ending after it are incomplete | an instant |
+//! | `from` | none | data start, inclusive; windows starting before it are incomplete | before `until` |
 //! | `offset` | UTC | fixed UTC offset of day boundaries and of timestamps written without a zone | +-18:00 |
 //! | `anchoring` | exact | windows start at the exposure instant, or at the start of its local day | `exact`, `day-start` |
-//! | `bad_rows` | fail | fail at the first bad event row, or skip and count | `fail`, `skip` |
+//! | `bad_rows` | error | stop with a located error at the first bad event row, or skip and count | `error`, `skip` |
 //! | `allow_negative` | none | metrics whose values may be negative | metric names |
-//! | `series` | none | per-group daily or weekly series over `[start, end)` | needs `start` |
-//! | `units` | exposures | the unit universe: the exposures file, or also units first seen in the events | `exposures`, `exposures-and-events` |
+//! | `series` | none | per-group daily or weekly series over `[from, until)` | needs `from` |
+//! | `population` | exposures | which units the table has: the exposures file, or also units first seen in the events | `exposures`, `exposures-and-events` |
 //! | `event columns` | `unit`, `time`, `metric`, `value` | column names of the event log | |
 
 use crate::error::{WindowsError, WindowsResult};
@@ -41,7 +41,7 @@ pub enum WindowKind {
         /// Length in microseconds.
         length: i64,
     },
-    /// `[end - length, end)`: the same calendar interval for every unit, ending at the analysis end.
+    /// `[until - length, until)`: the same calendar interval for every unit, ending at the data end.
     Calendar {
         /// Length in microseconds.
         length: i64,
@@ -197,7 +197,7 @@ pub struct RatioSpec {
 pub enum BadRowPolicy {
     /// Stop at the first bad row, naming file, line and column (default).
     #[default]
-    Fail,
+    Error,
     /// Skip bad rows and report how many were skipped, by reason.
     Skip,
 }
@@ -206,10 +206,19 @@ impl std::str::FromStr for BadRowPolicy {
     type Err = WindowsError;
     fn from_str(s: &str) -> Result<Self, Self::Err> {
         match s {
-            "fail" => Ok(Self::Fail),
+            "error" => Ok(Self::Error),
             "skip" => Ok(Self::Skip),
-            other => Err(WindowsError::bad_param("bad-row policy", other, "fail or skip")),
+            other => Err(WindowsError::bad_param("bad-row policy", other, "error or skip")),
         }
+    }
+}
+
+impl std::fmt::Display for BadRowPolicy {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            Self::Error => "error",
+            Self::Skip => "skip",
+        })
     }
 }
 
@@ -235,10 +244,10 @@ impl std::str::FromStr for Anchoring {
     }
 }
 
-/// Which units the unit table has.
+/// Which units the unit table has (the population).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
-pub enum UnitUniverse {
+pub enum Population {
     /// Exactly the units of the exposures file; events of other units are bad rows
     /// ("unknown unit") (default).
     #[default]
@@ -248,14 +257,23 @@ pub enum UnitUniverse {
     ExposuresAndEvents,
 }
 
-impl std::str::FromStr for UnitUniverse {
+impl std::str::FromStr for Population {
     type Err = WindowsError;
     fn from_str(s: &str) -> Result<Self, Self::Err> {
         match s {
             "exposures" => Ok(Self::Exposures),
             "exposures-and-events" => Ok(Self::ExposuresAndEvents),
-            other => Err(WindowsError::bad_param("units", other, "exposures or exposures-and-events")),
+            other => Err(WindowsError::bad_param("population", other, "exposures or exposures-and-events")),
         }
+    }
+}
+
+impl std::fmt::Display for Population {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            Self::Exposures => "exposures",
+            Self::ExposuresAndEvents => "exposures-and-events",
+        })
     }
 }
 
@@ -305,19 +323,19 @@ pub struct WindowParams {
     windows: Vec<(Option<String>, WindowKind)>,
     metrics: Vec<MetricSpec>,
     ratios: Vec<RatioSpec>,
-    end: Option<i64>,
-    start: Option<i64>,
+    until: Option<i64>,
+    from: Option<i64>,
     offset: Offset,
     anchoring: Anchoring,
     bad_rows: BadRowPolicy,
     allow_negative: BTreeSet<String>,
     series: Option<SeriesFrequency>,
     columns: EventColumns,
-    universe: UnitUniverse,
+    population: Population,
 }
 
 impl WindowParams {
-    /// Empty parameters (UTC, exact anchoring, fail on bad rows).
+    /// Empty parameters (UTC, exact anchoring, stop at the first bad row).
     pub fn new() -> Self {
         Self::default()
     }
@@ -350,15 +368,17 @@ impl WindowParams {
         self
     }
 
-    /// Analysis end (exclusive), microseconds since the epoch.
-    pub fn end(mut self, end: i64) -> Self {
-        self.end = Some(end);
+    /// Data end (exclusive), microseconds since the epoch: windows ending after it are
+    /// incomplete.
+    pub fn until(mut self, until: i64) -> Self {
+        self.until = Some(until);
         self
     }
 
-    /// Data start (inclusive), microseconds since the epoch.
-    pub fn start(mut self, start: i64) -> Self {
-        self.start = Some(start);
+    /// Data start (inclusive), microseconds since the epoch: windows starting before it are
+    /// incomplete.
+    pub fn from(mut self, from: i64) -> Self {
+        self.from = Some(from);
         self
     }
 
@@ -399,8 +419,8 @@ impl WindowParams {
     }
 
     /// Which units the unit table has.
-    pub fn units(mut self, universe: UnitUniverse) -> Self {
-        self.universe = universe;
+    pub fn population(mut self, population: Population) -> Self {
+        self.population = population;
         self
     }
 
@@ -409,15 +429,14 @@ impl WindowParams {
     /// # Errors
     /// [`WindowsError::BadParameter`] naming the parameter and why.
     pub fn check(self) -> WindowsResult<WindowSpec> {
-        let end =
-            self.end.ok_or_else(|| WindowsError::bad_param("end", "", "the analysis end (data end) is required"))?;
-        if let Some(s) = self.start
-            && s >= end
+        let until = self.until.ok_or_else(|| WindowsError::bad_param("data end (until)", "", "it is required"))?;
+        if let Some(s) = self.from
+            && s >= until
         {
             return Err(WindowsError::bad_param(
-                "start",
+                "data start (from)",
                 time::format_timestamp(s, self.offset),
-                "the data start must be before the analysis end",
+                "it must be before the data end (until)",
             ));
         }
         if self.windows.is_empty() {
@@ -487,8 +506,8 @@ impl WindowParams {
                 return Err(WindowsError::bad_param("allow-negative", m, "metric names use letters, digits and _"));
             }
         }
-        if self.series.is_some() && self.start.is_none() {
-            return Err(WindowsError::bad_param("series", "", "the per-group series needs a data start"));
+        if self.series.is_some() && self.from.is_none() {
+            return Err(WindowsError::bad_param("series", "", "the per-group series needs a data start (from)"));
         }
         // Tracked metrics: those with aggregations, then ratio parts, in first-seen order.
         let mut tracked: Vec<TrackedMetric> = Vec::new();
@@ -514,8 +533,8 @@ impl WindowParams {
             windows,
             metrics: self.metrics,
             ratios: self.ratios,
-            end,
-            start: self.start,
+            until,
+            from: self.from,
             offset: self.offset,
             anchoring: self.anchoring,
             bad_rows: self.bad_rows,
@@ -523,7 +542,7 @@ impl WindowParams {
             series: self.series,
             columns: self.columns,
             tracked,
-            universe: self.universe,
+            population: self.population,
         };
         let mut cols = BTreeSet::new();
         for c in ["unit", "group", "exposed", "anchor"] {
@@ -544,7 +563,7 @@ impl WindowParams {
                 return Err(WindowsError::bad_param(
                     "series",
                     format!("{freq:?}"),
-                    "no complete day/week lies between the data start and the analysis end",
+                    "no complete day/week lies between the data start (from) and the data end (until)",
                 ));
             }
         }
@@ -619,8 +638,8 @@ pub struct WindowSpec {
     windows: Vec<WindowDef>,
     metrics: Vec<MetricSpec>,
     ratios: Vec<RatioSpec>,
-    end: i64,
-    start: Option<i64>,
+    until: i64,
+    from: Option<i64>,
     offset: Offset,
     anchoring: Anchoring,
     bad_rows: BadRowPolicy,
@@ -628,7 +647,7 @@ pub struct WindowSpec {
     series: Option<SeriesFrequency>,
     columns: EventColumns,
     tracked: Vec<TrackedMetric>,
-    universe: UnitUniverse,
+    population: Population,
 }
 
 impl WindowSpec {
@@ -649,13 +668,13 @@ impl WindowSpec {
     pub fn ratios(&self) -> &[RatioSpec] {
         &self.ratios
     }
-    /// Analysis end (exclusive).
-    pub fn end(&self) -> i64 {
-        self.end
+    /// Data end (exclusive).
+    pub fn until(&self) -> i64 {
+        self.until
     }
     /// Data start (inclusive), if given.
-    pub fn start(&self) -> Option<i64> {
-        self.start
+    pub fn from(&self) -> Option<i64> {
+        self.from
     }
     /// The UTC offset of day boundaries.
     pub fn offset(&self) -> Offset {
@@ -682,8 +701,8 @@ impl WindowSpec {
         &self.columns
     }
     /// Which units the unit table has.
-    pub fn universe(&self) -> UnitUniverse {
-        self.universe
+    pub fn population(&self) -> Population {
+        self.population
     }
     /// The metrics the engine accumulates.
     pub fn tracked(&self) -> &[TrackedMetric] {
@@ -707,16 +726,16 @@ impl WindowSpec {
     pub fn bounds(&self, w: usize, anchor: i64) -> (i64, i64) {
         match self.windows[w].kind.relative() {
             Some((a, b)) => (anchor + a, anchor + b),
-            None => (self.end - self.windows[w].kind.length(), self.end),
+            None => (self.until - self.windows[w].kind.length(), self.until),
         }
     }
 
-    /// Why a window is incomplete, if it is: it ends after the analysis end, or it starts before
-    /// the data start.
+    /// Why a window is incomplete, if it is: it ends after the data end (`until`), or it starts
+    /// before the data start (`from`).
     pub fn incomplete(&self, from: i64, to: i64) -> Option<Incomplete> {
-        if to > self.end {
+        if to > self.until {
             Some(Incomplete::EndsAfterEnd)
-        } else if self.start.is_some_and(|s| from < s) {
+        } else if self.from.is_some_and(|s| from < s) {
             Some(Incomplete::StartsBeforeStart)
         } else {
             None
@@ -763,17 +782,17 @@ impl WindowSpec {
     }
 
     /// The series buckets: local day numbers `[first, last)` of the fully covered days of
-    /// `[start, end)`; for weekly series the range of Monday-based week numbers of fully
+    /// `[from, until)`; for weekly series the range of Monday-based week numbers of fully
     /// covered weeks. Only meaningful when a series is requested.
     pub fn series_days(&self) -> (i64, i64) {
-        let start = self.start.unwrap_or(self.end);
+        let start = self.from.unwrap_or(self.until);
         let off = self.offset;
-        // First day whose start is at or after `start`; last day whose end is at or before `end`.
+        // First day whose start is at or after `from`; last day whose end is at or before `until`.
         let mut d0 = off.day_of(start);
         if off.day_start(d0) < start {
             d0 += 1;
         }
-        let d1 = off.day_of(self.end); // day containing end: its start <= end, so days < d1 are covered
+        let d1 = off.day_of(self.until); // day containing until: its start <= until, so days < d1 are covered
         match self.series {
             Some(SeriesFrequency::Weekly) => {
                 let mut w0 = week_of(d0);
@@ -803,9 +822,9 @@ pub fn week_start(week: i64) -> i64 {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum Incomplete {
-    /// The window ends after the analysis end.
+    /// The window ends after the data end (`until`).
     EndsAfterEnd,
-    /// The window starts before the data start.
+    /// The window starts before the data start (`from`).
     StartsBeforeStart,
 }
 
@@ -833,7 +852,7 @@ mod tests {
 
     #[test]
     fn validation_names_the_problem() {
-        let base = || WindowSpec::params().end(ts("2024-04-01")).metric("orders", &[Aggregation::Sum]);
+        let base = || WindowSpec::params().until(ts("2024-04-01")).metric("orders", &[Aggregation::Sum]);
         assert!(base().check().is_err(), "no window");
         assert!(base().window(WindowKind::Forward { length: 0 }).check().is_err());
         let e = base().window(WindowKind::Forward { length: DAY }).window(WindowKind::Forward { length: DAY }).check();
@@ -844,11 +863,11 @@ mod tests {
                 .metric("x", &[Aggregation::Sum])
                 .check()
                 .is_err(),
-            "no end"
+            "no until"
         );
         assert!(
             base().window(WindowKind::Forward { length: DAY }).series(SeriesFrequency::Daily).check().is_err(),
-            "series without start"
+            "series without from"
         );
         assert!(base().named_window("7x", WindowKind::Forward { length: DAY }).check().is_err());
         let s = base().window(WindowKind::Forward { length: DAY }).ratio("aov", "revenue", "orders").check().unwrap();
@@ -858,12 +877,26 @@ mod tests {
     }
 
     #[test]
+    fn policy_words_parse_print_and_serialise_alike() {
+        assert_eq!("error".parse::<BadRowPolicy>().unwrap(), BadRowPolicy::Error);
+        assert_eq!("skip".parse::<BadRowPolicy>().unwrap(), BadRowPolicy::Skip);
+        assert!("fail".parse::<BadRowPolicy>().is_err(), "the old word is gone");
+        assert_eq!(BadRowPolicy::default().to_string(), "error");
+        assert_eq!(serde_json::to_value(BadRowPolicy::Error).unwrap(), "error");
+        let p: Population = "exposures-and-events".parse().unwrap();
+        assert_eq!(p.to_string(), "exposures-and-events");
+        assert_eq!(serde_json::to_value(p).unwrap(), "exposures-and-events");
+        let e = "units".parse::<Population>().unwrap_err().to_string();
+        assert!(e.contains("population") && !e.contains('\n'), "{e}");
+    }
+
+    #[test]
     fn series_range_keeps_fully_covered_days_and_weeks() {
         let spec = WindowSpec::params()
             .window(WindowKind::Forward { length: DAY })
             .metric("x", &[Aggregation::Sum])
-            .start(ts("2024-03-01T06:00:00Z"))
-            .end(ts("2024-03-11T00:00:00Z"))
+            .from(ts("2024-03-01T06:00:00Z"))
+            .until(ts("2024-03-11T00:00:00Z"))
             .series(SeriesFrequency::Daily)
             .check()
             .unwrap();
@@ -873,8 +906,8 @@ mod tests {
         let weekly = WindowSpec::params()
             .window(WindowKind::Forward { length: DAY })
             .metric("x", &[Aggregation::Sum])
-            .start(ts("2024-03-01T00:00:00Z"))
-            .end(ts("2024-03-25T00:00:00Z"))
+            .from(ts("2024-03-01T00:00:00Z"))
+            .until(ts("2024-03-25T00:00:00Z"))
             .series(SeriesFrequency::Weekly)
             .check()
             .unwrap();

@@ -2,7 +2,7 @@
 //!
 //! CSV (plain or gzip) is read sequentially in blocks of whole lines that workers parse in
 //! parallel; Parquet is split by row groups. Each worker owns one accumulator (its size depends
-//! on the number of units only); the accumulators are merged at the end. With the `fail` policy
+//! on the number of units only); the accumulators are merged at the end. With the `error` policy
 //! the reported bad row is the first one in file order, whatever the thread count.
 
 use crate::engine::{Acc, Plan, RowError, check_value, metric_index};

@@ -166,9 +166,9 @@ pub fn spark_sql(spec: &WindowSpec, exposure: &ExposureOptions, plan: &SparkPlan
         w,
         "CREATE OR REPLACE TEMPORARY VIEW ac_units_listed AS\nSELECT trim(CAST({ucol} AS STRING)) AS unit, {grp} AS grp, {exposed} AS exposed,\n    {exposure_us} AS exposure_us\nFROM ac_exposures_src;"
     );
-    let base = match spec.universe() {
-        crate::UnitUniverse::Exposures => "ac_units_listed".to_string(),
-        crate::UnitUniverse::ExposuresAndEvents => {
+    let base = match spec.population() {
+        crate::Population::Exposures => "ac_units_listed".to_string(),
+        crate::Population::ExposuresAndEvents => {
             let r = reference.ok_or_else(|| {
                 WindowsError::bad_param(
                     "reference",
@@ -222,7 +222,7 @@ pub fn spark_sql(spec: &WindowSpec, exposure: &ExposureOptions, plan: &SparkPlan
         w,
         "CREATE OR REPLACE TEMPORARY VIEW ac_ev_checked AS\nSELECT r.*, a.anchor_us, a.grp,\n  CASE\n    WHEN r.metric IS NULL OR r.metric = '' THEN 'missing'\n    WHEN r.metric NOT IN ({tracked_list}) THEN 'other_metric'\n    WHEN r.unit IS NULL OR r.unit = '' THEN 'missing'\n    WHEN a.unit IS NULL THEN 'unknown_unit'\n    WHEN r.t_raw IS NULL OR trim(r.t_raw) = '' THEN 'missing'\n    WHEN r.t_ts IS NULL THEN 'bad_timestamp'\n    WHEN r.v_raw IS NULL OR trim(r.v_raw) = '' THEN 'missing'\n    WHEN r.v IS NULL OR isnan(r.v) OR abs(r.v) >= 4.611686018427387904E18 THEN 'bad_value'\n    WHEN {neg_rule} THEN 'negative'\n    ELSE 'ok' END AS status\nFROM ac_ev_raw r LEFT JOIN ac_units a ON r.unit = a.unit;"
     );
-    if spec.bad_rows() == BadRowPolicy::Fail {
+    if spec.bad_rows() == BadRowPolicy::Error {
         let _ = writeln!(
             w,
             "SELECT raise_error(concat('events: bad row (', status, '): unit=', coalesce(unit, ''), ', time=', coalesce(t_raw, ''), ', metric=', coalesce(metric, ''), ', value=', coalesce(v_raw, ''))) FROM ac_ev_checked WHERE status NOT IN ('ok', 'other_metric') LIMIT 1;"
@@ -271,11 +271,11 @@ pub fn spark_sql(spec: &WindowSpec, exposure: &ExposureOptions, plan: &SparkPlan
     );
 
     // The unit table.
-    let end = spec.end();
+    let end = spec.until();
     let complete = |wi: usize| -> String {
         let (from, to) = bounds(wi, "u.anchor_us");
         let mut c = format!("({to} <= {end}");
-        if let Some(st) = spec.start() {
+        if let Some(st) = spec.from() {
             let _ = write!(c, " AND {from} >= {st}");
         }
         c.push(')');
@@ -360,7 +360,7 @@ pub fn spark_sql(spec: &WindowSpec, exposure: &ExposureOptions, plan: &SparkPlan
     for (wi, win) in spec.windows().iter().enumerate() {
         let (from, to) = bounds(wi, "u.anchor_us");
         let after = format!("{to} > {end}");
-        let before = match spec.start() {
+        let before = match spec.from() {
             Some(st) => format!("NOT ({after}) AND {from} < {st}"),
             None => "false".to_string(),
         };
@@ -405,7 +405,7 @@ pub fn spark_sql(spec: &WindowSpec, exposure: &ExposureOptions, plan: &SparkPlan
             }
         }
     }
-    let _ = writeln!(w, "-- end: {}", format_timestamp(end, off));
+    let _ = writeln!(w, "-- until (data end, exclusive): {}", format_timestamp(end, off));
     Ok(s)
 }
 
@@ -420,7 +420,7 @@ mod tests {
         let spec = WindowSpec::params()
             .window(crate::WindowKind::parse("14d").unwrap())
             .metric("orders", &[Aggregation::Sum, Aggregation::ActiveDays])
-            .end(t("2024-04-01"))
+            .until(t("2024-04-01"))
             .check()
             .unwrap();
         let plan = SparkPlan {

@@ -2,7 +2,7 @@
 //!
 //! Events: units `u0000001`.., metrics `visit` (value 1), `order` (a multiple of 0.25 up to
 //! 400, so every sum is exact in f64 on any engine) and `refund` (likewise), times uniform over
-//! 2025-12-30 .. 2026-04-04 UTC (beyond the data start 2026-01-01 and the analysis end
+//! 2025-12-30 .. 2026-04-04 UTC (beyond the data start 2026-01-01 and the data end
 //! 2026-04-01 on each side), stored as a Parquet `TIMESTAMP(MICROS, UTC)`. 0.1% of rows name a
 //! unit missing from the exposures. Exposures (CSV `unit,exposure,region`): 70% of units
 //! exposed between 2026-02-01 and 2026-03-25 (so some forward windows are incomplete), the rest

@@ -55,8 +55,8 @@ fn demo_events_to_the_match_unit_table() {
         .named_window("outcome", WindowKind::parse("forward:28d").unwrap())
         .metric("visit", &[Count, ActiveDays])
         .metric("order", &[Count, Sum, ActiveDays])
-        .start(t("2026-01-01T00:00:00Z"))
-        .end(t("2026-04-20T00:00:00Z"))
+        .from(t("2026-01-01T00:00:00Z"))
+        .until(t("2026-04-20T00:00:00Z"))
         .event_columns(EventColumns {
             unit: "customer_id".into(),
             time: "ts".into(),

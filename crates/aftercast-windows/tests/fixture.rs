@@ -1,7 +1,7 @@
 //! The hand-computed fixture: tests/fixtures/events.csv and exposures.csv, every cell asserted.
 //!
-//! Analysis offset +02:00 (day boundaries at 22:00Z), data start 2024-02-01T00:00+02:00, analysis
-//! end 2024-03-20T00:00+02:00, never-exposed units anchored at the reference time
+//! Analysis offset +02:00 (day boundaries at 22:00Z), data start (from) 2024-02-01T00:00+02:00, data
+//! end (until) 2024-03-20T00:00+02:00, never-exposed units anchored at the reference time
 //! 2024-03-10T00:00+02:00. Windows: `fwd_7d` = [0, 7d), `def_2d_3d` = [2d, 5d), `pre_3d` =
 //! [-3d, 0), `cal_2d` = [2024-03-18T00:00+02:00, 2024-03-20T00:00+02:00). Metrics: orders (sum,
 //! count, active days, mean per active day, any), revenue (sum; negative allowed: refunds),
@@ -68,8 +68,8 @@ fn spec(policy: BadRowPolicy) -> WindowSpec {
         .ratio("rpo", "revenue", "orders")
         .allow_negative("revenue")
         .offset(plus2())
-        .start(ts("2024-02-01T00:00:00"))
-        .end(ts("2024-03-20T00:00:00"))
+        .from(ts("2024-02-01T00:00:00"))
+        .until(ts("2024-03-20T00:00:00"))
         .series(SeriesFrequency::Daily)
         .bad_rows(policy)
         .check()
@@ -205,7 +205,7 @@ fn assert_fixture_table(out: &WindowsOutput) {
 
 #[test]
 fn hand_computed_fixture_every_cell() {
-    let spec = spec(BadRowPolicy::Fail);
+    let spec = spec(BadRowPolicy::Error);
     let ex = exposures(&spec);
     let out = run(&EventSource::new(fixture("events.csv"), spec.columns().clone()), &ex, &spec, 2).unwrap();
     assert_fixture_table(&out);
@@ -233,7 +233,7 @@ fn hand_computed_fixture_every_cell() {
 
 #[test]
 fn fixture_daily_series() {
-    let spec = spec(BadRowPolicy::Fail);
+    let spec = spec(BadRowPolicy::Error);
     let ex = exposures(&spec);
     let out = run(&EventSource::new(fixture("events.csv"), spec.columns().clone()), &ex, &spec, 1).unwrap();
     let s = out.series.unwrap();
@@ -272,7 +272,7 @@ fn day_start_anchoring_moves_the_anchor_to_local_midnight() {
         .metric("orders", &[Sum])
         .offset(plus2())
         .anchoring(Anchoring::DayStart)
-        .end(ts("2024-03-20T00:00:00"))
+        .until(ts("2024-03-20T00:00:00"))
         .check()
         .unwrap();
     let ex = exposures(&spec);
@@ -286,8 +286,8 @@ fn day_start_anchoring_moves_the_anchor_to_local_midnight() {
 }
 
 #[test]
-fn bad_rows_fail_with_line_and_column_by_default() {
-    let spec = spec(BadRowPolicy::Fail);
+fn bad_rows_stop_with_line_and_column_by_default() {
+    let spec = spec(BadRowPolicy::Error);
     let ex = exposures(&spec);
     let err = run(&EventSource::new(fixture("events_bad.csv"), spec.columns().clone()), &ex, &spec, 2).unwrap_err();
     match &err {
@@ -302,7 +302,7 @@ fn bad_rows_fail_with_line_and_column_by_default() {
 
 #[test]
 fn each_bad_row_kind_is_reported_at_its_cell() {
-    let spec = spec(BadRowPolicy::Fail);
+    let spec = spec(BadRowPolicy::Error);
     let ex = exposures(&spec);
     let header = "unit,time,metric,value\n";
     let good = "a,2024-03-02T00:00:00Z,orders,1\n";
@@ -357,7 +357,7 @@ fn thread_count_and_input_format_do_not_change_the_output() {
     use arrow_array::{ArrayRef, RecordBatch, StringArray};
     use std::io::Write;
     use std::sync::Arc;
-    let spec = spec(BadRowPolicy::Fail);
+    let spec = spec(BadRowPolicy::Error);
     let ex = exposures(&spec);
     let csv = EventSource::new(fixture("events.csv"), spec.columns().clone());
     let one = run(&csv, &ex, &spec, 1).unwrap();
@@ -392,7 +392,7 @@ fn thread_count_and_input_format_do_not_change_the_output() {
 
 #[test]
 fn outputs_and_sidecar_are_written() {
-    let spec = spec(BadRowPolicy::Fail);
+    let spec = spec(BadRowPolicy::Error);
     let ex = exposures(&spec);
     let out = run(&EventSource::new(fixture("events.csv"), spec.columns().clone()), &ex, &spec, 1).unwrap();
     let dir = tempfile::tempdir().unwrap();
@@ -435,8 +435,8 @@ fn fixture_weekly_series_keeps_full_monday_weeks() {
         .window(WindowKind::parse("7d").unwrap())
         .metric("orders", &[Sum])
         .offset(plus2())
-        .start(ts("2024-02-01T00:00:00"))
-        .end(ts("2024-03-20T00:00:00"))
+        .from(ts("2024-02-01T00:00:00"))
+        .until(ts("2024-03-20T00:00:00"))
         .series(SeriesFrequency::Weekly)
         .check()
         .unwrap();

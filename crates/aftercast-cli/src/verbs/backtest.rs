@@ -1,12 +1,13 @@
 //! `aftercast backtest`: placebo dates in a series' pre-period: false-positive rate, interval
 //! coverage, counterfactual error, power for injected lifts and minimum detectable effects.
 
-use crate::common::{Common, DataOptions, comma_list, parse_arg, read_table};
+use crate::common::{Common, DataOptions, read_table};
 use crate::failure::bad_input_msg;
 use crate::verbs::compare::classify;
 use aftercast_calibrate::adapters::forecast::StructuralModel;
 use aftercast_calibrate::backtest::{self, BacktestData, BacktestSpec, RunControl};
 use aftercast_core::series::{Series, SeriesSpec};
+use aftercast_forecast::Season;
 use aftercast_forecast::structural::{SeasonKind, Trend};
 use std::path::PathBuf;
 
@@ -23,30 +24,33 @@ pub struct Args {
     #[arg(long)]
     pub outcome: String,
     /// Control series the change did not touch, comma-separated (regressors).
-    #[arg(long, default_value = "")]
-    pub controls: String,
+    #[arg(long, value_delimiter = ',')]
+    pub controls: Vec<String>,
     /// First period of the real change: placebo dates are placed before it.
     #[arg(long, required_unless_present = "plasmode")]
     pub start: Option<String>,
     /// Last period of the real post-period (sets the placebo window length); default: the end.
     #[arg(long)]
     pub end: Option<String>,
-    /// Model: structural (local linear trend) or local-level.
-    #[arg(long, default_value = "structural")]
+    /// Model family of the placebo fits: structural.
+    #[arg(long, default_value = "structural", value_parser = ["structural"])]
     pub model: String,
-    /// Seasons, repeatable: `P` (dummy seasonal of integer period P) or `P:K` (trigonometric,
-    /// K harmonics). Default for daily data: 7, plus 365.25:4 when the pre-period has two years.
+    /// Structural trend: level, linear-trend or damped-trend (as for forecast).
+    #[arg(long, default_value = "linear-trend")]
+    pub trend: Trend,
+    /// Seasons, repeatable, as for forecast: `7` (dummy seasonal) or `365.25:4` (trigonometric
+    /// with 4 harmonics). Without it the seasons follow the data's frequency, as for forecast.
     #[arg(long)]
-    pub season: Vec<String>,
+    pub season: Vec<Season>,
     /// Number of placebo dates.
     #[arg(long, default_value_t = 50)]
     pub placebos: usize,
     /// Window lengths for power and MDE, comma-separated (default: a quarter, half and all of the post-period).
-    #[arg(long, default_value = "")]
-    pub lengths: String,
+    #[arg(long, value_delimiter = ',')]
+    pub lengths: Vec<usize>,
     /// Injected multiplicative lifts in percent, comma-separated (negative values allowed).
-    #[arg(allow_hyphen_values = true, long, default_value = "-5,1,2,5,10")]
-    pub lifts: String,
+    #[arg(long, allow_hyphen_values = true, value_delimiter = ',', default_value = "-5,1,2,5,10", value_parser = parse_lift)]
+    pub lifts: Vec<f64>,
     /// Shortest fitting span in periods (default: twice the post-period, at least 10).
     #[arg(long)]
     pub min_train: Option<usize>,
@@ -64,8 +68,8 @@ pub struct Args {
     #[arg(long, default_value = "treatment")]
     pub treatment: String,
     /// Numeric covariates of the --plasmode table, comma-separated.
-    #[arg(long, default_value = "")]
-    pub covariates: String,
+    #[arg(long, value_delimiter = ',')]
+    pub covariates: Vec<String>,
     /// The known effect added to the treated units' simulated outcomes (outcome units).
     #[arg(long, default_value_t = 0.0)]
     pub effect: f64,
@@ -73,18 +77,24 @@ pub struct Args {
     #[arg(long, default_value_t = 100)]
     pub replicates: usize,
     /// Methods of the plasmode simulation, comma-separated (as for compare).
-    #[arg(long, default_value = "naive,regression-imputation,nearest,ipw,aipw")]
-    pub methods: String,
+    #[arg(long, value_delimiter = ',', default_value = "naive,regression-imputation,nearest,ipw,aipw")]
+    pub methods: Vec<String>,
     #[command(flatten)]
     pub data_options: DataOptions,
     #[command(flatten)]
     pub common: Common,
 }
 
+/// A lift in percent (`5` or `5%`) as a fraction.
+fn parse_lift(s: &str) -> Result<f64, String> {
+    let v: f64 = s.trim().trim_end_matches('%').parse().map_err(|_| format!("'{s}' is not a lift in percent"))?;
+    if v.is_finite() && v > -100.0 { Ok(v / 100.0) } else { Err(format!("'{s}' is not a lift above -100%")) }
+}
+
 fn run_plasmode(a: &Args, path: &std::path::Path) -> anyhow::Result<crate::verbs::Outcome> {
     use aftercast_calibrate::plasmode::{PlasmodeSpec, plasmode};
     use aftercast_core::units::{UnitSpec, UnitTable};
-    let covariates = comma_list(&a.covariates);
+    let covariates = a.covariates.clone();
     if covariates.is_empty() {
         return Err(bad_input_msg("--covariates is required with --plasmode"));
     }
@@ -143,7 +153,7 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     let spec = SeriesSpec {
         time: a.time.clone().ok_or_else(|| bad_input_msg("--time is required"))?,
         outcome: a.outcome.clone(),
-        controls: comma_list(&a.controls),
+        controls: a.controls.clone(),
         date_format: a.data_options.date_format(),
         missing: a.data_options.missing,
         gaps: a.data_options.gaps,
@@ -161,51 +171,22 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     if let Some(m) = a.min_train {
         bspec.min_train = m;
     }
-    let lengths = comma_list(&a.lengths);
-    if !lengths.is_empty() {
-        bspec.lengths = lengths.iter().map(|l| parse_arg::<usize>("--lengths", l)).collect::<anyhow::Result<_>>()?;
+    if !a.lengths.is_empty() {
+        bspec.lengths = a.lengths.clone();
     }
-    bspec.lifts = comma_list(&a.lifts)
-        .iter()
-        .map(|l| parse_arg::<f64>("--lifts", l.trim_end_matches('%')).map(|v| v / 100.0))
-        .collect::<anyhow::Result<_>>()?;
-    let trend = match a.model.as_str() {
-        "structural" => Trend::LinearTrend,
-        "local-level" => Trend::Level,
-        other => return Err(bad_input_msg(format!("--model: '{other}' is not one of structural, local-level"))),
-    };
-    let mut seasons: Vec<SeasonKind> = Vec::new();
-    if a.season.is_empty() {
-        if series.frequency() == aftercast_core::time::Frequency::Daily {
-            seasons.push(SeasonKind::Dummy { period: 7 });
-            if pre >= 730 {
-                seasons.push(SeasonKind::Trig { period: 365.25, harmonics: 4 });
-            }
-        }
+    bspec.lifts = a.lifts.clone();
+    // the seasons of forecast: the user's, or those that follow the data's frequency, each
+    // kept only when the pre-period holds two of its cycles
+    let seasons: Vec<SeasonKind> = if a.season.is_empty() {
+        Season::defaults(series.frequency())
+            .into_iter()
+            .filter(|s| s.period * 2.0 <= pre as f64)
+            .map(|s| s.kind())
+            .collect()
     } else {
-        for text in &a.season {
-            let kind = match text.split_once(':') {
-                Some((p, k)) => {
-                    let period = parse_arg::<f64>("--season", p)?;
-                    let harmonics = parse_arg::<usize>("--season", k)?;
-                    if !(period > 2.0 && harmonics >= 1 && 2.0 * harmonics as f64 <= period) {
-                        return Err(bad_input_msg(format!(
-                            "--season {text}: a trigonometric season needs period > 2 and 1 <= K <= period/2"
-                        )));
-                    }
-                    SeasonKind::Trig { period, harmonics }
-                }
-                None => {
-                    let period = parse_arg::<usize>("--season", text)?;
-                    if period < 2 {
-                        return Err(bad_input_msg(format!("--season {text}: a seasonal period must be at least 2")));
-                    }
-                    SeasonKind::Dummy { period }
-                }
-            };
-            seasons.push(kind);
-        }
-    }
+        a.season.iter().map(Season::kind).collect()
+    };
+    let trend = a.trend;
     let model = StructuralModel { trend, seasons, parameter_uncertainty: true, parameter_sets: 20 };
     let controls: Vec<Vec<f64>> = series.controls.iter().map(|(_, v)| v[..pre].to_vec()).collect();
     let data = BacktestData {
@@ -214,8 +195,9 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         controls: &controls,
         times: Some(&series.axis.points()[..pre]),
     };
-    let flag = aftercast_calibrate::interrupt::stop_flag().map_err(|m| anyhow::anyhow!("cannot handle Ctrl-C: {m}"))?;
-    let control = RunControl { stop: Some(&flag), partial: a.partial.as_deref(), progress: !a.common.quiet };
+    let flag = crate::progress::stop_flag().map_err(|m| anyhow::anyhow!("cannot handle Ctrl-C: {m}"))?;
+    let bar = crate::progress::Bar::new(!a.common.quiet);
+    let control = RunControl { stop: Some(&flag), partial: a.partial.as_deref(), progress: Some(&bar) };
     let report = backtest::run(&model, &data, &bspec, &control).map_err(classify)?;
     let headline = format!(
         "planning on '{}' with the {} model: {} of {} placebo dates{}",

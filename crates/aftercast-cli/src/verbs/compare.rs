@@ -1,7 +1,7 @@
 //! `aftercast compare`: observational estimates against a randomized experiment's answer, and
 //! the per-method summary of a comparison history.
 
-use crate::common::{Common, DataOptions, comma_list, read_table};
+use crate::common::{Common, DataOptions, read_table};
 use crate::failure::{bad_input, bad_input_msg};
 use aftercast_calibrate::adapters::matching::MatchEstimator;
 use aftercast_calibrate::history;
@@ -28,15 +28,19 @@ pub struct Args {
     #[arg(long, required_unless_present_any = ["summarize", "arms_data"])]
     pub pool: Vec<PathBuf>,
     /// Numeric covariates, comma-separated (in the experiment and in every pool).
-    #[arg(long, required_unless_present_any = ["summarize", "arms_data"])]
-    pub covariates: Option<String>,
+    #[arg(long, required_unless_present_any = ["summarize", "arms_data"], value_delimiter = ',')]
+    pub covariates: Vec<String>,
     /// Observational methods, comma-separated: naive, regression, regression-imputation,
     /// nearest, strata, ipw, overlap, aipw.
-    #[arg(long, default_value = "naive,regression,regression-imputation,nearest,strata,ipw,overlap,aipw")]
-    pub methods: String,
+    #[arg(
+        long,
+        value_delimiter = ',',
+        default_value = "naive,regression,regression-imputation,nearest,strata,ipw,overlap,aipw"
+    )]
+    pub methods: Vec<String>,
     /// Extra propensity-model terms for the matching methods: `age^2`, `zero(re74)`, `educ:re74`.
-    #[arg(long, default_value = "")]
-    pub terms: String,
+    #[arg(long, value_delimiter = ',')]
+    pub terms: Vec<aftercast_match::design::Term>,
     /// Append each comparison (method, setting, truth, estimate, interval) to this JSON-lines file.
     #[arg(long)]
     pub history: Option<PathBuf>,
@@ -66,11 +70,11 @@ pub struct Args {
     #[arg(long)]
     pub end: Option<String>,
     /// Control series untouched by the test, comma-separated (regressors of the forecast model).
-    #[arg(long, default_value = "")]
-    pub controls: String,
+    #[arg(long, value_delimiter = ',')]
+    pub controls: Vec<String>,
     /// Other segments untouched by the test, comma-separated (donors of the synthetic control).
-    #[arg(long, default_value = "")]
-    pub donors: String,
+    #[arg(long, value_delimiter = ',')]
+    pub donors: Vec<String>,
     #[command(flatten)]
     pub data_options: DataOptions,
     #[command(flatten)]
@@ -144,8 +148,8 @@ fn compare_arm_series(a: &Args, path: &std::path::Path) -> anyhow::Result<crate:
     use aftercast_calibrate::series::{ArmSeries, compare_series};
     use aftercast_core::series::{Series, SeriesSpec};
     let table = read_table(path)?;
-    let controls = comma_list(&a.controls);
-    let donors = comma_list(&a.donors);
+    let controls = a.controls.clone();
+    let donors = a.donors.clone();
     let mut cols = vec![a.control_arm.clone()];
     cols.extend(controls.iter().cloned());
     cols.extend(donors.iter().cloned());
@@ -201,12 +205,12 @@ fn compare_arm_series(a: &Args, path: &std::path::Path) -> anyhow::Result<crate:
 /// # Errors
 /// Bad input for an unknown name.
 pub(crate) fn methods_from(
-    list: &str,
+    list: &[String],
     terms: &[aftercast_match::design::Term],
 ) -> anyhow::Result<Vec<Box<dyn UnitEstimator>>> {
     let mut methods: Vec<Box<dyn UnitEstimator>> = Vec::new();
-    for m in comma_list(list) {
-        methods.push(match m.as_str() {
+    for m in list.iter().map(|m| m.trim()).filter(|m| !m.is_empty()) {
+        methods.push(match m {
             "naive" => Box::new(Naive),
             "regression" => Box::new(Regression { kind: RegressionKind::Coefficient }),
             "regression-imputation" => Box::new(Regression { kind: RegressionKind::Imputation }),
@@ -239,7 +243,7 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     let spec = UnitCompareSpec {
         arm: need(&a.arm, "--arm")?,
         outcome: need(&a.outcome, "--outcome")?,
-        covariates: comma_list(&need(&a.covariates, "--covariates")?),
+        covariates: a.covariates.clone(),
         missing: a.data_options.missing,
     };
     let exp_path = a.experiment.clone().ok_or_else(|| bad_input_msg("--experiment is required"))?;
@@ -248,9 +252,7 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     for p in &a.pool {
         pools.push(read_pool(&read_table(p)?, &spec, None).map_err(classify)?);
     }
-    let terms: Vec<aftercast_match::design::Term> =
-        comma_list(&a.terms).iter().map(|t| t.parse()).collect::<Result<_, _>>().map_err(bad_input)?;
-    let methods = methods_from(&a.methods, &terms)?;
+    let methods = methods_from(&a.methods, &a.terms)?;
     let refs: Vec<&dyn UnitEstimator> = methods.iter().map(|m| m.as_ref()).collect();
     let inf = a.common.inference();
     let c = compare_units(&experiment, &pools, &spec, &refs, &inf).map_err(classify)?;

@@ -1,6 +1,6 @@
 //! `aftercast forecast`: counterfactual of one series from its own past and control series.
 
-use crate::common::{Common, DataOptions, comma_list, parse_arg, read_table};
+use crate::common::{Common, DataOptions, read_table};
 use crate::failure::bad_input;
 use aftercast_core::series::{Series, SeriesSpec};
 use aftercast_forecast::holt_winters::Seasonality;
@@ -21,8 +21,8 @@ pub struct Args {
     #[arg(long)]
     pub outcome: String,
     /// Control series the change did not touch, comma-separated.
-    #[arg(long, default_value = "")]
-    pub controls: String,
+    #[arg(long, value_delimiter = ',')]
+    pub controls: Vec<String>,
     /// First period of the change (date or integer period, as in the time column).
     #[arg(long)]
     pub start: String,
@@ -34,20 +34,20 @@ pub struct Args {
     pub washout: usize,
     /// Model: structural, holt-winters, harmonic or auto (rolling backtest, lowest CRPS).
     #[arg(long, default_value = "structural")]
-    pub model: String,
+    pub model: ModelKind,
     /// Seasonal component, repeatable: `7` (dummy seasonal) or `365.25:4` (trigonometric with
     /// 4 harmonics). Without it the seasons follow the data's frequency.
     #[arg(long)]
-    pub season: Vec<String>,
+    pub season: Vec<Season>,
     /// No seasonal component at all.
     #[arg(long, conflicts_with = "season")]
     pub no_season: bool,
     /// Structural trend: level, linear-trend or damped-trend.
     #[arg(long, default_value = "linear-trend")]
-    pub trend: String,
+    pub trend: Trend,
     /// Holt-Winters seasonality: additive or multiplicative.
     #[arg(long, default_value = "additive")]
-    pub hw_seasonality: String,
+    pub hw_seasonality: Seasonality,
     /// Damped Holt-Winters trend.
     #[arg(long)]
     pub damped: bool,
@@ -56,8 +56,8 @@ pub struct Args {
     pub events: Option<PathBuf>,
     /// Control series to enter on the log scale (comma-separated names from --controls), e.g.
     /// a count that relates to the outcome multiplicatively; each value must be positive.
-    #[arg(long, default_value = "")]
-    pub log_controls: String,
+    #[arg(long, value_delimiter = ',')]
+    pub log_controls: Vec<String>,
     /// Model the log of the outcome (multiplicative effects).
     #[arg(long)]
     pub log: bool,
@@ -79,23 +79,6 @@ fn classify(e: aftercast_forecast::ForecastError) -> anyhow::Error {
     }
 }
 
-fn trend_of(s: &str) -> anyhow::Result<Trend> {
-    match s {
-        "level" => Ok(Trend::Level),
-        "linear-trend" | "trend" => Ok(Trend::LinearTrend),
-        "damped-trend" | "damped" => Ok(Trend::DampedTrend),
-        _ => Err(crate::failure::bad_input_msg(format!("--trend '{s}': use level, linear-trend or damped-trend"))),
-    }
-}
-
-fn seasonality_of(s: &str) -> anyhow::Result<Seasonality> {
-    match s {
-        "additive" | "add" => Ok(Seasonality::Additive),
-        "multiplicative" | "mul" => Ok(Seasonality::Multiplicative),
-        _ => Err(crate::failure::bad_input_msg(format!("--hw-seasonality '{s}': use additive or multiplicative"))),
-    }
-}
-
 /// Run the verb and return the result document plus a one-line headline for the terminal.
 ///
 /// # Errors
@@ -107,48 +90,29 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     let spec = SeriesSpec {
         time: a.time.clone(),
         outcome: a.outcome.clone(),
-        controls: comma_list(&a.controls),
+        controls: a.controls.clone(),
         date_format: a.data_options.date_format(),
         missing: a.data_options.missing,
         gaps: a.data_options.gaps,
     };
-    let mut series = Series::from_table(&table, &spec).map_err(bad_input)?;
-    for name in comma_list(&a.log_controls) {
-        let Some((_, values)) = series.controls.iter_mut().find(|(n, _)| *n == name) else {
-            return Err(crate::failure::bad_input_msg(format!(
-                "--log-controls: '{name}' is not one of the --controls ({})",
-                a.controls
-            )));
-        };
-        if let Some(i) = values.iter().position(|v| *v <= 0.0) {
-            return Err(crate::failure::bad_input_msg(format!(
-                "{}: control '{name}' is {} at {}; --log-controls needs positive values",
-                a.data.display(),
-                values[i],
-                series.axis.points()[i]
-            )));
-        }
-        for v in values.iter_mut() {
-            *v = v.ln();
-        }
-    }
+    let series = Series::from_table(&table, &spec).map_err(bad_input)?;
     let split = series.split(&a.start, a.end.as_deref(), a.washout, 8).map_err(bad_input)?;
-    let model: ModelKind = a.model.parse().map_err(bad_input)?;
+    let model = a.model;
     let inf = a.common.inference();
     let mut params = ForecastParams::builder()
         .model(model)
-        .trend(trend_of(&a.trend)?)
+        .trend(a.trend)
         .log(a.log)
+        .log_controls(a.log_controls.clone())
         .inference(inf)
         .backtest_folds(if model == ModelKind::Auto { a.folds.max(1) } else { a.folds });
-    params.hw_seasonality = seasonality_of(&a.hw_seasonality)?;
+    params.hw_seasonality = a.hw_seasonality;
     params.hw_damped = a.damped;
     if a.no_season {
         params = params.no_seasons();
     }
     for s in &a.season {
-        let season: Season = parse_arg("--season", s)?;
-        params = params.season(season);
+        params = params.season(*s);
     }
     let params = params.check().map_err(bad_input)?;
     let mut inputs = vec![table.info()];

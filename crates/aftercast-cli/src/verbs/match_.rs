@@ -1,8 +1,8 @@
 //! `aftercast match`: propensity-score matching and weighting on a unit table.
 
-use crate::common::{Common, DataOptions, comma_list, parse_arg, read_table};
+use crate::common::{Common, DataOptions, read_table};
 use crate::failure::bad_input;
-use aftercast_core::units::{UnitSpec, UnitTable};
+use aftercast_core::units::UnitTable;
 use aftercast_match::{Caliper, Estimand, MatchParams, Method, SeparationPolicy, Trim};
 use std::path::PathBuf;
 
@@ -19,23 +19,23 @@ pub struct Args {
     #[arg(long)]
     pub outcome: String,
     /// Covariates of the propensity model, comma-separated (numeric unless named in --categorical).
-    #[arg(long)]
-    pub covariates: String,
+    #[arg(long, required = true, value_delimiter = ',')]
+    pub covariates: Vec<String>,
     /// Which covariates are categorical (one-hot coded), comma-separated.
-    #[arg(long, default_value = "")]
-    pub categorical: String,
+    #[arg(long, value_delimiter = ',')]
+    pub categorical: Vec<String>,
     /// Optional unit id column (checked for duplicates).
     #[arg(long)]
     pub id: Option<String>,
     /// Estimator: nearest, strata, ipw, overlap, aipw.
     #[arg(long, default_value = "nearest")]
-    pub method: String,
+    pub method: Method,
     /// Estimand: att or ate (overlap weights always estimate the overlap-population effect).
     #[arg(long, default_value = "att")]
-    pub estimand: String,
+    pub estimand: Estimand,
     /// Caliper in standard deviations of the logit of the propensity score, or `none`.
     #[arg(long, default_value = "0.2")]
-    pub caliper: String,
+    pub caliper: Caliper,
     /// Match with replacement.
     #[arg(long)]
     pub replace: bool,
@@ -43,8 +43,8 @@ pub struct Args {
     #[arg(long, default_value_t = 1)]
     pub k: usize,
     /// Categorical columns to match exactly on, comma-separated.
-    #[arg(long, default_value = "")]
-    pub exact: String,
+    #[arg(long, value_delimiter = ',')]
+    pub exact: Vec<String>,
     /// Among controls within the caliper, choose by Mahalanobis distance on the covariates.
     #[arg(long)]
     pub mahalanobis: bool,
@@ -52,20 +52,20 @@ pub struct Args {
     #[arg(long)]
     pub bias_adjust: bool,
     /// Add squares of these numeric covariates, comma-separated.
-    #[arg(long, default_value = "")]
-    pub squares: String,
+    #[arg(long, value_delimiter = ',')]
+    pub squares: Vec<String>,
     /// Add products `a:b`, comma-separated.
-    #[arg(long, default_value = "")]
-    pub interact: String,
+    #[arg(long, value_delimiter = ',')]
+    pub interact: Vec<String>,
     /// Further terms, comma-separated: `age^3`, `age^2:educ`, `zero(re74)`.
-    #[arg(long, default_value = "")]
-    pub terms: String,
+    #[arg(long, value_delimiter = ',')]
+    pub terms: Vec<aftercast_match::design::Term>,
     /// Pre-period outcome column: estimate on the change (matched difference-in-differences).
     #[arg(long)]
     pub pre_outcome: Option<String>,
     /// Common-support trimming: none, minmax, crump, or a limit a (keep a <= e <= 1-a).
     #[arg(long, default_value = "none")]
-    pub trim: String,
+    pub trim: Trim,
     /// Number of propensity strata (--method strata).
     #[arg(long, default_value_t = 5)]
     pub strata: usize,
@@ -74,7 +74,7 @@ pub struct Args {
     pub penalty: f64,
     /// On separation of the groups: `penalise` (warn, refit with penalty 1) or `error`.
     #[arg(long, default_value = "penalise")]
-    pub separation: String,
+    pub separation: SeparationPolicy,
     #[command(flatten)]
     pub data_options: DataOptions,
     #[command(flatten)]
@@ -88,82 +88,33 @@ pub struct Args {
 /// `--separation error`, no overlap, no match within the caliper; internal failures otherwise.
 pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     let table = read_table(&a.data)?;
-    let covariates = comma_list(&a.covariates);
-    let exact = comma_list(&a.exact);
-    let mut categorical = comma_list(&a.categorical);
-    for e in &exact {
-        if !categorical.contains(e) {
-            categorical.push(e.clone());
-        }
-    }
-    let mut numeric: Vec<String> = covariates.iter().filter(|c| !categorical.contains(c)).cloned().collect();
-    let mut outcomes = vec![a.outcome.clone()];
-    if let Some(p) = &a.pre_outcome {
-        outcomes.push(p.clone());
-    }
-    // term factors must be read as numbers too
+    let covariates = a.covariates.clone();
+    let exact = a.exact.clone();
     let mut params = MatchParams::new(covariates.clone())
-        .squares(comma_list(&a.squares))
-        .interact(comma_list(&a.interact))
+        .squares(a.squares.clone())
+        .interact(a.interact.clone())
         .map_err(bad_input)?;
-    for t in comma_list(&a.terms) {
-        params = params.terms([t.parse().map_err(bad_input)?]);
-    }
-    for t in &params.terms {
-        for f in &t.factors {
-            let name = match f {
-                aftercast_match::design::Factor::Power { name, .. }
-                | aftercast_match::design::Factor::Zero { name }
-                | aftercast_match::design::Factor::Log1p { name } => name,
-            };
-            if !numeric.contains(name) && !categorical.contains(name) && !outcomes.contains(name) {
-                numeric.push(name.clone());
-            }
-        }
-    }
-    let spec = UnitSpec {
-        id: a.id.clone(),
-        treatment: a.treatment.clone(),
-        outcomes,
-        numeric,
-        categorical,
-        missing: a.data_options.missing,
-    };
-    let units = UnitTable::from_table(&table, &spec)?;
-    let caliper = if a.caliper.trim().eq_ignore_ascii_case("none") {
-        Caliper::None
-    } else {
-        Caliper::SdOfLogit(parse_arg::<f64>("--caliper", &a.caliper)?)
-    };
-    let separation = match a.separation.trim() {
-        "penalise" | "penalize" => SeparationPolicy::Penalise(1.0),
-        "error" => SeparationPolicy::Error,
-        other => {
-            return Err(crate::failure::bad_input_msg(format!(
-                "invalid --separation: '{other}' (use penalise or error)"
-            )));
-        }
-    };
-    let method: Method = a.method.parse().map_err(bad_input)?;
-    let estimand: Estimand = a.estimand.parse().map_err(bad_input)?;
-    let trim: Trim = a.trim.parse().map_err(bad_input)?;
-    params = params
-        .method(method)
-        .estimand(estimand)
-        .k(a.k)
-        .replace(a.replace)
-        .caliper(caliper)
-        .mahalanobis(a.mahalanobis)
-        .exact(exact)
-        .bias_adjust(a.bias_adjust)
-        .trim(trim)
-        .strata(a.strata)
-        .penalty(a.penalty)
-        .separation(separation)
-        .inference(a.common.inference());
+    params = params.terms(a.terms.iter().cloned());
+    params = params.exact(exact);
     if let Some(p) = &a.pre_outcome {
         params = params.pre_outcome(p.clone());
     }
+    let spec = params.unit_spec(&a.treatment, &a.outcome, &a.categorical.clone(), a.id.clone(), a.data_options.missing);
+    let units = UnitTable::from_table(&table, &spec)?;
+    let method = a.method;
+    params = params
+        .method(method)
+        .estimand(a.estimand)
+        .k(a.k)
+        .replace(a.replace)
+        .caliper(a.caliper)
+        .mahalanobis(a.mahalanobis)
+        .bias_adjust(a.bias_adjust)
+        .trim(a.trim)
+        .strata(a.strata)
+        .penalty(a.penalty)
+        .separation(a.separation)
+        .inference(a.common.inference());
     let inf = params.inference;
     let (fitted, est) = aftercast_match::run(&units, &a.outcome, params).map_err(bad_input)?;
     let headline = format!(

@@ -1,6 +1,6 @@
 //! `aftercast synthetic`: synthetic control of treated units from a panel of donors.
 
-use crate::common::{Common, DataOptions, comma_list, parse_arg, read_table};
+use crate::common::{Common, DataOptions, read_table};
 use crate::failure::{bad_input, bad_input_msg};
 use aftercast_core::panel::{LongPanelSpec, Panel};
 use aftercast_synth::{Aggregation, Method, RunOptions, SynthParams};
@@ -22,8 +22,8 @@ pub struct Args {
     #[arg(long)]
     pub outcome: String,
     /// Treated unit(s), comma-separated.
-    #[arg(long)]
-    pub treated: String,
+    #[arg(long, required = true, value_delimiter = ',')]
+    pub treated: Vec<String>,
     /// First period of the change (date or integer period, as in the time column).
     #[arg(long)]
     pub start: String,
@@ -32,16 +32,16 @@ pub struct Args {
     pub end: Option<String>,
     /// Estimator: weights, predictors, intercept, ridge, sdid.
     #[arg(long, default_value = "weights")]
-    pub method: String,
+    pub method: Method,
     /// Covariate columns used as predictors (averaged over the pre-period), comma-separated.
-    #[arg(long, default_value = "")]
-    pub predictors: String,
+    #[arg(long, value_delimiter = ',')]
+    pub predictors: Vec<String>,
     /// Number of pre-period outcome block averages used as predictors.
     #[arg(long, default_value_t = 3)]
     pub outcome_blocks: usize,
     /// Units left out of the donor pool, comma-separated.
-    #[arg(long, default_value = "")]
-    pub exclude: String,
+    #[arg(long, value_delimiter = ',')]
+    pub exclude: Vec<String>,
     /// Drop placebos whose pre-period RMSPE exceeds K times the treated unit's.
     #[arg(long)]
     pub placebo_exclude: Option<f64>,
@@ -68,7 +68,7 @@ pub struct Args {
 /// pre-periods, constant treated series; internal failures otherwise.
 pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     let table = read_table(&a.data)?;
-    let mut covariates = comma_list(&a.predictors);
+    let mut covariates = a.predictors.clone();
     if let Some(s) = &a.size
         && !covariates.contains(s)
     {
@@ -82,7 +82,7 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         date_format: a.data_options.date_format(),
     };
     let panel = Panel::from_long(&table, &spec)?;
-    let treated = comma_list(&a.treated);
+    let treated = a.treated.clone();
     if treated.is_empty() {
         return Err(bad_input_msg("--treated: name at least one treated unit"));
     }
@@ -91,31 +91,18 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         Some(e) => Some(panel.axis.parse_user_time("--end", e)?),
         None => None,
     };
-    let method: Method = parse_arg("--method", &a.method)?;
+    let method = a.method;
     let aggregate = match &a.size {
         None => Aggregation::Mean,
-        Some(col) => {
-            let t0 = panel.axis.first_at_or_after(start).max(1);
-            let (_, m) = panel
-                .covariates
-                .iter()
-                .find(|(n, _)| n == col)
-                .ok_or_else(|| bad_input_msg(format!("--size: no column '{col}'")))?;
-            let mut sizes = Vec::with_capacity(treated.len());
-            for u in &treated {
-                let i = panel.unit_index(u, &a.unit)?;
-                sizes.push(m[i][..t0.min(m[i].len())].iter().sum::<f64>() / t0 as f64);
-            }
-            Aggregation::Weighted(sizes)
-        }
+        Some(col) => Aggregation::BySize(col.clone()),
     };
-    let predictors: Vec<String> = comma_list(&a.predictors);
+    let predictors: Vec<String> = a.predictors.clone();
     let inf = a.common.inference();
     let params = SynthParams::new()
         .method(method)
         .inference(inf)
         .end(end)
-        .exclude(comma_list(&a.exclude))
+        .exclude(a.exclude.clone())
         .placebo_exclude_factor(a.placebo_exclude)
         .predictors(predictors)
         .predictor_outcome_blocks(a.outcome_blocks)

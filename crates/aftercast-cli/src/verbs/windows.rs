@@ -8,8 +8,8 @@ use aftercast_windows::spark::{SparkOptions, run_spark};
 use aftercast_windows::sql::{SparkInput, SparkPlan, spark_sql};
 use aftercast_windows::time::{Offset, parse_timestamp};
 use aftercast_windows::{
-    Aggregation, Anchoring, BadRowPolicy, EventColumns, EventSource, ExposureOptions, Exposures, SeriesFrequency,
-    UnitUniverse, WindowKind, WindowSpec, WindowsError, run,
+    Aggregation, Anchoring, BadRowPolicy, EventColumns, EventSource, ExposureOptions, Exposures, Population,
+    SeriesFrequency, WindowKind, WindowSpec, WindowsError, run,
 };
 use std::path::PathBuf;
 
@@ -48,19 +48,20 @@ pub struct Args {
     /// A ratio metric kept as numerator and denominator columns, repeatable: aov=revenue/orders.
     #[arg(long = "ratio")]
     pub ratios: Vec<String>,
-    /// Analysis end (data end), exclusive: windows ending after it are excluded.
-    #[arg(long)]
-    pub end: String,
     /// Data start, inclusive: windows starting before it are excluded (needed for --series).
+    /// (--start/--end are the change period of the analysis verbs, not the data span.)
     #[arg(long)]
-    pub start: Option<String>,
+    pub from: Option<String>,
+    /// Data end, exclusive: windows ending after it are excluded.
+    #[arg(long)]
+    pub until: String,
     /// Fixed UTC offset of day boundaries and of timestamps written without one (UTC, +02:00).
     #[arg(long, default_value = "UTC")]
     pub tz: String,
     /// Window anchor: exact (the exposure instant) or day-start (its local midnight).
     #[arg(long, default_value = "exact")]
     pub anchoring: String,
-    /// One launch time for all units (with no --exposure-col), and the anchor of never-exposed units.
+    /// One launch time for all units (with no --exposure), and the anchor of never-exposed units.
     #[arg(long)]
     pub launch: Option<String>,
     /// Anchor of never-exposed units (default: --launch).
@@ -68,29 +69,30 @@ pub struct Args {
     pub reference: Option<String>,
     /// Unit column of the exposures file.
     #[arg(long, default_value = "unit")]
-    pub unit_col: String,
-    /// Exposure-time column (default `exposure`; none when --launch is given without it).
+    pub unit: String,
+    /// Exposure-time column of the exposures file (default `exposure`; none when --launch is
+    /// given without it).
     #[arg(long)]
-    pub exposure_col: Option<String>,
+    pub exposure: Option<String>,
     /// Group column of the exposures file (region, segment, arm).
     #[arg(long)]
-    pub group_col: Option<String>,
-    /// Which units: exposures (default; other units' events are bad rows) or
+    pub group: Option<String>,
+    /// Which units the table has: exposures (default; other units' events are bad rows) or
     /// exposures-and-events (units seen only in the events join as never exposed).
     #[arg(long, default_value = "exposures")]
-    pub units: String,
-    /// A file listing every unit (column --unit-col); units not in --exposures join as never
+    pub population: String,
+    /// A file listing every unit (column --unit); units not in --exposures join as never
     /// exposed (native engine only).
     #[arg(long)]
     pub unit_list: Option<PathBuf>,
-    /// Event columns: unit, time, metric, value (comma-separated, in that order).
+    /// Event-log columns: unit, time, metric, value (comma-separated, in that order).
     #[arg(long, default_value = "unit,time,metric,value")]
-    pub event_cols: String,
+    pub event_columns: String,
     /// Metrics whose values may be negative (comma-separated).
     #[arg(long, default_value = "")]
     pub allow_negative: String,
-    /// Bad event rows: fail (default; names file, line, column) or skip (and count).
-    #[arg(long, default_value = "fail")]
+    /// Bad event rows: error (default; stop, naming file, line, column) or skip (and count).
+    #[arg(long, default_value = "error")]
     pub bad_rows: String,
     /// Also build the per-group series: daily or weekly.
     #[arg(long)]
@@ -148,8 +150,9 @@ fn instant(flag: &str, text: &str, off: Offset) -> anyhow::Result<i64> {
     })
 }
 
-fn parse<T: std::str::FromStr<Err = WindowsError>>(text: &str) -> anyhow::Result<T> {
-    text.parse::<T>().map_err(wbad)
+/// Parse a flag's value; the error names the flag (`--bad-rows: invalid bad-row policy: ...`).
+fn parse<T: std::str::FromStr<Err = WindowsError>>(flag: &str, text: &str) -> anyhow::Result<T> {
+    text.parse::<T>().map_err(|e| wbad(e).context(format!("--{flag}")))
 }
 
 /// Build the validated spec and exposure options from the flags.
@@ -175,7 +178,8 @@ pub fn spec_of(a: &Args) -> anyhow::Result<(WindowSpec, ExposureOptions)> {
         let (name, aggs) = m
             .split_once('=')
             .ok_or_else(|| bad_input_msg(format!("--metric '{m}': write NAME=AGG[,AGG], e.g. orders=sum,count")))?;
-        let aggs: Vec<Aggregation> = aggs.split(',').map(parse::<Aggregation>).collect::<anyhow::Result<_>>()?;
+        let aggs: Vec<Aggregation> =
+            aggs.split(',').map(|g| parse::<Aggregation>("metric", g)).collect::<anyhow::Result<_>>()?;
         p = p.metric(name.trim(), &aggs);
     }
     for r in &a.ratios {
@@ -184,21 +188,26 @@ pub fn spec_of(a: &Args) -> anyhow::Result<(WindowSpec, ExposureOptions)> {
             parsed.ok_or_else(|| bad_input_msg(format!("--ratio '{r}': write NAME=NUMERATOR/DENOMINATOR")))?;
         p = p.ratio(n.trim(), x.trim(), y.trim());
     }
-    p = p.end(instant("end", &a.end, off)?);
-    if let Some(s) = &a.start {
-        p = p.start(instant("start", s, off)?);
+    p = p.until(instant("until", &a.until, off)?);
+    if let Some(s) = &a.from {
+        p = p.from(instant("from", s, off)?);
     }
-    p = p.anchoring(parse::<Anchoring>(&a.anchoring)?).bad_rows(parse::<BadRowPolicy>(&a.bad_rows)?);
-    p = p.units(parse::<UnitUniverse>(&a.units)?);
+    p = p
+        .anchoring(parse::<Anchoring>("anchoring", &a.anchoring)?)
+        .bad_rows(parse::<BadRowPolicy>("bad-rows", &a.bad_rows)?);
+    p = p.population(parse::<Population>("population", &a.population)?);
     for m in a.allow_negative.split(',').map(str::trim).filter(|m| !m.is_empty()) {
         p = p.allow_negative(m);
     }
     if let Some(s) = &a.series {
-        p = p.series(parse::<SeriesFrequency>(s)?);
+        p = p.series(parse::<SeriesFrequency>("series", s)?);
     }
-    let cols: Vec<&str> = a.event_cols.split(',').map(str::trim).collect();
+    let cols: Vec<&str> = a.event_columns.split(',').map(str::trim).collect();
     let [unit, time, metric, value] = cols.as_slice() else {
-        return Err(bad_input_msg(format!("--event-cols '{}': give four names: unit,time,metric,value", a.event_cols)));
+        return Err(bad_input_msg(format!(
+            "--event-columns '{}': give four names: unit,time,metric,value",
+            a.event_columns
+        )));
     };
     p = p.event_columns(EventColumns {
         unit: unit.to_string(),
@@ -209,13 +218,12 @@ pub fn spec_of(a: &Args) -> anyhow::Result<(WindowSpec, ExposureOptions)> {
     let spec = p.check().map_err(wbad)?;
     let launch = a.launch.as_deref().map(|t| instant("launch", t, off)).transpose()?;
     let reference = a.reference.as_deref().map(|t| instant("reference", t, off)).transpose()?;
-    let time_col = match (&a.exposure_col, launch) {
+    let time_col = match (&a.exposure, launch) {
         (Some(c), _) => Some(c.clone()),
         (None, Some(_)) => None,
         (None, None) => Some("exposure".to_string()),
     };
-    let opts =
-        ExposureOptions { unit: a.unit_col.clone(), time: time_col, group: a.group_col.clone(), launch, reference };
+    let opts = ExposureOptions { unit: a.unit.clone(), time: time_col, group: a.group.clone(), launch, reference };
     Ok((spec, opts))
 }
 
@@ -258,7 +266,7 @@ pub fn run_verb(a: &Args) -> anyhow::Result<()> {
             if let Some(list) = &a.unit_list {
                 let table = crate::common::read_table(list)?;
                 let ids =
-                    table.text_column(&a.unit_col)?.into_iter().filter(|s| !s.is_empty()).map(str::to_string).collect();
+                    table.text_column(&a.unit)?.into_iter().filter(|s| !s.is_empty()).map(str::to_string).collect();
                 ex.add_unlisted(ids).map_err(wbad)?;
             }
             let threads = a.threads.unwrap_or(0) as usize;
@@ -300,7 +308,7 @@ pub fn run_verb(a: &Args) -> anyhow::Result<()> {
         );
         for w in &out.windows {
             println!(
-                "  {:<24} included {:>8}  excluded: ends after end {:>6}, starts before start {:>6}",
+                "  {:<24} included {:>8}  excluded: ends after --until {:>6}, starts before --from {:>6}",
                 w.window, w.all.included, w.all.excluded_ends_after_end, w.all.excluded_starts_before_start
             );
         }

@@ -350,3 +350,16 @@ impl System {
         }
     }
 }
+
+impl std::str::FromStr for Trend {
+    type Err = String;
+    /// `level`, `linear-trend` or `damped-trend`.
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        match s.trim() {
+            "level" => Ok(Trend::Level),
+            "linear-trend" => Ok(Trend::LinearTrend),
+            "damped-trend" => Ok(Trend::DampedTrend),
+            other => Err(format!("'{other}' is not a trend (level, linear-trend, damped-trend)")),
+        }
+    }
+}

@@ -1,4 +1,6 @@
-//! Ctrl-C and progress for long runs.
+//! Ctrl-C and progress bars for long runs (the libraries report progress through
+//! `aftercast_calibrate::backtest::Progress` and stop on a flag; drawing and signals are the
+//! binary's business).
 //!
 //! [`stop_flag`] installs (once per process) a Ctrl-C handler that raises a shared flag: the
 //! backtest then starts no new placebo origin, finishes the ones in flight, writes what is
@@ -32,15 +34,41 @@ pub fn stop_flag() -> Result<Arc<AtomicBool>, String> {
     .clone()
 }
 
-/// A progress bar on stderr, drawn only when `show` is set and stderr is a terminal.
-pub fn progress_bar(len: u64, show: bool, what: &str) -> ProgressBar {
-    if !(show && std::io::stderr().is_terminal()) {
-        return ProgressBar::hidden();
+/// A progress bar on stderr, drawn only when it is wanted and stderr is a terminal.
+pub struct Bar {
+    bar: OnceLock<ProgressBar>,
+    show: bool,
+}
+
+impl Bar {
+    /// A bar that draws when `show` is set and stderr is a terminal.
+    pub fn new(show: bool) -> Bar {
+        Bar { bar: OnceLock::new(), show: show && std::io::stderr().is_terminal() }
     }
-    let bar = ProgressBar::with_draw_target(Some(len), ProgressDrawTarget::stderr());
-    if let Ok(style) = ProgressStyle::with_template("{bar:30} {pos}/{len} {msg} ({elapsed}, about {eta} left)") {
-        bar.set_style(style);
+}
+
+impl aftercast_calibrate::backtest::Progress for Bar {
+    fn start(&self, total: u64, what: &str) {
+        if !self.show {
+            return;
+        }
+        let bar = ProgressBar::with_draw_target(Some(total), ProgressDrawTarget::stderr());
+        if let Ok(style) = ProgressStyle::with_template("{bar:30} {pos}/{len} {msg} ({elapsed}, about {eta} left)") {
+            bar.set_style(style);
+        }
+        bar.set_message(what.to_string());
+        let _ = self.bar.set(bar);
     }
-    bar.set_message(what.to_string());
-    bar
+
+    fn step(&self) {
+        if let Some(b) = self.bar.get() {
+            b.inc(1);
+        }
+    }
+
+    fn finish(&self) {
+        if let Some(b) = self.bar.get() {
+            b.finish_and_clear();
+        }
+    }
 }
