@@ -51,12 +51,12 @@ pub fn render(t: &ScenarioTruth) -> String {
     line("aftercast demo --out DIR");
     line("```");
     line("");
-    line("The generator is `crates/aftercast-cli/src/demo/` (one module per file family; this");
+    line("The generator is `crates/aftercast-demo/src/` (one module per file family; this");
     line("README is written by `readme.rs` from the generated truth). The test");
-    line("`crates/aftercast-cli/tests/demo_data.rs` regenerates everything into a scratch folder,");
+    line("`crates/aftercast-demo/tests/demo_data.rs` regenerates everything into a scratch folder,");
     line("checks that the bytes equal the files committed here, and re-computes each true effect");
     line("from the files. After changing the generator, refresh this folder with");
-    line("`AFTERCAST_REGENERATE_DEMO_DATA=1 cargo test -p aftercast-cli --test demo_data` and commit it.");
+    line("`AFTERCAST_REGENERATE_DEMO_DATA=1 cargo test -p aftercast-demo --test demo_data` and commit it.");
     line("");
     line("## Seeds");
     line("");

@@ -536,7 +536,7 @@ fn readme_states_every_true_effect() {
         "**$6.00** exactly",
         "**$4.00** exactly",
         "**$15.00** exactly",
-        "crates/aftercast-cli/src/demo/",
+        "crates/aftercast-demo/src/",
     ] {
         assert!(text.contains(needle), "README lacks {needle:?}");
     }
