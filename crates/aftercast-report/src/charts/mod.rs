@@ -338,11 +338,11 @@ pub struct SeriesNames<'a> {
 
 impl Default for SeriesNames<'_> {
     fn default() -> Self {
-        SeriesNames { observed: "observed", counterfactual: "counterfactual (median)" }
+        SeriesNames { observed: "observed", counterfactual: "counterfactual" }
     }
 }
 
-/// Observed series against the counterfactual median with its band, across the pre- and
+/// Observed series against the point counterfactual with its band, across the pre- and
 /// post-periods, the change marked by a vertical rule and a tint over the post-period.
 /// Missing values are NaN; slices shorter than `x` are padded with NaN.
 #[allow(clippy::too_many_arguments)]
@@ -519,7 +519,7 @@ pub fn running_total_chart(name: &str, x: &[f64], xkind: XKind, total: (&[f64], 
         "The effect added up period by period from the change onwards; the band is where the total lies with the stated probability.",
         body,
     )
-    .legend(&[("running total (median)", theme::SLATE, Swatch::Line), (&band_label, theme::SLATE, Swatch::Band)])
+    .legend(&[("running total", theme::SLATE, Swatch::Line), (&band_label, theme::SLATE, Swatch::Band)])
 }
 
 /// The treated unit's gap (treated minus synthetic) drawn over the gaps of placebo runs, each
@@ -869,7 +869,7 @@ pub fn posterior_chart(
 pub struct EstimateBar {
     /// Method label.
     pub label: String,
-    /// Its summary (median and equal-tailed interval are drawn).
+    /// Its summary (the point `estimate` and the HDI are drawn, as in every table).
     pub summary: Summary,
 }
 
@@ -885,15 +885,15 @@ pub fn estimates_chart(
 ) -> Chart {
     let rows: Vec<Row> = rows
         .iter()
-        .filter(|r| r.summary.median.is_finite() || r.summary.mean.is_finite())
+        .filter(|r| r.summary.estimate.is_finite())
         .map(|r| {
-            let point = if r.summary.median.is_finite() { r.summary.median } else { r.summary.mean };
-            let covers = truth.is_none_or(|t| r.summary.lower <= t.median && t.median <= r.summary.upper);
+            let point = r.summary.estimate;
+            let covers = truth.is_none_or(|t| r.summary.hdi_lower <= t.estimate && t.estimate <= r.summary.hdi_upper);
             Row {
                 label: r.label.clone(),
                 value: point,
-                lo: r.summary.lower,
-                hi: r.summary.upper,
+                lo: r.summary.hdi_lower,
+                hi: r.summary.hdi_upper,
                 before: f64::NAN,
                 color: if covers { theme::INK } else { theme::BRICK },
                 note: theme::fmt_value(point, format),
@@ -906,14 +906,14 @@ pub fn estimates_chart(
     let pct = format!("{:.0}%", level * 100.0);
     let h = rows_height(rows.len());
     let (title, caption, reference, legend) = match truth {
-        Some(t) if t.median.is_finite() => (
+        Some(t) if t.estimate.is_finite() => (
             "Observational estimates against the experiment",
             format!(
-                "Each method's estimate of the {quantity} with its {pct} interval, against the randomized experiment's answer (ochre line and band); red rows miss the experiment."
+                "Each method's estimate of the {quantity} with its {pct} HDI, against the randomized experiment's answer (ochre line and band); red rows miss the experiment."
             ),
             Some((
-                t.median,
-                (t.lower.is_finite() && t.upper.is_finite()).then_some((t.lower, t.upper)),
+                t.estimate,
+                (t.hdi_lower.is_finite() && t.hdi_upper.is_finite()).then_some((t.hdi_lower, t.hdi_upper)),
                 "experiment".to_string(),
             )),
             vec![
@@ -924,9 +924,7 @@ pub fn estimates_chart(
         ),
         _ => (
             "Estimates side by side",
-            format!(
-                "Each method's estimate of the {quantity} with its {pct} interval; the vertical rule marks no effect."
-            ),
+            format!("Each method's estimate of the {quantity} with its {pct} HDI; the vertical rule marks no effect."),
             Some((0.0, None, "no effect".to_string())),
             vec![("estimate and interval", theme::INK, Swatch::Dot)],
         ),
