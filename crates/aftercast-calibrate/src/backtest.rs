@@ -545,11 +545,10 @@ pub fn run(
     }
     let partial = match control.partial {
         Some(p) => {
-            let file = std::fs::File::create(p).map_err(|source| CalibrateError::Io {
-                path: p.to_path_buf(),
-                what: "cannot create the partial-results file",
-                source,
-            })?;
+            // written line by line so that an interruption keeps what is done; never over an
+            // input or through a link
+            aftercast_core::output::check_output(p)?;
+            let file = std::fs::File::create(p).map_err(|e| aftercast_core::output::output_error(p, e))?;
             let mut w = Partial { file, path: p.to_path_buf() };
             w.write(&json!({"record": "header", "model": model.name(), "series": data.name, "origins": origins.len(), "spec": spec}))?;
             Some(Mutex::new(w))

@@ -77,7 +77,13 @@ pub fn append(path: &Path, records: &[HistoryRecord]) -> CalibrateResult<()> {
         text.push_str(&serde_json::to_string(r).unwrap_or_default());
         text.push('\n');
     }
-    let mut f = std::fs::OpenOptions::new().create(true).append(true).open(path).map_err(io)?;
+    // appended in place (a history grows), but never to an input of this run or through a link
+    aftercast_core::output::check_output(path)?;
+    let mut f = std::fs::OpenOptions::new()
+        .create(true)
+        .append(true)
+        .open(path)
+        .map_err(|e| aftercast_core::output::output_error(path, e))?;
     f.write_all(text.as_bytes()).map_err(io)?;
     f.flush().map_err(io)
 }
@@ -88,10 +94,11 @@ pub fn append(path: &Path, records: &[HistoryRecord]) -> CalibrateResult<()> {
 /// [`CalibrateError::Io`]; [`CalibrateError::BadHistory`] naming the line that is not a record
 /// or carries a non-finite number or a level outside (0, 1).
 pub fn read(path: &Path) -> CalibrateResult<Vec<HistoryRecord>> {
-    let text = std::fs::read_to_string(path).map_err(|source| CalibrateError::Io {
+    let bytes = aftercast_core::table::read_input(path)?;
+    let text = String::from_utf8(bytes).map_err(|e| CalibrateError::Io {
         path: path.to_path_buf(),
         what: "cannot read the history file",
-        source,
+        source: std::io::Error::new(std::io::ErrorKind::InvalidData, e.utf8_error()),
     })?;
     let mut out = Vec::new();
     for (i, line) in text.lines().enumerate() {

@@ -121,6 +121,14 @@ pub fn plasmode(
             detail: "a finite effect and at least one replicate".into(),
         });
     }
+    // one result per replicate and method is kept (32 bytes), and each replicate in flight
+    // holds a simulated outcome column
+    aftercast_core::budget::check(
+        "--replicates",
+        spec.replicates as u64,
+        32 * methods.len().max(1) as u64,
+        8 * units.len() as u64 * rayon::current_num_threads() as u64,
+    )?;
     let model = outcome_model(units, outcome, covariates)?;
     let n = units.len();
     let fitted: Vec<f64> =

@@ -121,25 +121,84 @@ pub fn read_table(path: &Path) -> anyhow::Result<RawTable> {
     RawTable::read(path).map_err(anyhow::Error::new)
 }
 
-/// Refuse to write into a non-empty folder unless forced.
-///
-/// # Errors
-/// Bad input when the folder exists and is not empty.
-pub fn check_out_dir(dir: &Path, force: bool) -> anyhow::Result<()> {
-    if dir.exists() {
-        if !dir.is_dir() {
-            return Err(bad_input_msg(format!("--out {}: exists and is not a folder", dir.display())));
+/// An output folder being written. It refuses a non-empty folder unless forced; forced, it
+/// first removes what an earlier aftercast run wrote there (result.json, report.html,
+/// draws.parquet, analyses/*.json and *.draws.parquet, charts/*.png and *.svg) so that no stale
+/// analysis or chart survives, and sweeps temporary files a killed run left. A folder this run
+/// created is removed again when the run fails before [`OutDir::finish`].
+#[derive(Debug)]
+pub struct OutDir {
+    path: PathBuf,
+    created: bool,
+    finished: bool,
+}
+
+/// Top-level files aftercast writes into an output folder.
+const OWNED_FILES: &[&str] = &["result.json", "report.html", "draws.parquet"];
+
+impl OutDir {
+    /// Check and create the folder.
+    ///
+    /// # Errors
+    /// Bad input when it exists and is not a folder, or is not empty without `force`.
+    pub fn prepare(dir: &Path, force: bool) -> anyhow::Result<OutDir> {
+        let existed = dir.exists();
+        if existed {
+            if !dir.is_dir() {
+                return Err(bad_input_msg(format!("--out {}: exists and is not a folder", dir.display())));
+            }
+            let non_empty = std::fs::read_dir(dir).map(|mut d| d.next().is_some()).unwrap_or(false);
+            if non_empty && !force {
+                return Err(bad_input_msg(format!(
+                    "--out {}: the folder is not empty; pass --force to write into it",
+                    dir.display()
+                )));
+            }
+            clear_previous(dir);
         }
-        let non_empty = std::fs::read_dir(dir).map(|mut d| d.next().is_some()).unwrap_or(false);
-        if non_empty && !force {
-            return Err(bad_input_msg(format!(
-                "--out {}: the folder is not empty; pass --force to write into it",
-                dir.display()
-            )));
+        aftercast_core::output::create_folder(dir)?;
+        Ok(OutDir { path: dir.to_path_buf(), created: !existed, finished: false })
+    }
+
+    /// The folder.
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+
+    /// Everything promised was written: keep the folder.
+    pub fn finish(mut self) {
+        self.finished = true;
+    }
+}
+
+impl Drop for OutDir {
+    fn drop(&mut self) {
+        if !self.finished && self.created {
+            let _ = std::fs::remove_dir_all(&self.path);
         }
     }
-    std::fs::create_dir_all(dir).map_err(|source| DataError::Io { path: dir.to_path_buf(), source })?;
-    Ok(())
+}
+
+fn clear_previous(dir: &Path) {
+    aftercast_core::output::sweep_stale(dir);
+    for f in OWNED_FILES {
+        let p = dir.join(f);
+        if p.symlink_metadata().is_ok_and(|m| m.is_file()) {
+            let _ = std::fs::remove_file(p);
+        }
+    }
+    let ours = |sub: &str, ends: &[&str]| {
+        let Ok(entries) = std::fs::read_dir(dir.join(sub)) else { return };
+        for e in entries.flatten() {
+            let name = e.file_name().to_string_lossy().into_owned();
+            if ends.iter().any(|x| name.ends_with(x)) && e.file_type().is_ok_and(|t| t.is_file()) {
+                let _ = std::fs::remove_file(e.path());
+            }
+        }
+        aftercast_core::output::sweep_stale(&dir.join(sub));
+    };
+    ours("analyses", &[".json", ".draws.parquet"]);
+    ours("charts", &[".png", ".svg"]);
 }
 
 /// Write a verb's outputs: `--json FILE`, and with `--out DIR` the result, its draws, its charts
@@ -153,8 +212,7 @@ pub fn write_outputs(common: &Common, outcome: &crate::verbs::Outcome) -> anyhow
         aftercast_report::write_json(p, result)?;
     }
     if let Some(dir) = &common.out {
-        check_out_dir(dir, common.force)?;
-        aftercast_report::write_json(&dir.join("result.json"), result)?;
+        let out = OutDir::prepare(dir, common.force)?;
         write_draws(&dir.join("draws.parquet"), &outcome.finished.draws)?;
         let analysis = report_analysis(outcome, &outcome.headline, None, &result.verb);
         aftercast_report::charts::write_all(
@@ -173,6 +231,9 @@ pub fn write_outputs(common: &Common, outcome: &crate::verbs::Outcome) -> anyhow
             study_file: None,
         };
         aftercast_report::html::write(&input, &dir.join("report.html"))?;
+        // result.json last: its presence says every other output is complete
+        aftercast_report::write_json(&dir.join("result.json"), result)?;
+        out.finish();
     }
     Ok(())
 }

@@ -38,8 +38,39 @@ pub fn bad_input_msg(msg: impl Into<String>) -> anyhow::Error {
     bad_input(Msg(msg.into()))
 }
 
-/// Exit code for an error: 2 if any cause is bad input, otherwise 1.
+/// A run stopped by the user (Ctrl-C) after writing what it had: exit code 130.
+#[derive(Debug)]
+pub struct Interrupted(pub String);
+
+impl fmt::Display for Interrupted {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "interrupted: {}", self.0)
+    }
+}
+
+impl std::error::Error for Interrupted {}
+
+/// Exit code for an error: 130 if the user interrupted the run, 2 if any cause is bad input,
+/// otherwise 1.
 pub fn exit_code(e: &anyhow::Error) -> i32 {
-    let input = e.chain().any(|c| c.is::<BadInput>() || c.is::<aftercast_core::DataError>());
+    if e.chain().any(|c| c.is::<Interrupted>()) {
+        return 130;
+    }
+    let input = e.chain().any(|c| {
+        c.is::<BadInput>()
+            || c.is::<aftercast_core::DataError>()
+            || matches!(
+                c.downcast_ref::<aftercast_report::ReportError>(),
+                Some(aftercast_report::ReportError::Output(_))
+            )
+            || matches!(
+                c.downcast_ref::<aftercast_windows::WindowsError>(),
+                Some(aftercast_windows::WindowsError::Data(_))
+            )
+            || matches!(
+                c.downcast_ref::<aftercast_calibrate::CalibrateError>(),
+                Some(aftercast_calibrate::CalibrateError::Data(_))
+            )
+    });
     if input { 2 } else { 1 }
 }

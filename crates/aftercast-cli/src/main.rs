@@ -3,6 +3,8 @@
 //! This binary is glue: it parses flags, loads inputs, calls the libraries and writes outputs.
 //! Exit codes: 0 success, 2 bad input or usage, 1 internal failure.
 
+#[macro_use]
+mod say;
 mod common;
 mod failure;
 mod progress;
@@ -95,9 +97,22 @@ fn main() {
     // (the catch below turns it into exit code 1).
     std::panic::set_hook(Box::new(|info| {
         let at = info.location().map(|l| format!(" at {}:{}", l.file(), l.line())).unwrap_or_default();
-        eprintln!("aftercast: internal error{at}: {}", panic_text(info.payload()));
+        esayln!("aftercast: internal error{at}: {}", panic_text(info.payload()));
     }));
-    let cli = Cli::parse();
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(e) if !e.use_stderr() => {
+            // --help and --version: printed in full, exit 0
+            say!("{e}");
+            std::process::exit(0);
+        }
+        Err(e) => {
+            // usage errors in one line, as every other error (the usage text is one --help away)
+            let text = e.render().to_string();
+            esayln!("aftercast: error: {}", crate::study::one_line(&text).trim_start_matches("error: "));
+            std::process::exit(2);
+        }
+    };
     let code = match std::panic::catch_unwind(|| {
         if let Some(n) = threads_of(&cli.verb) {
             // A second initialisation can only fail if a pool exists already; results never
@@ -110,11 +125,11 @@ fn main() {
         Ok(Err(e)) => {
             let code = failure::exit_code(&e);
             let kind = if code == 2 { "error" } else { "internal error" };
-            eprintln!("aftercast: {kind}: {e:#}");
+            esayln!("aftercast: {kind}: {e:#}");
             code
         }
         Err(_) => {
-            eprintln!(
+            esayln!(
                 "aftercast: internal error: the program stopped unexpectedly (a bug; please report it with the command line)"
             );
             1

@@ -77,8 +77,13 @@ pub struct AnalysisSpec {
 /// Flags a study may not set: outputs belong to the study run.
 const RESERVED: &[&str] = &["json", "out", "force", "quiet", "threads"];
 
-/// Flags whose values are file paths, resolved against the study file's folder.
-const PATH_FLAGS: &[&str] = &["data", "events", "experiment", "pool", "history", "exposures", "calendar"];
+/// Flags whose values are input files, resolved against the study file's folder.
+const PATH_FLAGS: &[&str] =
+    &["data", "events", "experiment", "pool", "exposures", "calendar", "plasmode", "arms-data", "summarize", "starts"];
+
+/// Flags whose values are files the analysis writes: they resolve inside the run's output
+/// folder, and absolute paths or `..` are refused (a study never writes outside `--out`).
+const OUTPUT_FLAGS: &[&str] = &["partial", "history"];
 
 impl Study {
     /// Read and check a study file.
@@ -86,10 +91,14 @@ impl Study {
     /// # Errors
     /// Bad input for unreadable or malformed files, duplicate or unsafe names, reserved flags.
     pub fn read(path: &Path) -> anyhow::Result<Study> {
-        let text = std::fs::read_to_string(path)
-            .map_err(|source| aftercast_core::DataError::Io { path: path.to_path_buf(), source })?;
-        let study: Study = toml::from_str(&text)
-            .map_err(|e| bad_input_msg(format!("{}: not a valid study file: {e}", path.display())))?;
+        let bytes = aftercast_core::table::read_input(path)?;
+        let text = String::from_utf8(bytes)
+            .map_err(|_| bad_input_msg(format!("{}: a study file must be UTF-8 text", path.display())))?;
+        let study: Study = toml::from_str(&text).map_err(|e| {
+            let line = e.span().map(|s| text[..s.start.min(text.len())].matches('\n').count() + 1);
+            let at = line.map(|l| format!(", line {l}")).unwrap_or_default();
+            bad_input_msg(format!("{}{at}: not a valid study file: {}", path.display(), one_line(e.message())))
+        })?;
         let mut seen = std::collections::HashSet::new();
         if study.analyses.is_empty() {
             return Err(bad_input_msg(format!("{}: the study lists no [[analysis]]", path.display())));
@@ -118,12 +127,13 @@ impl Study {
         Ok(study)
     }
 
-    /// The argument vector of one analysis (`aftercast <verb> --flag value ...`), with paths
-    /// resolved against `base` (the study file's folder).
+    /// The argument vector of one analysis (`aftercast <verb> --flag value ...`), with input
+    /// paths resolved against `base` (the study file's folder) and output paths inside `out`.
     ///
     /// # Errors
-    /// Bad input for flag values of an unsupported type.
-    pub fn argv(&self, a: &AnalysisSpec, base: &Path) -> anyhow::Result<Vec<String>> {
+    /// Bad input for flag values of an unsupported type, and for an output path that would
+    /// leave `out`.
+    pub fn argv(&self, a: &AnalysisSpec, base: &Path, out: &Path) -> anyhow::Result<Vec<String>> {
         let mut argv = vec!["aftercast".to_string(), a.verb.clone()];
         let mut merged: BTreeMap<&str, &toml::Value> = BTreeMap::new();
         for (k, v) in &self.defaults {
@@ -158,13 +168,40 @@ impl Study {
                         )));
                     }
                 };
-                let text = if PATH_FLAGS.contains(&k) { resolve(base, &text) } else { text };
+                let text = if PATH_FLAGS.contains(&k) {
+                    let resolved = resolve(base, &text);
+                    // known as an input before any analysis writes: no output may replace it
+                    aftercast_core::output::register_input(Path::new(&resolved));
+                    resolved
+                } else if OUTPUT_FLAGS.contains(&k) {
+                    inside(out, &text).ok_or_else(|| {
+                        bad_input_msg(format!(
+                            "analysis '{}': key '{k}' = '{text}' must name a file inside the output folder (no absolute path, no '..')",
+                            a.name
+                        ))
+                    })?
+                } else {
+                    text
+                };
                 argv.push(format!("--{k}"));
                 argv.push(text);
             }
         }
         Ok(argv)
     }
+}
+
+/// `p` under `out`, when it is a relative path without `..`.
+fn inside(out: &Path, p: &str) -> Option<String> {
+    use std::path::Component;
+    let path = Path::new(p);
+    let ok = !p.is_empty() && path.components().all(|c| matches!(c, Component::Normal(_) | Component::CurDir));
+    ok.then(|| out.join(path).to_string_lossy().into_owned())
+}
+
+/// The first line of a message, for one-line errors.
+pub fn one_line(msg: &str) -> String {
+    msg.lines().map(str::trim).find(|l| !l.is_empty()).unwrap_or("").to_string()
 }
 
 fn resolve(base: &Path, p: &str) -> String {

@@ -39,9 +39,9 @@ impl std::fmt::Display for Location {
             write!(f, ", line {l}")?;
         }
         match (&self.column, &self.column_name) {
-            (Some(c), Some(n)) => write!(f, ", column {c} ('{n}')")?,
+            (Some(c), Some(n)) => write!(f, ", column {c} ('{}')", shown(n))?,
             (Some(c), None) => write!(f, ", column {c}")?,
-            (None, Some(n)) => write!(f, ", column '{n}'")?,
+            (None, Some(n)) => write!(f, ", column '{}'", shown(n))?,
             (None, None) => {}
         }
         Ok(())
@@ -60,6 +60,33 @@ pub enum DataError {
         /// The operating-system error.
         #[source]
         source: std::io::Error,
+    },
+    /// An output could not be written for a reason the user can fix.
+    #[error("{}: cannot write: {detail}", path.display())]
+    Output {
+        /// The output.
+        path: PathBuf,
+        /// The reason in words.
+        detail: String,
+        /// The operating-system error.
+        #[source]
+        source: std::io::Error,
+    },
+    /// An output names a file this run reads.
+    #[error("{}: refusing to write over an input of this run ({})", path.display(), input.display())]
+    OutputIsInput {
+        /// The output as given.
+        path: PathBuf,
+        /// The input it is (canonical path).
+        input: PathBuf,
+    },
+    /// An output names a link, folder, device or FIFO.
+    #[error("{}: refusing to write: it is {kind}; name a regular file", path.display())]
+    OutputNotRegular {
+        /// The output as given.
+        path: PathBuf,
+        /// What it is.
+        kind: &'static str,
     },
     /// The file has no bytes, or no header.
     #[error("{}: the file is empty", path.display())]
@@ -94,7 +121,7 @@ pub enum DataError {
         found: usize,
     },
     /// Two header cells carry the same name.
-    #[error("{at}: column name '{name}' appears twice in the header")]
+    #[error("{at}: column name '{}' appears twice in the header", crate::error::shown(name))]
     DuplicateColumn {
         /// Where.
         at: Location,
@@ -102,7 +129,7 @@ pub enum DataError {
         name: String,
     },
     /// A column the analysis needs is not in the file.
-    #[error("{}: no column named '{name}' (the file has: {})", path.display(), available.join(", "))]
+    #[error("{}: no column named '{}' (the file has: {})", path.display(), crate::error::shown(name), crate::error::shown(&available.join(", ")))]
     MissingColumn {
         /// The file.
         path: PathBuf,
@@ -112,7 +139,7 @@ pub enum DataError {
         available: Vec<String>,
     },
     /// A cell that must hold a number does not.
-    #[error("{at}: '{text}' is not a number")]
+    #[error("{at}: '{}' is not a number", crate::error::shown(text))]
     BadNumber {
         /// Where.
         at: Location,
@@ -120,7 +147,7 @@ pub enum DataError {
         text: String,
     },
     /// A cell holds NaN or an infinity.
-    #[error("{at}: '{text}' is not a finite number (NaN and infinities are not accepted)")]
+    #[error("{at}: '{}' is not a finite number (NaN and infinities are not accepted)", crate::error::shown(text))]
     NonFinite {
         /// Where.
         at: Location,
@@ -128,7 +155,7 @@ pub enum DataError {
         text: String,
     },
     /// A cell that must hold a date does not.
-    #[error("{at}: '{text}' is not a date in {expected} form")]
+    #[error("{at}: '{}' is not a date in {} form", crate::error::shown(text), crate::error::shown(expected))]
     BadDate {
         /// Where.
         at: Location,
@@ -144,7 +171,7 @@ pub enum DataError {
         at: Location,
     },
     /// The same time appears twice in a series, or the same unit and time twice in a panel.
-    #[error("{at}: duplicate {what} '{key}' (first seen on line {first_line})")]
+    #[error("{at}: duplicate {what} '{}' (first seen on line {first_line})", crate::error::shown(key))]
     Duplicate {
         /// Where the second occurrence is.
         at: Location,
@@ -156,7 +183,11 @@ pub enum DataError {
         first_line: u64,
     },
     /// Times do not increase.
-    #[error("{at}: time '{text}' comes before the previous row's '{previous}'; rows must be in time order")]
+    #[error(
+        "{at}: time '{}' comes before the previous row's '{}'; rows must be in time order",
+        crate::error::shown(text),
+        crate::error::shown(previous)
+    )]
     NonMonotone {
         /// Where.
         at: Location,
@@ -166,7 +197,11 @@ pub enum DataError {
         previous: String,
     },
     /// Times are not evenly spaced (gap policy `Error`), or the spacing matches no frequency.
-    #[error("{at}: irregular time step from '{previous}' to '{text}' ({detail})")]
+    #[error(
+        "{at}: irregular time step from '{}' to '{}' ({detail})",
+        crate::error::shown(previous),
+        crate::error::shown(text)
+    )]
     Irregular {
         /// Where.
         at: Location,
@@ -198,7 +233,7 @@ pub enum DataError {
         start: String,
     },
     /// A treated unit named on the command line is not in the data.
-    #[error("{}: treated unit '{unit}' is not in column '{column}'", path.display())]
+    #[error("{}: treated unit '{}' is not in column '{}'", path.display(), crate::error::shown(unit), crate::error::shown(column))]
     UnitNotFound {
         /// The file.
         path: PathBuf,
@@ -208,7 +243,7 @@ pub enum DataError {
         column: String,
     },
     /// A treatment or arm column takes only one value.
-    #[error("{}: column '{column}' has only the value '{value}'; treated and untreated units are both needed", path.display())]
+    #[error("{}: column '{}' has only the value '{}'; treated and untreated units are both needed", path.display(), crate::error::shown(column), crate::error::shown(value))]
     ConstantTreatment {
         /// The file.
         path: PathBuf,
@@ -218,7 +253,10 @@ pub enum DataError {
         value: String,
     },
     /// A treatment cell is not one of the accepted spellings.
-    #[error("{at}: '{text}' is not a treatment value (use 1/0, true/false, yes/no or treated/control)")]
+    #[error(
+        "{at}: '{}' is not a treatment value (use 1/0, true/false, yes/no or treated/control)",
+        crate::error::shown(text)
+    )]
     BadTreatment {
         /// Where.
         at: Location,
@@ -226,7 +264,7 @@ pub enum DataError {
         text: String,
     },
     /// A panel does not have every unit at every period.
-    #[error("{}: unit '{unit}' has no row for period '{period}'; panels must be balanced", path.display())]
+    #[error("{}: unit '{}' has no row for period '{}'; panels must be balanced", path.display(), crate::error::shown(unit), crate::error::shown(period))]
     UnbalancedPanel {
         /// The file.
         path: PathBuf,
@@ -248,7 +286,7 @@ pub enum DataError {
         needed: usize,
     },
     /// A value the user gave on the command line or in a study file is not valid.
-    #[error("invalid {what}: '{text}' ({detail})")]
+    #[error("invalid {what}: '{}' ({detail})", crate::error::shown(text))]
     BadArgument {
         /// Which argument.
         what: String,
@@ -269,3 +307,26 @@ pub enum DataError {
 
 /// Result alias of the data layer.
 pub type DataResult<T> = Result<T, DataError>;
+
+/// Text from a file as an error message shows it: control characters escaped (a cell cannot
+/// move the cursor or start a new line in the terminal) and cut to about 80 characters.
+pub fn shown(text: &str) -> String {
+    const MAX: usize = 80;
+    let mut out = String::new();
+    for (count, c) in text.chars().enumerate() {
+        if count == MAX {
+            let rest = text.chars().count() - MAX;
+            out.push_str(&format!("... ({rest} more characters)"));
+            return out;
+        }
+        // control characters and the bidirectional overrides (which reorder what follows
+        // them on screen) are shown as escapes
+        let bidi = matches!(c, '\u{200E}' | '\u{200F}' | '\u{202A}'..='\u{202E}' | '\u{2066}'..='\u{2069}');
+        if c.is_control() || bidi {
+            out.extend(c.escape_default());
+        } else {
+            out.push(c);
+        }
+    }
+    out
+}

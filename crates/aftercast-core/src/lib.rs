@@ -13,10 +13,12 @@
 //! # Ok::<(), aftercast_core::error::DataError>(())
 //! ```
 
+pub mod budget;
 #[cfg(feature = "parquet")]
 pub mod draws_file;
 pub mod error;
 pub mod estimate;
+pub mod output;
 pub mod panel;
 #[cfg(feature = "parquet")]
 mod parquet_read;

@@ -172,6 +172,20 @@ impl Series {
                         detail: "periods are missing and control series cannot be filled".into(),
                     });
                 }
+                // a gap longer than the whole file is a mistyped time, not missing data (and
+                // filling it could take gigabytes)
+                if steps - 1 > points.len() as i64 {
+                    return Err(DataError::Irregular {
+                        at: table.at(row, tcol),
+                        text: t.to_string(),
+                        previous: prev.to_string(),
+                        detail: format!(
+                            "{} periods would be inserted, more than the file's {} rows: is this time mistyped?",
+                            steps - 1,
+                            points.len()
+                        ),
+                    });
+                }
                 for s in 1..steps {
                     let p = crate::time::step_forward(freq, prev, s).ok_or_else(|| DataError::Invalid {
                         at: table.at(row, tcol),

@@ -78,7 +78,7 @@ impl RawTable {
     /// [`DataError::Malformed`], [`DataError::RaggedRow`], [`DataError::DuplicateColumn`].
     pub fn read(path: impl AsRef<Path>) -> DataResult<Self> {
         let path = path.as_ref();
-        let bytes = std::fs::read(path).map_err(|source| DataError::Io { path: path.to_path_buf(), source })?;
+        let bytes = read_input(path)?;
         match Format::from_path(path) {
             Format::Csv => Self::from_csv_bytes(path, &bytes),
             Format::Parquet => Self::from_parquet_bytes(path, bytes),
@@ -86,6 +86,8 @@ impl RawTable {
     }
 
     /// Parse CSV bytes; `path` is used in messages only.
+    ///
+    /// (Reading a file goes through [`read_input`], which registers it as an input.)
     ///
     /// # Errors
     /// As [`RawTable::read`].
@@ -294,4 +296,21 @@ pub fn parse_number_text(text: &str) -> Result<Option<f64>, bool> {
         Ok(_) => Err(true),
         Err(_) => Err(false),
     }
+}
+
+/// Read an input file whole: it must be a regular file (a device such as /dev/zero, a FIFO or a
+/// folder is refused rather than read forever), and it is registered as an input of the run so
+/// that no output may replace it ([`crate::output::register_input`]).
+///
+/// # Errors
+/// [`DataError::Io`] naming the file.
+pub fn read_input(path: &Path) -> DataResult<Vec<u8>> {
+    let io = |source| DataError::Io { path: path.to_path_buf(), source };
+    let meta = std::fs::metadata(path).map_err(io)?;
+    if !meta.is_file() {
+        let what = if meta.is_dir() { "a folder" } else { "not a regular file (a device, FIFO or socket)" };
+        return Err(io(std::io::Error::new(std::io::ErrorKind::InvalidInput, format!("it is {what}"))));
+    }
+    crate::output::register_input(path);
+    std::fs::read(path).map_err(io)
 }

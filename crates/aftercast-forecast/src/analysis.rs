@@ -797,6 +797,14 @@ pub fn analyse(
     events: Option<&EventCalendar>,
 ) -> ForecastResult<ForecastRun> {
     let pp = params.get();
+    // the counterfactual paths (and two working copies) must fit in memory
+    aftercast_core::budget::check("--draws", pp.inference.draws as u64, 3 * 8 * split.post_end as u64, 0)?;
+    let pre: Vec<f64> = series.outcome[..split.pre_end].iter().copied().filter(|v| v.is_finite()).collect();
+    if let Some(first) = pre.first()
+        && pre.iter().all(|v| v == first)
+    {
+        return Err(ForecastError::ConstantOutcome { value: *first, periods: pre.len() });
+    }
     let (prepared, mut warnings, control_breaks) = prepare(series, &split, params, events)?;
     let models: Vec<ModelKind> = if pp.model == ModelKind::Auto {
         vec![ModelKind::Structural, ModelKind::HoltWinters, ModelKind::Harmonic]

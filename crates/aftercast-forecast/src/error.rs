@@ -59,6 +59,16 @@ pub enum ForecastError {
         /// The value.
         value: f64,
     },
+    /// The outcome does not vary in the pre-period: there is nothing to forecast from.
+    #[error(
+        "the outcome is constant ({value}) over the {periods} pre-periods; a forecast from its own past cannot say what the change did (compare with untreated units instead)"
+    )]
+    ConstantOutcome {
+        /// The constant value.
+        value: f64,
+        /// Pre-periods.
+        periods: usize,
+    },
     /// A control named for the log scale cannot be put on it.
     #[error("--log-controls: control '{name}' is {value} at {at}; the log scale needs positive values")]
     NonPositiveControlForLog {

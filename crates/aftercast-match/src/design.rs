@@ -235,6 +235,20 @@ impl Design {
                 kinds.push(ColumnKind::Numeric);
                 cols.push(rows.iter().map(|&i| x[i]).collect());
             } else if let Some(cat) = units.categorical.iter().find(|k| &k.name == c) {
+                // one column per level: a covariate with about as many levels as units cannot
+                // be estimated and would make the propensity fit quadratically slow
+                let limit = (rows.len() / 10).clamp(2, 200);
+                if cat.levels.len() > limit {
+                    return Err(MatchError::BadParameter {
+                        name: "--categorical",
+                        value: c.clone(),
+                        detail: format!(
+                            "{} levels for {} units; a categorical covariate may have at most {limit} here (group rare levels, or leave it out)",
+                            cat.levels.len(),
+                            rows.len()
+                        ),
+                    });
+                }
                 for (lv, level) in cat.levels.iter().enumerate().skip(1) {
                     names.push(format!("{c}={level}"));
                     kinds.push(ColumnKind::Level);

@@ -218,6 +218,29 @@ impl ValidParams {
             .collect::<MatchResult<_>>()?;
         let n_all = units.len();
         let n1_all = units.n_treated();
+        // An interval needs spread among the treated: one treated unit gives a zero-width
+        // interval and a confident verdict it has no right to.
+        if n1_all < 2 || n_all - n1_all < 2 {
+            return Err(MatchError::TooFew {
+                what: format!("{} treated units and {} untreated units", n1_all, n_all - n1_all),
+                found: n1_all.min(n_all - n1_all),
+                needed: 2,
+            });
+        }
+        for c in &exact_cols {
+            // exact matching is for categories; a column with about as many values as units
+            // (an amount, an id) leaves nobody a partner and takes very long to find that out
+            if c.levels.len() > (n_all / 2).max(2) {
+                return Err(MatchError::BadParameter {
+                    name: "--exact",
+                    value: c.name.clone(),
+                    detail: format!(
+                        "{} distinct values for {n_all} units: exact matching needs a category (region, segment), not an amount or an id",
+                        c.levels.len()
+                    ),
+                });
+            }
+        }
         let (m1, s1) = mean_sd((0..n_all).filter(|&i| units.treated[i]).map(|i| y_post[i]));
         let (m0, s0) = mean_sd((0..n_all).filter(|&i| !units.treated[i]).map(|i| y_post[i]));
         let raw_difference = m1 - m0;

@@ -6,7 +6,6 @@ pub mod html;
 pub mod numbers;
 
 use aftercast_core::result::{AnalysisResult, RopeUnits};
-use std::io::Write;
 use std::path::Path;
 
 /// The caution printed beside every observational estimate.
@@ -29,23 +28,18 @@ pub enum ReportError {
     /// The result could not be serialised.
     #[error("cannot serialise the result: {0}")]
     Json(#[from] serde_json::Error),
+    /// An output the user named cannot be written (an input, a link, a missing folder, ...).
+    #[error(transparent)]
+    Output(#[from] aftercast_core::DataError),
 }
 
-/// Write bytes to `path` atomically: a temporary file in the same folder, then a rename.
+/// Write bytes to `path` atomically and safely (`aftercast_core::output`: never over an input,
+/// never through a link, a temporary file renamed into place, ordinary permissions).
 ///
 /// # Errors
-/// [`ReportError::Write`].
+/// [`ReportError::Output`] for what the user can fix.
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), ReportError> {
-    let err = |source| ReportError::Write { path: path.to_path_buf(), source };
-    let dir = match path.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-        _ => std::path::PathBuf::from("."),
-    };
-    std::fs::create_dir_all(&dir).map_err(err)?;
-    let mut tmp = tempfile::Builder::new().prefix(".aftercast-").suffix(".tmp").tempfile_in(&dir).map_err(err)?;
-    tmp.write_all(bytes).map_err(err)?;
-    tmp.as_file().sync_all().map_err(err)?;
-    tmp.persist(path).map_err(|e| err(e.error))?;
+    aftercast_core::output::write_atomic(path, bytes)?;
     Ok(())
 }
 

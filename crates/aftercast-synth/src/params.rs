@@ -10,7 +10,7 @@
 //! | `exclude` | none | units left out of the donor pool | unit names |
 //! | `end` | none | last post-period used | a period of the panel |
 //! | `predictors` | none | covariates averaged over the pre-period (`predictors` method) | covariate names |
-//! | `predictor_outcome_blocks` | 3 | the pre-period outcome is averaged over this many equal blocks and each average is a predictor (`predictors` method; balance table) | ≥ 1 |
+//! | `predictor_outcome_blocks` | 3 | the pre-period outcome is averaged over this many equal blocks and each average is a predictor (`predictors` method; balance table) | 1..=24 |
 //! | `ridge_lambda` | CV | ridge penalty of the augmented synthetic control; `None` = cross-validated | ≥ 0 |
 //! | `cv_folds` | min(5, T0/3) | hold-out periods at the end of the pre-period for the ridge CV | ≥ 1 |
 //! | `sdid_placebo_reps` | 200 | placebo replications for the SDID variance with one treated unit | ≥ 20 |
@@ -224,8 +224,13 @@ impl SynthParams {
         if self.min_donors < 2 {
             return bad("min_donors", self.min_donors.to_string(), "must be at least 2");
         }
-        if self.predictor_outcome_blocks == 0 {
-            return bad("predictor_outcome_blocks", "0".into(), "must be at least 1");
+        if !(1..=24).contains(&self.predictor_outcome_blocks) {
+            // each block is a dimension of the predictor-importance search
+            return bad(
+                "--outcome-blocks",
+                self.predictor_outcome_blocks.to_string(),
+                "between 1 and 24 (each block is a dimension of the predictor-importance search)",
+            );
         }
         if let Some(l) = self.ridge_lambda
             && !(l.is_finite() && l >= 0.0)

@@ -201,6 +201,12 @@ pub fn estimate(fit: &Fitted, robustness: Robustness) -> Estimate<SynthDiagnosti
     for w in fit.warnings.iter().chain(&robustness.warnings) {
         est.warn(w.clone());
     }
+    for u in fit.units.iter().filter(|u| u.solver.stop != "optimal") {
+        est.warn(format!(
+            "the weight solver for '{}' stopped just short of its tolerance (KKT residual {:.1e} of the problem's scale, {}): the weights are optimal to that precision, far finer than the intervals",
+            u.unit, u.solver.kkt_relative, u.solver.stop
+        ));
+    }
     est.assumptions = sentence_assumptions(fit.method);
     est
 }

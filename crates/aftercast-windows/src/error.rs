@@ -19,7 +19,14 @@ pub struct Cell {
 
 impl std::fmt::Display for Cell {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        write!(f, "{}, line {}, column {} ('{}')", self.file.display(), self.line, self.column, self.column_name)
+        write!(
+            f,
+            "{}, line {}, column {} ('{}')",
+            self.file.display(),
+            self.line,
+            self.column,
+            aftercast_core::error::shown(&self.column_name)
+        )
     }
 }
 
@@ -77,7 +84,8 @@ pub enum WindowsError {
     },
     /// A timestamp cell is not ISO 8601.
     #[error(
-        "{at}: '{text}' is not an ISO 8601 timestamp (e.g. 2024-03-01T10:00:00Z, 2024-03-01T12:00:00+02:00, 2024-03-01)"
+        "{at}: '{}' is not an ISO 8601 timestamp (e.g. 2024-03-01T10:00:00Z, 2024-03-01T12:00:00+02:00, 2024-03-01)",
+        aftercast_core::error::shown(text)
     )]
     BadTimestamp {
         /// Where.
@@ -85,8 +93,11 @@ pub enum WindowsError {
         /// The offending text.
         text: String,
     },
-    /// A value cell is not a finite number.
-    #[error("{at}: '{text}' is not a finite number")]
+    /// A value cell is not a finite number, or is beyond the accepted magnitude (2^62).
+    #[error(
+        "{at}: '{}' is not a number aftercast can sum exactly (a finite number of magnitude at most 2^62, about 4.6e18)",
+        aftercast_core::error::shown(text)
+    )]
     BadValue {
         /// Where.
         at: Cell,
@@ -95,7 +106,9 @@ pub enum WindowsError {
     },
     /// A value is negative for a metric that does not allow it.
     #[error(
-        "{at}: value {text} of metric '{metric}' is negative; allow negative values for this metric or skip bad rows"
+        "{at}: value {} of metric '{}' is negative; allow negative values for this metric or skip bad rows",
+        aftercast_core::error::shown(text),
+        aftercast_core::error::shown(metric)
     )]
     NegativeValue {
         /// Where.
@@ -106,7 +119,7 @@ pub enum WindowsError {
         metric: String,
     },
     /// An event names a unit that is not in the exposures file.
-    #[error("{at}: unit '{unit}' is not in the exposures file")]
+    #[error("{at}: unit '{}' is not in the exposures file", aftercast_core::error::shown(unit))]
     UnknownUnit {
         /// Where.
         at: Cell,
@@ -120,7 +133,10 @@ pub enum WindowsError {
         at: Cell,
     },
     /// A unit appears twice in the exposures file.
-    #[error("{at}: unit '{unit}' appears twice in the exposures file (first on line {first_line})")]
+    #[error(
+        "{at}: unit '{}' appears twice in the exposures file (first on line {first_line})",
+        aftercast_core::error::shown(unit)
+    )]
     DuplicateUnit {
         /// Where the second occurrence is.
         at: Cell,
@@ -132,7 +148,8 @@ pub enum WindowsError {
     /// A unit is never exposed (empty exposure cell) and neither a reference time nor a launch
     /// time was given.
     #[error(
-        "{at}: unit '{unit}' has no exposure time; give a reference time (or a launch time) for never-exposed units"
+        "{at}: unit '{}' has no exposure time; give a reference time (or a launch time) for never-exposed units",
+        aftercast_core::error::shown(unit)
     )]
     NoReference {
         /// Where.
@@ -141,7 +158,7 @@ pub enum WindowsError {
         unit: String,
     },
     /// A parameter is not valid.
-    #[error("invalid {what}: '{text}' ({detail})")]
+    #[error("invalid {what}: '{}' ({detail})", aftercast_core::error::shown(text))]
     BadParameter {
         /// Which parameter.
         what: String,
@@ -153,7 +170,9 @@ pub enum WindowsError {
     /// A sum left the range the exact accumulator holds (about +-7.4e19), or a count passed
     /// 4 294 967 295 events of one unit, window and metric.
     #[error(
-        "sum or count of metric '{metric}' for unit '{unit}' exceeds the accumulator range (|sum| < 7.4e19, count < 2^32)"
+        "sum or count of metric '{}' for unit '{}' exceeds the accumulator range (|sum| < 7.4e19, count < 2^32)",
+        aftercast_core::error::shown(metric),
+        aftercast_core::error::shown(unit)
     )]
     Overflow {
         /// The metric.
@@ -185,7 +204,15 @@ impl WindowsError {
     pub fn is_bad_input(&self) -> bool {
         match self {
             WindowsError::Spark { input, .. } => *input,
-            WindowsError::Io { .. } | WindowsError::Output { .. } => false,
+            // a file that is missing, a folder, a device or not readable: the user named it
+            WindowsError::Io { source, .. } => {
+                use std::io::ErrorKind as K;
+                matches!(
+                    source.kind(),
+                    K::NotFound | K::PermissionDenied | K::IsADirectory | K::NotADirectory | K::InvalidInput
+                )
+            }
+            WindowsError::Output { .. } => false,
             _ => true,
         }
     }

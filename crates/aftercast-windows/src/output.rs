@@ -12,7 +12,7 @@ use arrow_array::{ArrayRef, RecordBatch};
 use arrow_schema::{DataType, Field, Schema};
 use serde_json::{Value, json};
 use std::io::Write;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::sync::Arc;
 
 /// Output table formats.
@@ -38,26 +38,16 @@ fn out_err(path: &Path, e: impl std::fmt::Display) -> WindowsError {
     WindowsError::Output { path: path.to_path_buf(), message: e.to_string() }
 }
 
-fn temp_name(path: &Path) -> PathBuf {
-    let mut name = path.file_name().map(|n| n.to_os_string()).unwrap_or_default();
-    name.push(".partial");
-    path.with_file_name(name)
-}
-
+/// Write `path` through `aftercast_core::output` (never over an input or through a link; an
+/// unpredictable temporary name in the target's folder, removed unless committed).
 fn write_atomic(path: &Path, f: impl FnOnce(&mut std::fs::File) -> WindowsResult<()>) -> WindowsResult<()> {
-    let tmp = temp_name(path);
     if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
-        std::fs::create_dir_all(dir).map_err(|e| out_err(path, e))?;
+        aftercast_core::output::create_folder(dir)?;
     }
-    let mut file = std::fs::File::create(&tmp).map_err(|e| out_err(path, e))?;
-    let r = f(&mut file);
-    if let Err(e) = r {
-        let _ = std::fs::remove_file(&tmp);
-        return Err(e);
-    }
-    file.sync_all().map_err(|e| out_err(path, e))?;
-    drop(file);
-    std::fs::rename(&tmp, path).map_err(|e| out_err(path, e))
+    let mut file = aftercast_core::output::AtomicFile::create(path)?;
+    f(file.file())?;
+    file.commit()?;
+    Ok(())
 }
 
 /// Format an `f64` for CSV: shortest text that reads back to the same number.

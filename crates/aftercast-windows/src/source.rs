@@ -132,7 +132,7 @@ fn find_col(path: &Path, header: &[String], name: &str) -> WindowsResult<usize> 
 
 fn read_csv(src: &EventSource, plan: &Plan<'_>, threads: usize) -> WindowsResult<Acc> {
     let path = &src.path;
-    let file = std::fs::File::open(path).map_err(|e| io_err(path, "cannot open the event log", e))?;
+    let file = open_input(path).map_err(|e| io_err(path, "cannot open the event log", e))?;
     let mut reader: Box<dyn Read + Send> = match src.format {
         EventFormat::CsvGzip => {
             Box::new(flate2::read::MultiGzDecoder::new(std::io::BufReader::with_capacity(1 << 20, file)))
@@ -393,7 +393,7 @@ fn pq_err(path: &Path, e: impl std::fmt::Display) -> WindowsError {
 
 fn read_parquet(src: &EventSource, plan: &Plan<'_>, threads: usize) -> WindowsResult<Acc> {
     let path = &src.path;
-    let file = std::fs::File::open(path).map_err(|e| io_err(path, "cannot open the event log", e))?;
+    let file = open_input(path).map_err(|e| io_err(path, "cannot open the event log", e))?;
     let builder = ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| pq_err(path, e))?;
     let schema = builder.schema().clone();
     let header: Vec<String> = schema.fields().iter().map(|f| f.name().clone()).collect();
@@ -512,7 +512,7 @@ fn parquet_group(
     first_row: u64,
     policy: BadRowPolicy,
 ) -> Result<(), (u64, WindowsError)> {
-    let file = std::fs::File::open(path).map_err(|e| (0, io_err(path, "cannot open the event log", e)))?;
+    let file = open_input(path).map_err(|e| (0, io_err(path, "cannot open the event log", e)))?;
     let builder = ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| (0, pq_err(path, e)))?;
     let mask = ProjectionMask::roots(builder.parquet_schema(), idx.iter().copied());
     let reader = builder
@@ -691,7 +691,7 @@ pub fn event_unit_ids(src: &EventSource) -> WindowsResult<Vec<String>> {
     let mut seen: std::collections::HashSet<String> = std::collections::HashSet::new();
     match src.format {
         EventFormat::Parquet => {
-            let file = std::fs::File::open(path).map_err(|e| io_err(path, "cannot open the event log", e))?;
+            let file = open_input(path).map_err(|e| io_err(path, "cannot open the event log", e))?;
             let builder = ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| pq_err(path, e))?;
             let header: Vec<String> = builder.schema().fields().iter().map(|f| f.name().clone()).collect();
             let ui = find_col(path, &header, &src.columns.unit)?;
@@ -719,7 +719,7 @@ pub fn event_unit_ids(src: &EventSource) -> WindowsResult<Vec<String>> {
             }
         }
         EventFormat::Csv | EventFormat::CsvGzip => {
-            let file = std::fs::File::open(path).map_err(|e| io_err(path, "cannot open the event log", e))?;
+            let file = open_input(path).map_err(|e| io_err(path, "cannot open the event log", e))?;
             let reader: Box<dyn Read> = match src.format {
                 EventFormat::CsvGzip => Box::new(flate2::read::MultiGzDecoder::new(std::io::BufReader::new(file))),
                 _ => Box::new(std::io::BufReader::with_capacity(1 << 20, file)),
@@ -763,4 +763,17 @@ pub fn event_unit_ids(src: &EventSource) -> WindowsResult<Vec<String>> {
     let mut ids: Vec<String> = seen.into_iter().collect();
     ids.sort();
     Ok(ids)
+}
+
+/// Open an input file: a regular file only (a device such as /dev/zero, a FIFO or a folder is
+/// refused rather than read forever), registered as an input of the run so that no output may
+/// replace it.
+fn open_input(path: &Path) -> std::io::Result<std::fs::File> {
+    let meta = std::fs::metadata(path)?;
+    if !meta.is_file() {
+        let what = if meta.is_dir() { "a folder" } else { "not a regular file (a device, FIFO or socket)" };
+        return Err(std::io::Error::new(std::io::ErrorKind::InvalidInput, format!("it is {what}")));
+    }
+    aftercast_core::output::register_input(path);
+    std::fs::File::open(path)
 }

@@ -211,6 +211,14 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     let mut out =
         crate::verbs::Outcome::new(report.estimate(), &a.common.inference(), vec![series.input.clone()], headline)?;
     out.tables.push(table);
+    if report.interrupted {
+        out.interrupted = Some(format!(
+            "{} of {} placebo dates finished; the results above and in the outputs cover them{}",
+            report.origins_completed,
+            report.origins_planned,
+            a.partial.as_ref().map(|p| format!(" (each is also in {})", p.display())).unwrap_or_default()
+        ));
+    }
     Ok(out)
 }
 

@@ -1,7 +1,7 @@
 //! `aftercast demo --out DIR`: write the invented Fernhill Outfitters scenario into DIR/data,
 //! a study file DIR/study.toml that analyses it with every verb this build has, and run it.
 
-use crate::common::check_out_dir;
+use crate::common::OutDir;
 use aftercast_demo::ScenarioTruth;
 use clap::CommandFactory;
 use std::fmt::Write as _;
@@ -128,15 +128,16 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
 /// # Errors
 /// Bad input when the folder is not empty (without --force); internal errors otherwise.
 pub fn run(a: &Args) -> anyhow::Result<()> {
-    check_out_dir(&a.output.out, a.output.force)?;
+    let out = OutDir::prepare(&a.output.out, a.output.force)?;
     let truth = aftercast_demo::write_scenario(&a.output.out.join("data"))?;
     aftercast_report::write_json(&a.output.out.join("truth.json"), &truth)?;
     let study = demo_study(&truth);
     let study_path = a.output.out.join("study.toml");
     aftercast_report::write_atomic(&study_path, study.as_bytes())?;
-    let doc = crate::verbs::run::run_study(&study_path, &a.output.out, true, a.output.quiet)?;
+    let doc = crate::verbs::run::write_study(&study_path, &out, a.output.quiet)?;
+    out.finish();
     if !a.output.quiet {
-        println!(
+        sayln!(
             "demo written to {}: data/ (invented scenario, true effects in truth.json), study.toml, result.json, {} analyses",
             a.output.out.display(),
             doc.analyses.len()

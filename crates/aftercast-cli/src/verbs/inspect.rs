@@ -201,7 +201,7 @@ pub fn run(a: &Args) -> anyhow::Result<()> {
         aftercast_report::write_json(p, &doc)?;
     }
     if !a.quiet {
-        println!("{}", lines.join("\n"));
+        sayln!("{}", lines.join("\n"));
     }
     Ok(())
 }

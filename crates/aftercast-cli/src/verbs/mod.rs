@@ -24,6 +24,9 @@ pub struct Outcome {
     /// The verb's own tables (comparison, history summary, planning), shown in the terminal
     /// and the report.
     pub tables: Vec<aftercast_report::Table>,
+    /// Set when the user stopped the run: the outputs are written from what was done, then
+    /// the program exits 130 with this message.
+    pub interrupted: Option<String>,
 }
 
 impl Outcome {
@@ -38,7 +41,7 @@ impl Outcome {
         headline: String,
     ) -> anyhow::Result<Outcome> {
         let finished = aftercast_resample::finish(est, inf, inputs)?;
-        Ok(Outcome { finished, headline, tables: Vec::new() })
+        Ok(Outcome { finished, headline, tables: Vec::new(), interrupted: None })
     }
 }
 
@@ -49,7 +52,10 @@ impl Outcome {
 pub fn finish(common: &Common, outcome: Outcome) -> anyhow::Result<()> {
     write_outputs(common, &outcome)?;
     if !common.quiet {
-        print!("{}", aftercast_report::terminal_summary(&outcome.finished.result, &outcome.headline, &outcome.tables));
+        say!("{}", aftercast_report::terminal_summary(&outcome.finished.result, &outcome.headline, &outcome.tables));
+    }
+    if let Some(msg) = outcome.interrupted {
+        return Err(anyhow::Error::new(crate::failure::Interrupted(msg)));
     }
     Ok(())
 }

@@ -1,7 +1,7 @@
 //! `aftercast run STUDY.toml --out DIR`: run every analysis a study file lists and write
 //! DIR/result.json (all results), DIR/analyses/<name>.json, and the report.
 
-use crate::common::check_out_dir;
+use crate::common::OutDir;
 use crate::failure::bad_input_msg;
 use crate::study::{Study, shell_line};
 use aftercast_core::result::{AnalysisResult, TOOL_VERSION};
@@ -64,14 +64,37 @@ pub struct StudyResult {
 /// otherwise. The first failing analysis stops the run, naming it.
 pub fn run_study(study_path: &Path, out: &Path, force: bool, quiet: bool) -> anyhow::Result<StudyResult> {
     let study = Study::read(study_path)?;
-    check_out_dir(out, force)?;
+    let dir = OutDir::prepare(out, force)?;
+    let doc = write_study_parsed(study_path, &study, &dir, quiet)?;
+    dir.finish();
+    Ok(doc)
+}
+
+/// Run a study file into a prepared output folder.
+///
+/// # Errors
+/// As [`run_study`].
+pub fn write_study(study_path: &Path, out: &OutDir, quiet: bool) -> anyhow::Result<StudyResult> {
+    let study = Study::read(study_path)?;
+    write_study_parsed(study_path, &study, out, quiet)
+}
+
+fn write_study_parsed(study_path: &Path, study: &Study, dir: &OutDir, quiet: bool) -> anyhow::Result<StudyResult> {
+    let out = dir.path();
     let base = study_path.parent().map(Path::to_path_buf).unwrap_or_else(|| PathBuf::from("."));
     let mut entries = Vec::new();
     let mut outcomes = Vec::new();
     for a in &study.analyses {
-        let argv = study.argv(a, &base)?;
+        let argv = study.argv(a, &base, out).map_err(|e| e.context(study_path.display().to_string()))?;
         let cli = crate::Cli::try_parse_from(&argv).map_err(|e| {
-            bad_input_msg(format!("{}: analysis '{}': {}", study_path.display(), a.name, e.render().to_string().trim()))
+            let text = e.render().to_string();
+            let first = crate::study::one_line(&text);
+            bad_input_msg(format!(
+                "{}: analysis '{}': {}",
+                study_path.display(),
+                a.name,
+                first.trim_start_matches("error: ")
+            ))
         })?;
         let outcome = match crate::analyze(&cli.verb) {
             Some(r) => r.map_err(|e| e.context(format!("analysis '{}' of {}", a.name, study_path.display())))?,
@@ -85,8 +108,8 @@ pub fn run_study(study_path: &Path, out: &Path, force: bool, quiet: bool) -> any
             }
         };
         if !quiet {
-            println!("== {} ==", a.name);
-            print!(
+            sayln!("== {} ==", a.name);
+            say!(
                 "{}",
                 aftercast_report::terminal_summary(&outcome.finished.result, &outcome.headline, &outcome.tables)
             );
@@ -120,7 +143,6 @@ pub fn run_study(study_path: &Path, out: &Path, force: bool, quiet: bool) -> any
         ]),
         analyses: entries,
     };
-    aftercast_report::write_json(&out.join("result.json"), &doc)?;
     let charts = out.join("charts");
     let mut analyses = Vec::new();
     for (e, outcome) in doc.analyses.iter().zip(&outcomes) {
@@ -142,6 +164,8 @@ pub fn run_study(study_path: &Path, out: &Path, force: bool, quiet: bool) -> any
         }),
     };
     aftercast_report::html::write(&input, &out.join("report.html"))?;
+    // result.json last: its presence says every other output is complete
+    aftercast_report::write_json(&out.join("result.json"), &doc)?;
     Ok(doc)
 }
 
@@ -152,7 +176,7 @@ pub fn run_study(study_path: &Path, out: &Path, force: bool, quiet: bool) -> any
 pub fn run(a: &Args) -> anyhow::Result<()> {
     let doc = run_study(&a.study, &a.output.out, a.output.force, a.output.quiet)?;
     if !a.output.quiet {
-        println!("wrote {} analyses to {}", doc.analyses.len(), a.output.out.display());
+        sayln!("wrote {} analyses to {}", doc.analyses.len(), a.output.out.display());
     }
     Ok(())
 }

@@ -112,7 +112,13 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         .check()
         .map_err(bad_input)?;
     let opts = RunOptions { robustness: !a.no_robustness };
-    let (fit, est) = aftercast_synth::run(&panel, &treated, start, &params, opts).map_err(bad_input)?;
+    let (fit, est) = aftercast_synth::run(&panel, &treated, start, &params, opts).map_err(|e| match e {
+        // a solver that could not reach a usable answer is our failure, not the user's
+        aftercast_synth::SynthError::NotConverged { .. } | aftercast_synth::SynthError::Numerical { .. } => {
+            anyhow::Error::new(e)
+        }
+        other => bad_input(other),
+    })?;
     let d = &est.diagnostics;
     let rmspe = d.pre_rmspe;
     let who = if treated.len() == 1 {

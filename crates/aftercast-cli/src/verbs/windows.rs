@@ -250,7 +250,7 @@ pub fn run_verb(a: &Args) -> anyhow::Result<()> {
         };
         let sql =
             spark_sql(&spec, &opts, &SparkPlan { events, exposures, output: a.spark_output.clone() }).map_err(wbad)?;
-        print!("{sql}");
+        say!("{sql}");
         return Ok(());
     }
     let events = a.events.as_ref().ok_or_else(|| bad_input_msg("--events is required"))?;
@@ -295,7 +295,7 @@ pub fn run_verb(a: &Args) -> anyhow::Result<()> {
     let side = sidecar_path(a, output);
     write_sidecar(&side, &sidecar_json(&spec, &out, engine)).map_err(wbad)?;
     if !a.quiet {
-        println!(
+        sayln!(
             "windows ({engine}): {} units ({} exposed, {} never exposed), {} event rows ({} used, {} other metrics, {} skipped) in {:.1} s",
             out.units.units.len(),
             out.exposed_units,
@@ -307,14 +307,17 @@ pub fn run_verb(a: &Args) -> anyhow::Result<()> {
             started.elapsed().as_secs_f64()
         );
         for w in &out.windows {
-            println!(
+            sayln!(
                 "  {:<24} included {:>8}  excluded: ends after --until {:>6}, starts before --from {:>6}",
-                w.window, w.all.included, w.all.excluded_ends_after_end, w.all.excluded_starts_before_start
+                w.window,
+                w.all.included,
+                w.all.excluded_ends_after_end,
+                w.all.excluded_starts_before_start
             );
         }
-        println!("  wrote {} and {}", output.display(), side.display());
+        sayln!("  wrote {} and {}", output.display(), side.display());
         if let Some(p) = &a.series_output {
-            println!("  wrote {}", p.display());
+            sayln!("  wrote {}", p.display());
         }
     }
     Ok(())
