@@ -223,10 +223,9 @@ fn issue_14_case_3_a_closed_stdout_ends_quietly_after_the_files_are_written() {
     }
 }
 
-#[test]
-fn issue_14_case_4_a_solver_tolerance_is_not_blamed_on_the_input() {
-    let s = Scratch::new();
-    let out = run(&[
+/// The demo's regional panel, Fallowmere treated, predictor-matching synthetic control.
+fn synthetic_predictors(s: &Scratch) -> Vec<String> {
+    [
         "synthetic",
         "--data",
         &s.s("regions_weekly.csv"),
@@ -242,11 +241,19 @@ fn issue_14_case_4_a_solver_tolerance_is_not_blamed_on_the_input() {
         "2026-04-06",
         "--method",
         "predictors",
-        "--predictors",
-        "store_count,population_k",
-        "--no-robustness",
-        "--quiet",
-    ]);
+    ]
+    .iter()
+    .map(|x| x.to_string())
+    .collect()
+}
+
+#[test]
+fn issue_14_case_4_a_solver_tolerance_is_not_blamed_on_the_input() {
+    let s = Scratch::new();
+    let out = run_v(&with(
+        &synthetic_predictors(&s),
+        &["--predictors", "store_count,population_k", "--no-robustness", "--quiet"],
+    ));
     assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
 }
 
@@ -279,25 +286,7 @@ fn issue_14_case_6_user_errors_exit_2() {
 #[test]
 fn issue_14_case_7_runs_that_would_not_end_are_refused_at_once() {
     let s = Scratch::new();
-    let out = run(&[
-        "synthetic",
-        "--data",
-        &s.s("regions_weekly.csv"),
-        "--unit",
-        "region",
-        "--time",
-        "week",
-        "--outcome",
-        "revenue",
-        "--treated",
-        "Fallowmere",
-        "--start",
-        "2026-04-06",
-        "--method",
-        "predictors",
-        "--outcome-blocks",
-        "100",
-    ]);
+    let out = run_v(&with(&synthetic_predictors(&s), &["--outcome-blocks", "100"]));
     assert_refused(&out, 2, &["--outcome-blocks"]);
     // a categorical with a level per unit, and exact matching on an amount
     let text = std::fs::read_to_string(s.p("members.csv")).expect("read");

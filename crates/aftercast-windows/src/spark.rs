@@ -130,8 +130,10 @@ pub fn run_spark(
         .arg(&driver_path)
         .arg(&sql_path)
         .output()
-        .map_err(|e| {
-            spark_err(format!("cannot start {}: {e} (install pyspark or set SPARK_SUBMIT)", options.submit.display()))
+        .map_err(|e| WindowsError::Spark {
+            // a spark-submit that is not there or not runnable is the user's setup to fix
+            input: matches!(e.kind(), std::io::ErrorKind::NotFound | std::io::ErrorKind::PermissionDenied),
+            message: format!("cannot start {}: {e} (install pyspark or set SPARK_SUBMIT)", options.submit.display()),
         })?;
     if !output.status.success() {
         let err = String::from_utf8_lossy(&output.stderr);
