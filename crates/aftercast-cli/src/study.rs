@@ -104,11 +104,15 @@ impl Study {
             return Err(bad_input_msg(format!("{}: the study lists no [[analysis]]", path.display())));
         }
         for a in &study.analyses {
-            if a.name.is_empty() || !a.name.chars().all(|c| c.is_ascii_alphanumeric() || c == '-' || c == '_') {
+            // the name becomes file names (analyses/<name>.json, charts/<name>-*.png)
+            if a.name.is_empty()
+                || a.name.len() > 64
+                || !a.name.chars().all(|c| c.is_ascii_alphanumeric() || c == '-' || c == '_')
+            {
                 return Err(bad_input_msg(format!(
-                    "{}: analysis name '{}' must be letters, digits, '-' or '_'",
+                    "{}: analysis name '{}' must be 1 to 64 letters, digits, '-' or '_'",
                     path.display(),
-                    a.name
+                    aftercast_core::error::shown(&a.name)
                 )));
             }
             if !seen.insert(a.name.clone()) {

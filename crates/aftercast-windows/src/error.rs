@@ -61,7 +61,12 @@ pub enum WindowsError {
         message: String,
     },
     /// A column the run needs is not in the file.
-    #[error("{}: no column named '{name}' (the file has: {})", path.display(), available.join(", "))]
+    #[error(
+        "{}: no column named '{}' (the file has: {})",
+        path.display(),
+        aftercast_core::error::shown(name),
+        aftercast_core::error::shown(&available.join(", "))
+    )]
     MissingColumn {
         /// The file.
         path: PathBuf,

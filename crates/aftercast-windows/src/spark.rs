@@ -70,10 +70,6 @@ impl SparkOptions {
     }
 }
 
-fn spark_err(message: impl Into<String>) -> WindowsError {
-    WindowsError::Spark { message: message.into(), input: false }
-}
-
 /// Emit the script for local files, run it with `spark-submit`, read the result back.
 ///
 /// # Errors
