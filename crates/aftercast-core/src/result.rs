@@ -124,7 +124,12 @@ impl std::str::FromStr for Rope {
             (a, b, pa)
         } else {
             let (v, p) = parse_one(t)?;
-            (-v.abs(), v.abs(), p)
+            if v < 0.0 {
+                return Err(format!(
+                    "'{s}': one value gives a ROPE of plus and minus it; write it positive, or give both bounds (-2%:1%)"
+                ));
+            }
+            (-v, v, p)
         };
         if low >= high {
             return Err(format!("'{s}': the ROPE needs low < high"));

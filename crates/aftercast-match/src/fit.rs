@@ -83,6 +83,8 @@ pub struct Fitted {
     /// Counterfactual mean per draw (relative effect), when defined.
     #[serde(skip)]
     pub baseline_draws: Option<Vec<f64>>,
+    /// The counterfactual level at the point estimate (the relative effect's denominator).
+    pub point_baseline: Option<f64>,
     /// Treated mean minus control mean, all units, no adjustment.
     pub raw_difference: f64,
     /// The propensity model.
@@ -333,6 +335,7 @@ impl ValidParams {
         let estimate;
         let draws: Vec<f64>;
         let baseline_draws: Option<Vec<f64>>;
+        let point_baseline: Option<f64>;
         let after: Vec<f64>;
         let treated_unmatched;
         match p.method {
@@ -397,6 +400,8 @@ impl ValidParams {
                 } else {
                     None
                 };
+                point_baseline =
+                    if att { Some(matched_treated_mean - estimate) } else { y_pre.is_none().then_some(est.baseline) };
                 rosenbaum = sensitivity::rosenbaum(
                     &est.pair_differences.iter().map(|d| if estimate >= 0.0 { *d } else { -*d }).collect::<Vec<_>>(),
                     &[1.0, 1.1, 1.2, 1.3, 1.4, 1.5, 1.75, 2.0, 2.5, 3.0, 4.0, 5.0],
@@ -420,6 +425,12 @@ impl ValidParams {
                 let point = weighting::evaluate(wm, att, &y, &tr, &e, &ones, &design)
                     .ok_or_else(|| MatchError::NoOverlap { detail: "a group receives no weight".into() })?;
                 estimate = point.effect;
+                point_baseline = if att {
+                    let (sy, sw) = (0..n).filter(|&i| tr[i]).fold((0.0, 0.0), |(a, b), i| (a + ypost[i], b + 1.0));
+                    Some(sy / sw - point.effect)
+                } else {
+                    y_pre.is_none().then_some(point.baseline)
+                };
                 treated_unmatched = point.treated_dropped;
                 if point.treated_dropped > 0 {
                     warnings.push(format!(
@@ -529,6 +540,7 @@ impl ValidParams {
             se,
             draws,
             baseline_draws,
+            point_baseline,
             raw_difference,
             propensity: ps.report,
             caliper,
@@ -576,15 +588,6 @@ impl Fitted {
         }
     }
 
-    /// The counterfactual level at the point answer: the average treated level over the draws
-    /// (effect plus baseline in each draw) minus the point effect.
-    fn point_baseline(&self) -> Option<f64> {
-        self.baseline_draws.as_ref().map(|b| {
-            let sum: f64 = b.iter().zip(&self.draws).map(|(b, d)| b + d).sum();
-            sum / b.len().max(1) as f64 - self.estimate
-        })
-    }
-
     /// The one estimate of a matching or weighting fit: the point ATT/ATE, its draws, the
     /// balance table, counts, typed diagnostics and the propensity and sensitivity figures.
     /// `level` sets the E-value's interval.
@@ -615,7 +618,7 @@ impl Fitted {
             "match",
             self.method.name(),
             &self.estimand,
-            Point::Scalar { effect: self.estimate, baseline: self.point_baseline() },
+            Point::Scalar { effect: self.estimate, baseline: self.point_baseline },
             EffectDraws::Scalar { effect: self.draws.clone(), baseline: self.baseline_draws.clone() },
             Scope { per: Per::Unit, units: self.counts.treated_used },
             diagnostics,

@@ -493,11 +493,21 @@ fn verb_tables(out: &mut String, r: &AnalysisResult) {
         out.push_str("</tbody></table></div>\n");
     }
     if let Some(p) = &r.placebo {
-        let _ = writeln!(
-            out,
-            "<p>Placebo test: of {} units treated as if they had been treated, the real one ranks {} by its post/pre fit ratio (p = {:.3}).</p>",
-            p.units, p.rank, p.p_value
-        );
+        let pv = numbers::signed(p.p_value, numbers::decimals_for(&[p.p_value])).trim_start_matches('+').to_string();
+        if p.rank == 0 {
+            // several treated units: one joint test of their mean post/pre fit ratio
+            let _ = writeln!(
+                out,
+                "<p>Placebo test: the treated units' mean post/pre fit ratio against that of random sets of units of the same size ({} units in all): p = {pv}.</p>",
+                p.units
+            );
+        } else {
+            let _ = writeln!(
+                out,
+                "<p>Placebo test: of {} units treated as if they had been treated, the real one ranks {} by its post/pre fit ratio (p = {pv}).</p>",
+                p.units, p.rank
+            );
+        }
     }
     if let Some(s) = &r.sample {
         let _ = writeln!(
@@ -637,14 +647,19 @@ fn analysis_section(out: &mut String, a: &ReportAnalysis) {
         r.seed,
         r.level * 100.0
     );
-    let _ = writeln!(
-        out,
-        "<div class=\"verdict\"><p class=\"words\">{} {}</p><p>{}</p></div>",
-        verdict_chip(r.verdict),
-        escape(r.verdict.sentence()),
-        escape(&verdict_words(r))
-    );
-    effects_table(out, r);
+    if numbers::kind(r) == numbers::Kind::Effect {
+        let _ = writeln!(
+            out,
+            "<div class=\"verdict\"><p class=\"words\">{} {}</p><p>{}</p></div>",
+            verdict_chip(r.verdict),
+            escape(r.verdict.sentence()),
+            escape(&verdict_words(r))
+        );
+        effects_table(out, r);
+    } else {
+        // an evaluation of methods: no verdict about a change
+        let _ = writeln!(out, "<div class=\"verdict\"><p>{}</p></div>", escape(&numbers::headline(r)));
+    }
     let charts = charts::charts_for(r, &a.draws, &a.figures, &a.stem);
     let (lead, rest) = charts.split_first().map_or((None, &[][..]), |(f, r)| (Some(f), r));
     if let Some(c) = lead {
@@ -790,7 +805,7 @@ fn triangulation_section(out: &mut String, input: &ReportInput) {
         out.push_str("<p>Each question here is answered by one method only, so there is nothing to set side by side. Answering the same question with a second, independent method (for example a forecast and a synthetic control) is the best check an observational study has.</p>\n");
     }
     out.push_str(
-        "<p>How agreement is judged: each method's equal-tailed interval is taken at its stated level. The methods <b>agree</b> when one range lies inside every interval and all verdict words are the same; they are <b>compatible</b> when such a range exists but the verdicts differ without pointing in opposite directions; they <b>disagree</b> when no value lies inside every interval or one verdict is a gain and another a loss.</p>\n",
+        "<p>How agreement is judged: each method's highest-density interval (the one its verdict uses) is taken at its stated level. The methods <b>agree</b> when one range lies inside every interval and all verdict words are the same; they are <b>compatible</b> when such a range exists but the verdicts differ without pointing in opposite directions; they <b>disagree</b> when no value lies inside every interval or one verdict is a gain and another a loss.</p>\n",
     );
     out.push_str("</section>\n");
 }
@@ -823,13 +838,14 @@ pub fn render(input: &ReportInput) -> String {
         out.push_str("<div class=\"cards\">\n");
         for a in &input.analyses {
             let r = &a.result;
-            let headline = numbers::lead_sentence(r);
+            let headline = numbers::headline(r);
+            let chip = if numbers::kind(r) == numbers::Kind::Effect { verdict_chip(r.verdict) } else { String::new() };
             let _ = writeln!(
                 out,
                 "<div class=\"card\"><h3><a href=\"#analysis-{}\">{}</a></h3><p>{}</p><p>{}</p></div>",
                 id_of(&a.stem),
                 escape(&a.label),
-                verdict_chip(r.verdict),
+                chip,
                 escape(&headline)
             );
         }

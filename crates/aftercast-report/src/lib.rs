@@ -184,20 +184,9 @@ pub fn effect_table(r: &AnalysisResult) -> Table {
 pub fn terminal_summary(r: &AnalysisResult, headline: &str, tables: &[Table]) -> String {
     let mut out = Vec::new();
     out.push(format!("aftercast {} ({}): {headline}", r.verb, r.method));
-    match r.verb.as_str() {
-        "compare" if r.truth.is_some() => {
-            let (p, i) = numbers::point_and_interval(&r.effect.average, false);
-            out.push(format!(
-                "  The randomized experiment's answer: {p} per treated unit, {} {i}.",
-                numbers::interval_name(r.level)
-            ));
-            if let Some(t) = comparison_table(r) {
-                out.push(t.to_text("  "));
-            }
-        }
-        "compare" | "backtest" => {}
-        _ => {
-            out.push(format!("  {}", numbers::lead_sentence(r)));
+    out.push(format!("  {}", numbers::headline(r)));
+    match numbers::kind(r) {
+        numbers::Kind::Effect => {
             out.push(format!("  {}", r.verdict.sentence()));
             out.push(effect_table(r).to_text("  "));
             if let Some(p) = r.effect.average.prob_above_threshold
@@ -210,6 +199,12 @@ pub fn terminal_summary(r: &AnalysisResult, headline: &str, tables: &[Table]) ->
                 ));
             }
         }
+        numbers::Kind::Comparison => {
+            if let Some(t) = comparison_table(r) {
+                out.push(t.to_text("  "));
+            }
+        }
+        _ => {}
     }
     for t in tables {
         out.push(t.to_text("  "));

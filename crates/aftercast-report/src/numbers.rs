@@ -119,6 +119,66 @@ pub fn interval_name(level: f64) -> String {
     format!("{:.0}% HDI", level * 100.0)
 }
 
+/// What kind of answer a result gives: an effect with a verdict, or an evaluation of methods
+/// (a comparison with an experiment, a history, a placebo backtest, a plasmode simulation),
+/// whose effect block describes errors or estimates rather than what a change did.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Kind {
+    /// An effect of a change, with its verdict.
+    Effect,
+    /// Observational methods against a randomized experiment.
+    Comparison,
+    /// Bias of methods over recorded comparisons.
+    History,
+    /// Placebo dates: what the model reports where nothing happened.
+    Placebo,
+    /// Simulated data with a known effect.
+    Plasmode,
+}
+
+/// The kind of a result.
+pub fn kind(r: &AnalysisResult) -> Kind {
+    match (r.verb.as_str(), r.method.as_str()) {
+        ("compare", "history-summary") => Kind::History,
+        ("compare", _) => Kind::Comparison,
+        ("backtest", "plasmode") => Kind::Plasmode,
+        ("backtest", _) => Kind::Placebo,
+        _ => Kind::Effect,
+    }
+}
+
+/// The result's first sentence everywhere (terminal, report cards, the analysis section): the
+/// verdict and the judged effect for an effect; for an evaluation of methods, what its numbers
+/// are, with no verdict about a change.
+pub fn headline(r: &AnalysisResult) -> String {
+    let hdi = interval_name(r.level);
+    let (p, i) = point_and_interval(&r.effect.average, false);
+    match kind(r) {
+        Kind::Effect => lead_sentence(r),
+        Kind::Comparison => {
+            let rows = r.estimates.as_deref().unwrap_or(&[]);
+            let cover = rows.iter().filter(|e| e.covers_truth).count();
+            format!(
+                "The randomized experiment's answer: {p} per treated unit, {hdi} {i}; {cover} of {} observational estimates cover it.",
+                rows.len()
+            )
+        }
+        Kind::History => format!(
+            "Over {} recorded comparisons the methods' mean bias (estimate minus truth) is {p}, {hdi} {i}; see the per-method table.",
+            r.scope.units
+        ),
+        Kind::Placebo => {
+            let (pr, ir) = r.effect.relative.map(|s| point_and_interval(&s, true)).unwrap_or((p.clone(), i.clone()));
+            format!(
+                "Placebo dates, where nothing happened: the model's mean placebo effect is {pr}, {hdi} {ir} (near zero for a well-calibrated model); the planning table says how long to wait."
+            )
+        }
+        Kind::Plasmode => format!(
+            "Simulated data with a known effect: the first method's estimates average {p}, {hdi} {i}; the table compares every method with the known effect."
+        ),
+    }
+}
+
 /// One sentence: the verdict and the judged effect with its interval.
 pub fn lead_sentence(r: &AnalysisResult) -> String {
     let line = judged_line(r);

@@ -21,7 +21,8 @@ pub struct Args {
     /// Covariates of the propensity model, comma-separated (numeric unless named in --categorical).
     #[arg(long, required = true, value_delimiter = ',')]
     pub covariates: Vec<String>,
-    /// Which covariates are categorical (one-hot coded), comma-separated.
+    /// Categorical covariates (one-hot coded), comma-separated; a column named here is a
+    /// covariate of the propensity model whether or not --covariates lists it.
     #[arg(long, value_delimiter = ',')]
     pub categorical: Vec<String>,
     /// Optional unit id column (checked for duplicates).
@@ -88,7 +89,13 @@ pub struct Args {
 /// `--separation error`, no overlap, no match within the caliper; internal failures otherwise.
 pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     let table = read_table(&a.data)?;
-    let covariates = a.covariates.clone();
+    // a categorical column is a covariate even when only --categorical names it
+    let mut covariates = a.covariates.clone();
+    for c in &a.categorical {
+        if !covariates.contains(c) {
+            covariates.push(c.clone());
+        }
+    }
     let exact = a.exact.clone();
     let mut params = MatchParams::new(covariates.clone())
         .squares(a.squares.clone())
