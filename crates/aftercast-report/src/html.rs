@@ -311,7 +311,7 @@ fn verdict_words(r: &AnalysisResult) -> String {
     let mut s = numbers::lead_sentence(r);
     for l in lines.iter().filter(|l| !l.judged && l.summary.estimate.is_finite()) {
         let (p, i) = point_and_interval(&l.summary, l.percent);
-        let _ = write!(s, " Effect {}: {p} ({hdi} {i}).", l.label);
+        let _ = write!(s, " {}: {p} ({hdi} {i}).", numbers::effect_words(&l.label));
     }
     let avg = &r.effect.average;
     if avg.prob_positive.is_finite() {

@@ -187,7 +187,19 @@ pub fn lead_sentence(r: &AnalysisResult) -> String {
         (Per::Period, n, false) if n > 1 => format!(" (per treated unit; {n} treated units)"),
         _ => String::new(),
     };
-    format!("Verdict: {}. Effect {}: {p}, {} {i}{scope}.", r.verdict.word(), line.label, interval_name(r.level))
+    format!("Verdict: {}. {}: {p}, {} {i}{scope}.", r.verdict.word(), effect_words(&line.label), interval_name(r.level))
+}
+
+/// "average per period" -> "Average effect per period"; "relative to the counterfactual" ->
+/// "Effect relative to the counterfactual"; a total keeps its own words.
+pub fn effect_words(label: &str) -> String {
+    if let Some(rest) = label.strip_prefix("average ") {
+        format!("Average effect {rest}")
+    } else if label.starts_with("total") {
+        format!("Effect, {label}")
+    } else {
+        format!("Effect {label}")
+    }
 }
 
 #[cfg(test)]

@@ -133,7 +133,7 @@ fn report_is_well_formed_complete_and_self_contained() {
     assert!(text.contains("aftercast run study.toml --out report"), "the command");
     assert!(text.contains("[[analysis]]"), "the study file");
     assert!(text.contains("+3.52%"), "the forecast's relative effect in words");
-    assert!(text.contains("Effect average per treated unit: +61.0"), "unit-level wording for match");
+    assert!(text.contains("Average effect per treated unit: +61.0"), "unit-level wording for match");
     assert!(text.contains("Effect relative to the counterfactual: +3.52%"), "the judged quantity leads");
     assert!(text.contains("'spend_pre' is still imbalanced"), "derived plain-language warning");
     assert!(text.contains("'naive difference' on pool misses the experimental answer"));
