@@ -66,6 +66,10 @@ fn forecast_args(s: &Scratch) -> Vec<String> {
     with(&forecast_base(s), &["--draws", "50"])
 }
 
+fn owned(v: &[&str]) -> Vec<String> {
+    v.iter().map(|x| x.to_string()).collect()
+}
+
 fn with(base: &[String], more: &[&str]) -> Vec<String> {
     base.iter().cloned().chain(more.iter().map(|x| x.to_string())).collect()
 }
@@ -77,7 +81,7 @@ fn run_v(args: &[String]) -> Output {
 
 /// `windows` on the demo's event log (customers, their first exposure, 28-day order sums).
 fn windows_args(s: &Scratch, events: &str) -> Vec<String> {
-    [
+    owned(&[
         "windows",
         "--events",
         events,
@@ -97,10 +101,7 @@ fn windows_args(s: &Scratch, events: &str) -> Vec<String> {
         "order=sum",
         "--until",
         "2026-04-20T00:00:00Z",
-    ]
-    .iter()
-    .map(|x| x.to_string())
-    .collect()
+    ])
 }
 
 #[test]
@@ -225,7 +226,7 @@ fn issue_14_case_3_a_closed_stdout_ends_quietly_after_the_files_are_written() {
 
 /// The demo's regional panel, Fallowmere treated, predictor-matching synthetic control.
 fn synthetic_predictors(s: &Scratch) -> Vec<String> {
-    [
+    owned(&[
         "synthetic",
         "--data",
         &s.s("regions_weekly.csv"),
@@ -241,10 +242,7 @@ fn synthetic_predictors(s: &Scratch) -> Vec<String> {
         "2026-04-06",
         "--method",
         "predictors",
-    ]
-    .iter()
-    .map(|x| x.to_string())
-    .collect()
+    ])
 }
 
 #[test]
