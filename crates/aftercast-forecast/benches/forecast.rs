@@ -31,6 +31,7 @@ fn bench(c: &mut Criterion) {
         trend: Trend::LinearTrend,
         seasons: vec![SeasonKind::Dummy { period: 7 }, SeasonKind::Trig { period: 365.25, harmonics: 4 }],
         n_regressors: 2,
+        ar: false,
         init: Initialisation::ExactDiffuse,
     };
     let xp: Vec<Vec<f64>> = x.iter().map(|v| v[..n_pre].to_vec()).collect();

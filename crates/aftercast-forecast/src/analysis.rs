@@ -76,6 +76,7 @@ fn structural_spec(p: &Prepared, params: &ValidParams) -> StructuralSpec {
         trend: params.get().trend,
         seasons: p.seasons.iter().map(Season::kind).collect(),
         n_regressors: p.regs.len(),
+        ar: false,
         init: Initialisation::ExactDiffuse,
     }
 }

@@ -1,6 +1,6 @@
 //! Minimisation with argmin: L-BFGS with a More-Thuente line search on a numerical
-//! (central-difference) gradient, a Nelder-Mead fallback when the line search fails, and a
-//! numerical Hessian for the asymptotic covariance of the estimates.
+//! (central-difference) gradient or on one the caller supplies (an analytic score), and a
+//! Nelder-Mead fallback when the line search fails.
 
 use argmin::core::{CostFunction, Error as ArgminError, Executor, Gradient, State, TerminationReason};
 use argmin::solver::linesearch::MoreThuenteLineSearch;
@@ -37,9 +37,25 @@ pub struct OptimOutcome {
 /// Largest finite value returned for an objective that is not finite (keeps line searches sane).
 pub const PENALTY: f64 = 1e100;
 
+/// A gradient supplied by the caller.
+pub type GradientFn<'a> = &'a (dyn Fn(&[f64]) -> Vec<f64> + Sync);
+
 struct Problem<'a, F: Fn(&[f64]) -> f64> {
     f: &'a F,
     step: f64,
+    grad: Option<GradientFn<'a>>,
+}
+
+impl<F: Fn(&[f64]) -> f64 + Sync> Problem<'_, F> {
+    fn gradient_at(&self, x: &[f64]) -> Vec<f64> {
+        match self.grad {
+            Some(g) => {
+                let v = g(x);
+                if v.iter().all(|x| x.is_finite()) { v } else { vec![0.0; x.len()] }
+            }
+            None => numerical_gradient(&|z: &[f64]| self.eval(z), x, self.step),
+        }
+    }
 }
 
 impl<F: Fn(&[f64]) -> f64> Problem<'_, F> {
@@ -61,7 +77,7 @@ impl<F: Fn(&[f64]) -> f64 + Sync> Gradient for Problem<'_, F> {
     type Param = Vec<f64>;
     type Gradient = Vec<f64>;
     fn gradient(&self, p: &Self::Param) -> Result<Vec<f64>, ArgminError> {
-        Ok(numerical_gradient(&|x: &[f64]| self.eval(x), p, self.step))
+        Ok(self.gradient_at(p))
     }
 }
 
@@ -83,50 +99,6 @@ pub fn numerical_gradient(f: &(dyn Fn(&[f64]) -> f64 + Sync), x: &[f64], h: f64)
     (0..x.len()).map(|i| (evals[2 * i] - evals[2 * i + 1]) / (2.0 * h * x[i].abs().max(1.0))).collect()
 }
 
-/// Central-difference Hessian from function values, step `h` (absolute); evaluations in
-/// parallel (thread-count independent).
-pub fn numerical_hessian(f: &(dyn Fn(&[f64]) -> f64 + Sync), x: &[f64], h: f64) -> Vec<Vec<f64>> {
-    use rayon::prelude::*;
-    let n = x.len();
-    // points: (i, j, di, dj); i == j uses (+h, 0) and (-h, 0)
-    let mut pts: Vec<(usize, usize, f64, f64)> = Vec::new();
-    for i in 0..n {
-        pts.push((i, i, h, 0.0));
-        pts.push((i, i, -h, 0.0));
-        for j in 0..i {
-            for (a, b) in [(h, h), (h, -h), (-h, h), (-h, -h)] {
-                pts.push((i, j, a, b));
-            }
-        }
-    }
-    let f0 = f(x);
-    let vals: Vec<f64> = pts
-        .par_iter()
-        .map(|&(i, j, di, dj)| {
-            let mut xp = x.to_vec();
-            xp[i] += di;
-            if i != j {
-                xp[j] += dj;
-            }
-            f(&xp)
-        })
-        .collect();
-    let mut hess = vec![vec![0.0; n]; n];
-    let mut k = 0;
-    #[allow(clippy::needless_range_loop)] // symmetric fill: both hess[i][j] and hess[j][i]
-    for i in 0..n {
-        hess[i][i] = (vals[k] - 2.0 * f0 + vals[k + 1]) / (h * h);
-        k += 2;
-        for j in 0..i {
-            let v = (vals[k] - vals[k + 1] - vals[k + 2] + vals[k + 3]) / (4.0 * h * h);
-            hess[i][j] = v;
-            hess[j][i] = v;
-            k += 4;
-        }
-    }
-    hess
-}
-
 /// Minimise `f` from `x0` with L-BFGS (memory 7) on a central-difference gradient; if the
 /// line search fails, continue with Nelder-Mead from the best point found. Never silent: the
 /// report says which solver answered and whether it converged.
@@ -139,21 +111,35 @@ pub fn minimise(
     max_iters: u64,
     tol_grad: f64,
 ) -> Result<OptimOutcome, String> {
-    let problem = Problem { f: &f, step: 1e-5 };
+    minimise_with_gradient(f, None, x0, max_iters, tol_grad)
+}
+
+/// As [`minimise`], with the gradient given by `grad` (an analytic score) when present.
+///
+/// # Errors
+/// Returns argmin's error text when both solvers fail outright.
+pub fn minimise_with_gradient(
+    f: &(dyn Fn(&[f64]) -> f64 + Sync),
+    grad: Option<GradientFn<'_>>,
+    x0: &[f64],
+    max_iters: u64,
+    tol_grad: f64,
+) -> Result<OptimOutcome, String> {
+    let problem = Problem { f: &f, step: 1e-5, grad };
     let ls = MoreThuenteLineSearch::new();
     let lbfgs = LBFGS::new(ls, 7)
         .with_tolerance_grad(tol_grad)
         .and_then(|s| s.with_tolerance_cost(1e-10))
         .map_err(|e| e.to_string())?;
     let run = Executor::new(problem, lbfgs).configure(|s| s.param(x0.to_vec()).max_iters(max_iters)).run();
-    let problem = Problem { f: &f, step: 1e-5 };
+    let problem = Problem { f: &f, step: 1e-5, grad };
     match run {
         Ok(res) => {
             let st = res.state();
             let x = st.get_best_param().cloned().unwrap_or_else(|| x0.to_vec());
             let reason = st.get_termination_reason().cloned().unwrap_or(TerminationReason::SolverConverged);
             let converged = matches!(reason, TerminationReason::SolverConverged | TerminationReason::TargetCostReached);
-            let g = numerical_gradient(&|z: &[f64]| problem.eval(z), &x, 1e-5);
+            let g = problem.gradient_at(&x);
             let report = OptimReport {
                 solver: "l-bfgs".into(),
                 iterations: st.get_iter(),
@@ -185,13 +171,13 @@ fn nelder_mead<F: Fn(&[f64]) -> f64 + Sync>(
         simplex.push(p);
     }
     let nm = NelderMead::new(simplex).with_sd_tolerance(1e-9).map_err(|e| e.to_string())?;
-    let inner = Problem { f: problem.f, step: problem.step };
+    let inner = Problem { f: problem.f, step: problem.step, grad: problem.grad };
     let res = Executor::new(inner, nm).configure(|s| s.max_iters(max_iters * 20)).run().map_err(|e| format!("{e}"))?;
     let st = res.state();
     let x = st.get_best_param().cloned().unwrap_or_else(|| start.to_vec());
     let reason = st.get_termination_reason().cloned().unwrap_or(TerminationReason::SolverConverged);
     let converged = matches!(reason, TerminationReason::SolverConverged);
-    let g = numerical_gradient(&|z: &[f64]| problem.eval(z), &x, 1e-5);
+    let g = problem.gradient_at(&x);
     let value = problem.eval(&x);
     if let Some(prev) = previous
         && prev.value < value

@@ -5,7 +5,7 @@
 //! | --- | --- | --- | --- |
 //! | `model` | `structural` | model family | `structural`, `holt-winters`, `harmonic`, `auto` |
 //! | `seasons` | from the data's frequency | seasonal components (`7`, `365.25:4`) | period > 1; `K <= period / 2` |
-//! | `trend` | `linear-trend` | structural trend | `level`, `linear-trend`, `damped-trend` |
+//! | `trend` | `level` | structural trend (a slope is an explicit choice) | `level`, `linear-trend`, `damped-trend` |
 //! | `log` | `false` | model the log of the outcome (multiplicative effects) | outcome > 0 |
 //! | `inference` | level 0.9, 1000 draws, seed 20240601, ROPE +-1% | [`Inference`] (shared by every verb) | see there |
 //! | `parameter_uncertainty` | `true` | draw structural variances from the MLE's asymptotic normal | |
@@ -184,7 +184,7 @@ impl Default for ForecastParams {
         ForecastParams {
             model: ModelKind::Structural,
             seasons: None,
-            trend: Trend::LinearTrend,
+            trend: Trend::Level,
             log: false,
             log_controls: Vec::new(),
             inference: Inference::default(),

@@ -29,6 +29,7 @@ fn spec_a() -> StructuralSpec {
         trend: Trend::LinearTrend,
         seasons: vec![SeasonKind::Dummy { period: 7 }],
         n_regressors: 1,
+        ar: false,
         init: Initialisation::ExactDiffuse,
     }
 }
@@ -38,16 +39,33 @@ fn spec_b() -> StructuralSpec {
         trend: Trend::Level,
         seasons: vec![SeasonKind::Trig { period: 12.0, harmonics: 2 }],
         n_regressors: 0,
+        ar: false,
         init: Initialisation::ExactDiffuse,
     }
 }
 
 fn params_a(p: &[f64]) -> StructuralParams {
-    StructuralParams { irregular: p[0], level: p[1], slope: Some(p[2]), seasons: vec![p[3]], damping: None }
+    StructuralParams {
+        irregular: p[0],
+        level: p[1],
+        slope: Some(p[2]),
+        seasons: vec![p[3]],
+        damping: None,
+        ar_variance: None,
+        ar_coef: None,
+    }
 }
 
 fn params_b(p: &[f64]) -> StructuralParams {
-    StructuralParams { irregular: p[0], level: p[1], slope: None, seasons: vec![p[2]], damping: None }
+    StructuralParams {
+        irregular: p[0],
+        level: p[1],
+        slope: None,
+        seasons: vec![p[2]],
+        damping: None,
+        ar_variance: None,
+        ar_coef: None,
+    }
 }
 
 fn check_trace(out: &aftercast_forecast::structural::FilterOutput, r: &Value) {

@@ -65,6 +65,7 @@ impl PathModel for StructuralModel {
             trend: self.trend,
             seasons: self.seasons.clone(),
             n_regressors: controls.len(),
+            ar: false,
             init: Initialisation::ExactDiffuse,
         };
         let fit = structural::fit(&spec, y, controls, None)?;

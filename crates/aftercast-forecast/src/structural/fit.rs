@@ -1,11 +1,11 @@
 //! Maximum-likelihood estimation of the structural model's variances, the asymptotic
 //! covariance of the estimates, and simulation of future paths.
 
-use super::kalman::{FilterOutput, filter};
+use super::kalman::{FilterOutput, filter, filter_with_score};
 use super::model::{Initialisation, StructuralParams, StructuralSpec, Trend};
 use crate::error::{ForecastError, ForecastResult};
 use crate::linalg::{cov_sqrt, sym_pinv};
-use crate::optim::{OptimReport, minimise, numerical_hessian};
+use crate::optim::{OptimReport, minimise_with_gradient};
 use aftercast_resample::rng::{Stream, child_seed, par_draws};
 use rand::RngExt;
 use rand_distr::StandardNormal;
@@ -21,13 +21,9 @@ pub const LOG_VAR_SPAN: f64 = 30.0;
 /// log-likelihood is flat in its log-variance, so the asymptotic normal says nothing).
 pub const ZERO_VARIANCE_RATIO: f64 = 1e-6;
 
-/// Prior variance of the approximate diffuse fallback.
+/// Prior variance of the approximate diffuse last resort (used only when the exact diffuse
+/// likelihood is not finite at every starting point).
 pub const APPROX_KAPPA: f64 = 1e6;
-
-/// Largest accepted gap (log-likelihood units, plus 0.1% of its size) between the exact diffuse
-/// likelihood without its diffuse terms and the approximate diffuse likelihood at the starting
-/// values (Nile: 0.008; statsmodels reference models: below 0.1).
-pub const EXACT_CHECK_TOL: f64 = 1.0;
 
 /// Guard on parameter draws: a drawn log-variance departs at most this far from the MLE
 /// (a factor of about 55 in the variance), and stays in the optimiser's box.
@@ -78,24 +74,34 @@ pub fn variance_scale(y: &[f64]) -> f64 {
     }
 }
 
-/// Negative log-likelihood with a soft box on the optimiser vector.
-fn objective(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], theta: &[f64], lo: f64, hi: f64) -> f64 {
+/// The optimiser's box: log-variances within `[lo, hi]`, shape parameters within
+/// [`StructuralSpec::shape_bounds`].
+fn bounds(spec: &StructuralSpec, i: usize, lo: f64, hi: f64) -> (f64, f64) {
+    if i < spec.n_variances() { (lo, hi) } else { spec.shape_bounds(i) }
+}
+
+/// Negative log-likelihood with a soft box on the optimiser vector, and its gradient (the
+/// analytic score of the filter, plus the penalty's).
+fn objective(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], theta: &[f64], lo: f64, hi: f64) -> (f64, Vec<f64>) {
     let mut pen = 0.0;
-    let n_var = spec.n_params() - usize::from(spec.trend == Trend::DampedTrend);
+    let mut dpen = vec![0.0; theta.len()];
     let mut th = theta.to_vec();
     for (i, v) in th.iter_mut().enumerate() {
-        let (l, h) = if i < n_var { (lo, hi) } else { (-8.0, 8.0) };
+        let (l, h) = bounds(spec, i, lo, hi);
         if *v < l {
             pen += (l - *v).powi(2);
+            dpen[i] = -2.0 * (l - *v);
             *v = l;
         } else if *v > h {
             pen += (*v - h).powi(2);
+            dpen[i] = 2.0 * (*v - h);
             *v = h;
         }
     }
     let p = spec.params_from_theta(&th);
-    let out = filter(&spec.system(&p), y, x, false);
-    -out.loglik + pen * 10.0
+    let (out, score) = filter_with_score(&spec.system(&p), &spec.system_derivatives(&th), y, x);
+    let grad = score.iter().zip(&dpen).map(|(s, d)| -s + 10.0 * d).collect();
+    (-out.loglik + pen * 10.0, grad)
 }
 
 /// Log-likelihood and filter output at given natural-scale parameters.
@@ -103,8 +109,40 @@ pub fn loglik_at(spec: &StructuralSpec, p: &StructuralParams, y: &[f64], x: &[Ve
     filter(&spec.system(p), y, x, true)
 }
 
-/// Fit by maximum likelihood: L-BFGS on the log-variances (and logit damping) with a
-/// central-difference score, from starting values that split the differenced variance.
+/// Log-likelihood and its gradient with respect to the optimiser's vector (log-variances, logit
+/// damping, `atanh` AR coefficient), without the optimiser's box.
+pub fn score_at(spec: &StructuralSpec, theta: &[f64], y: &[f64], x: &[Vec<f64>]) -> (f64, Vec<f64>) {
+    let p = spec.params_from_theta(theta);
+    let (out, g) = filter_with_score(&spec.system(&p), &spec.system_derivatives(theta), y, x);
+    (out.loglik, g)
+}
+
+/// Candidate starting points: the variance of the differenced series split among the
+/// components in a few proportions (irregular-led, level-led, even). The best of them by
+/// likelihood starts the optimiser.
+fn starting_points(spec: &StructuralSpec, ls: f64) -> Vec<Vec<f64>> {
+    let n_var = spec.n_variances();
+    let mut out = Vec::new();
+    for (irr, lev, rest) in [(-0.7, -2.0, -4.5), (-2.5, -0.7, -4.5), (-1.0, -1.0, -2.5), (-0.3, -5.0, -7.0)] {
+        let mut v = vec![ls + rest; n_var];
+        v[0] = ls + irr;
+        v[1] = ls + lev;
+        if spec.ar {
+            v[n_var - 1] = ls + irr - 0.7;
+        }
+        if spec.trend == Trend::DampedTrend {
+            v.push(2.0);
+        }
+        if spec.ar {
+            v.push(0.5_f64.atanh());
+        }
+        out.push(v);
+    }
+    out
+}
+
+/// Fit by maximum likelihood: L-BFGS on the log-variances (and logit damping, `atanh` AR
+/// coefficient) with the analytic score, from the best of a few starting points.
 ///
 /// # Errors
 /// [`ForecastError::NotIdentified`] when the diffuse period does not end within `y`;
@@ -113,105 +151,65 @@ pub fn fit(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], start: Option<&[f64
     let scale = variance_scale(y);
     let ls = scale.ln();
     let (lo, hi) = (ls - LOG_VAR_SPAN, ls + 8.0);
-    let n_var = spec.n_params() - usize::from(spec.trend == Trend::DampedTrend);
-    let theta0: Vec<f64> = match start {
-        Some(s) => s.to_vec(),
-        None => {
-            let mut v = vec![ls - (n_var as f64).ln(); n_var];
-            v[0] = ls - 1.0_f64.ln() - 0.7;
-            for (i, t) in v.iter_mut().enumerate().skip(1) {
-                // slope and seasonal disturbances start smaller than the level's
-                if i >= 2 {
-                    *t -= 2.0;
-                }
-            }
-            if spec.trend == Trend::DampedTrend {
-                v.push(2.0);
-            }
-            v
-        }
-    };
-    let mut probe = filter(&spec.system(&spec.params_from_theta(&theta0)), y, x, false);
+    let n_var = spec.n_variances();
     let mut warnings = Vec::new();
     let mut spec_used = spec.clone();
-    // Numerical check of the exact recursion: away from the diffuse observations its
-    // likelihood must agree with the approximate diffuse one (prior variance 1e6, same number
-    // of observations left out); a large gap means round-off in P_inf / P_star (seen with a
-    // long trigonometric season beside a trend and controls).
-    let mut gap = None;
-    if probe.resolved && spec.init == Initialisation::ExactDiffuse && probe.n_diffuse > 0 {
-        let mut approx = spec.clone();
-        approx.init = Initialisation::ApproximateDiffuse { kappa: APPROX_KAPPA };
-        let a = filter(&approx.system(&approx.params_from_theta(&theta0)), y, x, false);
-        let d = (probe.loglik_nondiffuse - a.loglik).abs();
-        if d > EXACT_CHECK_TOL * (1.0 + 1e-3 * a.loglik.abs()) {
-            gap = Some(d);
-        }
-    }
-    if let Some(d) = gap {
-        spec_used.init = Initialisation::ApproximateDiffuse { kappa: APPROX_KAPPA };
-        probe = filter(&spec_used.system(&spec_used.params_from_theta(&theta0)), y, x, false);
-        warnings.push(format!(
-            "structural model: the exact diffuse filter is numerically unreliable on this model (its log-likelihood differs by {d:.2} from the approximate diffuse one at the starting values); the approximate diffuse prior (variance {APPROX_KAPPA:e}) is used instead"
-        ));
-    } else if !probe.resolved && probe.n_used > spec.n_states() {
-        // Many nearly collinear diffuse states (e.g. a long trigonometric season next to a
-        // trend and many event indicators) can leave the exact diffuse recursion numerically
-        // unresolved; fall back to the approximate diffuse prior, visibly.
-        let resolved_states = probe.n_diffuse;
-        spec_used.init = Initialisation::ApproximateDiffuse { kappa: APPROX_KAPPA };
-        probe = filter(&spec_used.system(&spec_used.params_from_theta(&theta0)), y, x, false);
-        warnings.push(format!(
-            "structural model: the exact diffuse initialisation did not resolve numerically ({} of {} diffuse states); the approximate diffuse prior (variance {APPROX_KAPPA:e}, first {} observations left out of the likelihood) is used instead",
-            resolved_states,
-            spec.n_states(),
-            spec_used.system(&spec_used.params_from_theta(&theta0)).burn
-        ));
-    }
+    let candidates = match start {
+        Some(s) => vec![s.to_vec()],
+        None => starting_points(spec, ls),
+    };
+    let probe = filter(&spec.system(&spec.params_from_theta(&candidates[0])), y, x, false);
     if !probe.resolved {
         return Err(ForecastError::NotIdentified { model: "structural", periods: y.len() });
     }
+    let value = |sp: &StructuralSpec, th: &[f64]| filter(&sp.system(&sp.params_from_theta(th)), y, x, false).loglik;
+    let mut scored: Vec<(f64, Vec<f64>)> = candidates.iter().map(|c| (value(spec, c), c.clone())).collect();
+    if scored.iter().all(|(l, _)| !l.is_finite()) && spec.init == Initialisation::ExactDiffuse {
+        // last resort: a proper but wide prior on the initial state
+        spec_used.init = Initialisation::ApproximateDiffuse { kappa: APPROX_KAPPA };
+        scored = candidates.iter().map(|c| (value(&spec_used, c), c.clone())).collect();
+        warnings.push(format!(
+            "structural model: the exact treatment of the unknown starting state failed on this data, so a wide prior (variance {APPROX_KAPPA:e}) is used; check the controls and events for columns that repeat one another"
+        ));
+    }
     let spec = &spec_used;
-    if !probe.loglik.is_finite() {
+    let Some((ll0, theta0)) = scored.into_iter().filter(|(l, _)| l.is_finite()).max_by(|a, b| a.0.total_cmp(&b.0))
+    else {
         return Err(ForecastError::NonFiniteObjective {
             model: "structural",
-            detail: format!("log-likelihood {}", probe.loglik),
+            detail: "the log-likelihood is not finite at any starting point".into(),
         });
-    }
+    };
+    let _ = ll0;
     let n_used = probe.n_used.max(1) as f64;
-    let f = |th: &[f64]| objective(spec, y, x, th, lo, hi) / n_used;
-    let out =
-        minimise(&f, &theta0, 200, 1e-6).map_err(|detail| ForecastError::Optimiser { model: "structural", detail })?;
+    let f = |th: &[f64]| objective(spec, y, x, th, lo, hi).0 / n_used;
+    let g = |th: &[f64]| objective(spec, y, x, th, lo, hi).1.into_iter().map(|v| v / n_used).collect::<Vec<f64>>();
+    let out = minimise_with_gradient(&f, Some(&g), &theta0, 300, 1e-7)
+        .map_err(|detail| ForecastError::Optimiser { model: "structural", detail })?;
     let mut theta = out.x;
     for (i, v) in theta.iter_mut().enumerate() {
-        let (l, h) = if i < n_var { (lo, hi) } else { (-8.0, 8.0) };
+        let (l, h) = bounds(spec, i, lo, hi);
         *v = v.clamp(l, h);
     }
     if !out.report.converged {
         warnings.push(format!(
-            "structural model: the optimiser ({}) did not report convergence ({}; gradient norm {:.2e}); the variances may not be at the maximum",
-            out.report.solver, out.report.reason, out.report.gradient_norm
+            "structural model: the search for the best-fitting variances stopped before it settled ({}; {} iterations); the interval may be off: try --trend level or fewer seasons",
+            out.report.reason, out.report.iterations
         ));
     }
     let names = spec.param_names();
-    let at_lower_edge: Vec<String> = (0..n_var).filter(|&i| theta[i] <= lo + 1.0).map(|i| names[i].clone()).collect();
-    // asymptotic covariance: inverse Hessian of -loglik over the parameters not at an edge
-    let free: Vec<usize> = (0..theta.len()).filter(|&i| !(i < n_var && theta[i] <= lo + 1.0)).collect();
+    let zero = ls + ZERO_VARIANCE_RATIO.ln();
+    let at_lower_edge: Vec<String> = (0..n_var).filter(|&i| theta[i] <= zero).map(|i| names[i].clone()).collect();
+    // asymptotic covariance: inverse Hessian of -loglik over the parameters not at an edge,
+    // by central differences of the analytic score
+    let free: Vec<usize> = (0..theta.len()).filter(|&i| !(i < n_var && theta[i] <= zero)).collect();
     let mut theta_cov = vec![vec![0.0; theta.len()]; theta.len()];
     if !free.is_empty() {
-        let g = |sub: &[f64]| {
-            let mut th = theta.clone();
-            for (k, &i) in free.iter().enumerate() {
-                th[i] = sub[k];
-            }
-            objective(spec, y, x, &th, lo, hi)
-        };
-        let sub0: Vec<f64> = free.iter().map(|&i| theta[i]).collect();
-        let hess = numerical_hessian(&g, &sub0, 1e-3);
+        let hess = score_hessian(spec, y, x, &theta, &free, lo, hi);
         let (inv, dropped) = sym_pinv(&hess, 1e-6);
         if dropped > 0 {
             warnings.push(format!(
-                "structural model: the likelihood is flat in {dropped} direction(s) at the maximum; parameter uncertainty is not propagated along them"
+                "structural model: the data cannot tell apart {dropped} combination(s) of the variances; their uncertainty is left out of the interval, which may be too narrow (a simpler model, e.g. --trend level or fewer seasons, avoids it)"
             ));
         }
         for (a, &i) in free.iter().enumerate() {
@@ -233,6 +231,45 @@ pub fn fit(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], start: Option<&[f64
         n_used: fo.n_used,
         warnings,
     })
+}
+
+/// Hessian of `-loglik` over the `free` entries of `theta`: central differences (step 1e-4) of
+/// the analytic score, symmetrised; the `2 k` evaluations run in parallel.
+fn score_hessian(
+    spec: &StructuralSpec,
+    y: &[f64],
+    x: &[Vec<f64>],
+    theta: &[f64],
+    free: &[usize],
+    lo: f64,
+    hi: f64,
+) -> Vec<Vec<f64>> {
+    use rayon::prelude::*;
+    const H: f64 = 1e-4;
+    let k = free.len();
+    let grads: Vec<Vec<f64>> = (0..2 * k)
+        .into_par_iter()
+        .map(|e| {
+            let mut th = theta.to_vec();
+            th[free[e / 2]] += if e % 2 == 0 { H } else { -H };
+            objective(spec, y, x, &th, lo, hi).1
+        })
+        .collect();
+    let mut hess = vec![vec![0.0; k]; k];
+    for a in 0..k {
+        for b in 0..k {
+            let gb = free[b];
+            hess[a][b] = (grads[2 * a][gb] - grads[2 * a + 1][gb]) / (2.0 * H);
+        }
+    }
+    for a in 0..k {
+        for b in 0..a {
+            let v = 0.5 * (hess[a][b] + hess[b][a]);
+            hess[a][b] = v;
+            hess[b][a] = v;
+        }
+    }
+    hess
 }
 
 /// How counterfactual paths are drawn.
@@ -278,7 +315,6 @@ pub fn simulate(
     let cov_root = cov_sqrt(&fit.theta_cov);
     let ls = variance_scale(y).ln();
     let (lo, hi) = (ls - LOG_VAR_SPAN, ls + 8.0);
-    let n_var = spec.n_params() - usize::from(spec.trend == Trend::DampedTrend);
     let theta_seed = child_seed(opts.seed, "structural-parameters");
     // one filter pass per parameter set: start state distribution after the fitting span
     struct Start {
@@ -296,7 +332,8 @@ pub fn simulate(
                 .map(|r| {
                     let dev = (0..k).map(|c| cov_root[r][c] * zs[c]).sum::<f64>();
                     let v = fit.theta[r] + dev.clamp(-MAX_LOG_VAR_DEVIATION, MAX_LOG_VAR_DEVIATION);
-                    if r < n_var { v.clamp(lo, hi) } else { v }
+                    let (l, h) = bounds(spec, r, lo, hi);
+                    v.clamp(l, h)
                 })
                 .collect()
         };

@@ -6,6 +6,6 @@ pub mod fit;
 pub mod kalman;
 pub mod model;
 
-pub use fit::{SimulationOptions, StructuralFit, fit, loglik_at, simulate};
-pub use kalman::{FilterOutput, FilterTrace, filter};
+pub use fit::{SimulationOptions, StructuralFit, fit, loglik_at, score_at, simulate};
+pub use kalman::{FilterOutput, FilterTrace, SystemDerivative, filter, filter_with_score};
 pub use model::{Initialisation, SeasonKind, StructuralParams, StructuralSpec, System, Trend};

@@ -2,8 +2,9 @@
 //!
 //! State vector, in order: level; slope (linear or damped trend); for each season its states
 //! (dummy seasonal: `s - 1` states; trigonometric: `2K` states, or `2K - 1` when `2K = s`, because
-//! the sine partner of the frequency-pi harmonic is never observed); one regression coefficient
-//! per regressor (controls, then event indicators). Regression coefficients are states with no
+//! the sine partner of the frequency-pi harmonic is never observed); the autoregressive
+//! component when present (one stationary state); one regression coefficient per regressor
+//! (controls, then event indicators). Regression coefficients are states with no
 //! disturbance (time-invariant), so they are estimated by the filter, not by the optimiser.
 
 use serde::{Deserialize, Serialize};
@@ -12,10 +13,11 @@ use serde::{Deserialize, Serialize};
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
 #[serde(rename_all = "kebab-case")]
 pub enum Trend {
-    /// Local level: `mu[t+1] = mu[t] + eta[t]`.
+    /// Local level: `mu[t+1] = mu[t] + eta[t]` (the default: a counterfactual forecast carries
+    /// the last level forward and no extrapolated slope).
+    #[default]
     Level,
     /// Local linear trend: `mu[t+1] = mu[t] + nu[t] + eta[t]`, `nu[t+1] = nu[t] + zeta[t]`.
-    #[default]
     LinearTrend,
     /// Damped trend: `nu[t+1] = phi nu[t] + zeta[t]` with `0 < phi < 1` estimated by MLE.
     DampedTrend,
@@ -81,6 +83,10 @@ pub struct StructuralSpec {
     pub seasons: Vec<SeasonKind>,
     /// Number of regressors (controls and event indicators) whose coefficients are states.
     pub n_regressors: usize,
+    /// An AR(1) component `c[t+1] = rho c[t] + kappa[t]` (stationary, `|rho| < 1`) that absorbs
+    /// autocorrelated departures from the other components.
+    #[serde(default)]
+    pub ar: bool,
     /// Initial-state treatment.
     pub init: Initialisation,
 }
@@ -98,15 +104,33 @@ pub struct StructuralParams {
     pub seasons: Vec<f64>,
     /// Damping factor (damped trend only).
     pub damping: Option<f64>,
+    /// Disturbance variance of the AR(1) component.
+    #[serde(default)]
+    pub ar_variance: Option<f64>,
+    /// Coefficient of the AR(1) component.
+    #[serde(default)]
+    pub ar_coef: Option<f64>,
 }
 
 /// Lower and upper bounds of the damping factor.
 pub const DAMPING_RANGE: (f64, f64) = (0.0, 1.0);
 
 impl StructuralSpec {
-    /// Number of parameters the optimiser sees.
+    /// Number of variances among the optimiser's parameters (they come first).
+    pub fn n_variances(&self) -> usize {
+        2 + usize::from(self.trend != Trend::Level) + self.seasons.len() + usize::from(self.ar)
+    }
+
+    /// Number of parameters the optimiser sees: the log-variances, then the logit damping and
+    /// the AR coefficient on the `atanh` scale.
     pub fn n_params(&self) -> usize {
-        2 + usize::from(self.trend != Trend::Level) + self.seasons.len() + usize::from(self.trend == Trend::DampedTrend)
+        self.n_variances() + usize::from(self.trend == Trend::DampedTrend) + usize::from(self.ar)
+    }
+
+    /// Box of the optimiser's parameter `i` that is not a log-variance (damping: logit within
+    /// +-8; AR coefficient: `atanh` within +-3, so `|rho| <= 0.995`).
+    pub fn shape_bounds(&self, i: usize) -> (f64, f64) {
+        if self.trend == Trend::DampedTrend && i == self.n_variances() { (-8.0, 8.0) } else { (-3.0, 3.0) }
     }
 
     /// Parameter names, in the order of the optimiser's vector.
@@ -121,13 +145,20 @@ impl StructuralSpec {
                 SeasonKind::Trig { period, harmonics } => format!("seasonal({period}:{harmonics}) variance"),
             });
         }
+        if self.ar {
+            v.push("AR(1) variance".into());
+        }
         if self.trend == Trend::DampedTrend {
             v.push("damping".into());
+        }
+        if self.ar {
+            v.push("AR(1) coefficient".into());
         }
         v
     }
 
-    /// Natural-scale parameters from the optimiser's vector (log-variances, logit damping).
+    /// Natural-scale parameters from the optimiser's vector (log-variances, logit damping,
+    /// `atanh` AR coefficient).
     pub fn params_from_theta(&self, theta: &[f64]) -> StructuralParams {
         let mut i = 0;
         let mut next = || {
@@ -139,11 +170,13 @@ impl StructuralSpec {
         let level = next().exp();
         let slope = (self.trend != Trend::Level).then(|| next().exp());
         let seasons = self.seasons.iter().map(|_| next().exp()).collect();
+        let ar_variance = self.ar.then(|| next().exp());
         let damping = (self.trend == Trend::DampedTrend).then(|| {
             let x = next();
             1.0 / (1.0 + (-x).exp())
         });
-        StructuralParams { irregular, level, slope, seasons, damping }
+        let ar_coef = self.ar.then(|| next().tanh());
+        StructuralParams { irregular, level, slope, seasons, damping, ar_variance, ar_coef }
     }
 
     /// The optimiser's vector from natural-scale parameters.
@@ -155,17 +188,84 @@ impl StructuralSpec {
         for s in &p.seasons {
             v.push(s.ln());
         }
+        if self.ar {
+            v.push(p.ar_variance.unwrap_or(1.0).ln());
+        }
         if self.trend == Trend::DampedTrend {
             let phi = p.damping.unwrap_or(0.9);
             v.push((phi / (1.0 - phi)).ln());
         }
+        if self.ar {
+            v.push(p.ar_coef.unwrap_or(0.0).clamp(-0.995, 0.995).atanh());
+        }
         v
+    }
+
+    /// Index of the AR(1) state, when present.
+    pub fn ar_state(&self) -> Option<usize> {
+        self.ar.then(|| self.regression_start() - 1)
+    }
+
+    /// Derivatives of the system matrices with respect to each entry of the optimiser's vector,
+    /// at `theta` (for the score; see [`super::kalman::filter_with_score`]).
+    pub fn system_derivatives(&self, theta: &[f64]) -> Vec<super::kalman::SystemDerivative> {
+        use super::kalman::SystemDerivative;
+        let p = self.params_from_theta(theta);
+        let mut out = Vec::with_capacity(self.n_params());
+        out.push(SystemDerivative { dh: p.irregular, ..Default::default() });
+        out.push(SystemDerivative { dq: vec![(0, p.level)], ..Default::default() });
+        let mut k = 1;
+        if self.trend != Trend::Level {
+            let s2 = p.slope.unwrap_or(0.0);
+            let mut g = SystemDerivative { dq: vec![(1, s2)], ..Default::default() };
+            if let Some(phi) = p.damping {
+                g.dp0 = vec![(1, 1, s2 / (1.0 - phi * phi))];
+            }
+            out.push(g);
+            k = 2;
+        }
+        for (si, s) in self.seasons.iter().enumerate() {
+            let n = s.n_states();
+            let var = p.seasons[si];
+            let dq = match *s {
+                SeasonKind::Dummy { .. } => vec![(k, var)],
+                SeasonKind::Trig { .. } => (k..k + n).map(|i| (i, var)).collect(),
+            };
+            out.push(SystemDerivative { dq, ..Default::default() });
+            k += n;
+        }
+        if let (Some(i), Some(s2), Some(rho)) = (self.ar_state(), p.ar_variance, p.ar_coef) {
+            out.push(SystemDerivative {
+                dq: vec![(i, s2)],
+                dp0: vec![(i, i, s2 / (1.0 - rho * rho))],
+                ..Default::default()
+            });
+        }
+        if let Some(phi) = p.damping {
+            let dphi = phi * (1.0 - phi);
+            let s2 = p.slope.unwrap_or(0.0);
+            out.push(SystemDerivative {
+                dt: vec![(1, 1, dphi)],
+                dp0: vec![(1, 1, s2 * 2.0 * phi / (1.0 - phi * phi).powi(2) * dphi)],
+                ..Default::default()
+            });
+        }
+        if let (Some(i), Some(s2), Some(rho)) = (self.ar_state(), p.ar_variance, p.ar_coef) {
+            let drho = 1.0 - rho * rho;
+            out.push(SystemDerivative {
+                dt: vec![(i, i, drho)],
+                dp0: vec![(i, i, s2 * 2.0 * rho / (1.0 - rho * rho).powi(2) * drho)],
+                ..Default::default()
+            });
+        }
+        out
     }
 
     /// Number of states.
     pub fn n_states(&self) -> usize {
         1 + usize::from(self.trend != Trend::Level)
             + self.seasons.iter().map(SeasonKind::n_states).sum::<usize>()
+            + usize::from(self.ar)
             + self.n_regressors
     }
 
@@ -236,6 +336,16 @@ impl StructuralSpec {
                     }
                 }
             }
+        }
+        if self.ar {
+            let rho = p.ar_coef.unwrap_or(0.0);
+            let s2 = p.ar_variance.unwrap_or(0.0);
+            rows[k].push((k, rho));
+            z_fixed.push((k, 1.0));
+            q[k] = s2;
+            diffuse[k] = false;
+            p_star0[k * m + k] = s2 / (1.0 - rho * rho);
+            k += 1;
         }
         for j in 0..self.n_regressors {
             rows[k + j].push((k + j, 1.0));
