@@ -32,17 +32,27 @@ fn bench(c: &mut Criterion) {
         seasons: vec![SeasonKind::Dummy { period: 7 }, SeasonKind::Trig { period: 365.25, harmonics: 4 }],
         n_regressors: 2,
         ar: false,
+        control_scales: vec![],
         init: Initialisation::ExactDiffuse,
     };
     let xp: Vec<Vec<f64>> = x.iter().map(|v| v[..n_pre].to_vec()).collect();
     let mut g = c.benchmark_group("forecast");
     g.sample_size(10);
-    g.bench_function("structural_mle_1095", |b| b.iter(|| fit(&spec, &y[..n_pre], &xp, None).unwrap()));
     let f = fit(&spec, &y[..n_pre], &xp, None).unwrap();
     eprintln!(
-        "fit: converged {} ({}), loglik {:.3}, params {:?}",
-        f.optim.converged, f.optim.reason, f.loglik, f.params
+        "fit: converged {} ({}, {} iterations), loglik {:.3}, params {:?}",
+        f.optim.converged, f.optim.reason, f.optim.iterations, f.loglik, f.params
     );
+    let t0 = std::time::Instant::now();
+    for _ in 0..10 {
+        std::hint::black_box(aftercast_forecast::structural::score_at(&spec, &f.theta, &y[..n_pre], &xp));
+    }
+    let t1 = std::time::Instant::now();
+    for _ in 0..10 {
+        let p = spec.params_from_theta(&f.theta);
+        std::hint::black_box(aftercast_forecast::structural::filter(&spec.system(&p), &y[..n_pre], &xp, false));
+    }
+    eprintln!("one score pass {:?}, one filter pass {:?}", (t1 - t0) / 10, t1.elapsed() / 10);
     let opts = SimulationOptions { draws: 1000, seed: 1, parameter_uncertainty: true, parameter_sets: 100 };
     g.bench_function("structural_draws_1000x90", |b| b.iter(|| simulate(&f, &y[..n_pre], &x, 0, 90, &opts).unwrap()));
     g.bench_function("structural_mle_plus_1000_draws", |b| {

@@ -9,8 +9,9 @@ use crate::events::EventCalendar;
 use crate::harmonic::{self, HarmonicFit, HarmonicSpec};
 use crate::holt_winters::{self, HwFit, HwSpec, Seasonality};
 use crate::optim::OptimReport;
+use crate::params::{Choice, SHRINK_FROM_CONTROLS};
 use crate::params::{ModelKind, Season, ValidParams};
-use crate::structural::{self, Initialisation, SeasonKind, SimulationOptions, StructuralFit, StructuralSpec};
+use crate::structural::{self, Initialisation, SeasonKind, SimulationOptions, StructuralFit, StructuralSpec, Trend};
 use aftercast_core::estimate::{Estimate, Point, Scope};
 use aftercast_core::result::{EffectDraws, PathPoint};
 use aftercast_core::series::{Series, Split};
@@ -31,6 +32,8 @@ pub struct Prepared {
     pub regs: Vec<Vec<f64>>,
     /// Their names.
     pub reg_names: Vec<String>,
+    /// How many of the regressors are controls (they come first; event indicators follow).
+    pub n_controls: usize,
     /// Seasonal components in use.
     pub seasons: Vec<Season>,
     /// Whether the model scale is the log.
@@ -71,14 +74,126 @@ impl FittedModel {
     }
 }
 
-fn structural_spec(p: &Prepared, params: &ValidParams) -> StructuralSpec {
+/// The structural model the parameters ask for, on periods `0..n_fit` (the AR(1) component
+/// as asked; `auto` starts without it). Shrunk controls are scaled by their variance over the
+/// fitting span.
+fn structural_spec(p: &Prepared, params: &ValidParams, n_fit: usize) -> StructuralSpec {
+    let pp = params.get();
+    let shrink = match pp.shrink_controls {
+        Choice::On => p.n_controls > 0,
+        Choice::Off => false,
+        Choice::Auto => p.n_controls >= SHRINK_FROM_CONTROLS,
+    };
+    let control_scales = if shrink {
+        p.regs[..p.n_controls]
+            .iter()
+            .map(|x| {
+                let v = &x[..n_fit];
+                let m = v.iter().sum::<f64>() / v.len() as f64;
+                let var = v.iter().map(|a| (a - m).powi(2)).sum::<f64>() / v.len() as f64;
+                if var > 0.0 { var } else { 1.0 }
+            })
+            .collect()
+    } else {
+        Vec::new()
+    };
     StructuralSpec {
-        trend: params.get().trend,
+        trend: pp.trend.unwrap_or(Trend::Level),
         seasons: p.seasons.iter().map(Season::kind).collect(),
         n_regressors: p.regs.len(),
-        ar: false,
+        ar: pp.ar == Choice::On,
+        control_scales,
         init: Initialisation::ExactDiffuse,
     }
+}
+
+/// Distinct parameter draws of the structural model in each backtest fold (the analysis itself
+/// uses `parameter_sets`): a backtest scores 200 paths per fold, and 25 parameter draws are
+/// enough to carry their uncertainty into a score at a quarter of the filter passes.
+pub const BACKTEST_PARAMETER_SETS: usize = 25;
+
+/// Ljung-Box p-value under which the one-step residuals count as autocorrelated.
+pub const LJUNG_BOX_ALPHA: f64 = 0.01;
+
+/// Fit the structural model; with `ar = auto`, refit with an AR(1) component when the
+/// one-step residuals are autocorrelated (Ljung-Box p below [`LJUNG_BOX_ALPHA`]) and keep it when
+/// it lowers the AIC (two more parameters).
+fn fit_structural(
+    spec: StructuralSpec,
+    params: &ValidParams,
+    y: &[f64],
+    regs: &[Vec<f64>],
+    warm: Option<&StructuralFit>,
+) -> ForecastResult<StructuralFit> {
+    // a warm start with an AR component goes straight to the AR model (the choice was made on
+    // a nearby span); one without starts the model without it
+    let (spec, warm_theta) = match warm {
+        Some(w) if params.get().ar == Choice::Auto && w.spec.ar && !spec.ar => {
+            let s = StructuralSpec { ar: true, ..spec };
+            let ok = w.theta.len() == s.n_params();
+            (s, ok.then(|| w.theta.clone()))
+        }
+        Some(w) => {
+            let ok = w.theta.len() == spec.n_params() && w.spec.ar == spec.ar;
+            (spec, ok.then(|| w.theta.clone()))
+        }
+        None => (spec, None),
+    };
+    let f = structural::fit(&spec, y, regs, warm_theta.as_deref())?;
+    if params.get().ar != Choice::Auto || spec.ar {
+        return Ok(f);
+    }
+    let lb = structural_one_step(&f, y, regs).2;
+    if lb.p_value >= LJUNG_BOX_ALPHA {
+        return Ok(f);
+    }
+    let with_ar = StructuralSpec { ar: true, ..spec };
+    // start from the fit without it: the irregular variance shared with the new component
+    let mut p0 = f.params.clone();
+    p0.ar_variance = Some(p0.irregular / 2.0);
+    p0.irregular /= 2.0;
+    p0.ar_coef = Some(0.5);
+    for v in p0.seasons.iter_mut().chain([&mut p0.level]).chain(p0.slope.as_mut()) {
+        *v = v.max(f.params.irregular * 1e-6);
+    }
+    let start = with_ar.theta_from_params(&p0);
+    match structural::fit(&with_ar, y, regs, Some(&start)) {
+        Ok(mut g) if g.loglik - 2.0 > f.loglik => {
+            g.notes.push(format!(
+                "an AR(1) component was added: the one-step residuals were autocorrelated without it (Ljung-Box p = {:.3}) and it improves the fit (log-likelihood {:.1} -> {:.1}, coefficient {:.2})",
+                lb.p_value,
+                f.loglik,
+                g.loglik,
+                g.params.ar_coef.unwrap_or(0.0)
+            ));
+            Ok(g)
+        }
+        _ => Ok(f),
+    }
+}
+
+/// One-step predictions, their sd (NaN in the diffuse period) and the Ljung-Box test of the
+/// standardised residuals of a structural fit.
+fn structural_one_step(f: &StructuralFit, y: &[f64], regs: &[Vec<f64>]) -> (Vec<f64>, Vec<f64>, LjungBox, Vec<f64>) {
+    let n = y.len();
+    let out = structural::loglik_at(&f.spec, &f.params, y, regs);
+    let tr = out.trace.unwrap_or_default();
+    let mut pred = vec![f64::NAN; n];
+    let mut sd = vec![f64::NAN; n];
+    let mut std_res = Vec::new();
+    for t in 0..n {
+        if tr.diffuse[t] || !tr.forecast_var[t].is_finite() {
+            continue;
+        }
+        pred[t] = tr.forecast[t];
+        sd[t] = tr.forecast_var[t].sqrt();
+        if y[t].is_finite() {
+            std_res.push((y[t] - pred[t]) / sd[t]);
+        }
+    }
+    let lags = (std_res.len() / 5).clamp(1, 10);
+    let lb = ljung_box(&std_res, lags);
+    (pred, sd, lb, std_res)
 }
 
 fn hw_spec(p: &Prepared, params: &ValidParams) -> (HwSpec, Option<String>) {
@@ -126,17 +241,32 @@ fn truncate(regs: &[Vec<f64>], n: usize) -> Vec<Vec<f64>> {
 /// # Errors
 /// The fitting errors of each model family.
 pub fn fit_model(kind: ModelKind, p: &Prepared, params: &ValidParams, n_fit: usize) -> ForecastResult<FittedModel> {
+    fit_model_from(kind, p, params, n_fit, None)
+}
+
+/// As [`fit_model`], the structural optimiser starting from `warm` (a nearby fit's optimiser
+/// vector, e.g. the previous backtest fold's) when it has the right length.
+///
+/// # Errors
+/// The fitting errors of each model family.
+pub fn fit_model_from(
+    kind: ModelKind,
+    p: &Prepared,
+    params: &ValidParams,
+    n_fit: usize,
+    warm: Option<&StructuralFit>,
+) -> ForecastResult<FittedModel> {
     let at = p.times.get(n_fit).or(p.times.last()).map(ToString::to_string).unwrap_or_default();
     let y = &p.y[..n_fit];
     match kind {
         ModelKind::Structural | ModelKind::Auto => {
-            let spec = structural_spec(p, params);
-            let needed = spec.n_states() + 3;
+            let spec = structural_spec(p, params, n_fit);
+            let needed = spec.n_states() - spec.control_scales.len() + 3;
             let found = y.iter().filter(|v| v.is_finite()).count();
             if found < needed {
                 return Err(ForecastError::TooShort { model: "structural", needed, found, at });
             }
-            Ok(FittedModel::Structural(structural::fit(&spec, y, &truncate(&p.regs, n_fit), None)?))
+            Ok(FittedModel::Structural(fit_structural(spec, params, y, &truncate(&p.regs, n_fit), warm)?))
         }
         ModelKind::HoltWinters => {
             let (spec, note) = hw_spec(p, params);
@@ -193,26 +323,7 @@ fn in_sample(model: &FittedModel, p: &Prepared, n_fit: usize) -> (Vec<f64>, Vec<
     let y = &p.y[..n_fit];
     match model {
         FittedModel::Structural(f) => {
-            let out = structural::loglik_at(&f.spec, &f.params, y, &truncate(&p.regs, n_fit));
-            let tr = out.trace.unwrap_or_default();
-            let mut pred = vec![f64::NAN; n_fit];
-            let mut sd = vec![f64::NAN; n_fit];
-            let mut std_res = Vec::new();
-            let mut seen_nondiffuse = false;
-            for t in 0..n_fit {
-                if tr.diffuse[t] {
-                    continue;
-                }
-                // the first periods after the diffuse phase can still have huge variances if
-                // some states were resolved late; they are kept (finite F)
-                seen_nondiffuse = true;
-                pred[t] = tr.forecast[t];
-                sd[t] = tr.forecast_var[t].sqrt();
-                if y[t].is_finite() {
-                    std_res.push((y[t] - pred[t]) / sd[t]);
-                }
-            }
-            let _ = seen_nondiffuse;
+            let (pred, sd, _, std_res) = structural_one_step(f, y, &truncate(&p.regs, n_fit));
             (pred, sd, std_res)
         }
         FittedModel::HoltWinters(f) => {
@@ -257,10 +368,30 @@ pub struct StructuralDiagnostics {
     pub loglik: f64,
     /// Components whose variance was estimated at (effectively) zero.
     pub zero_variance: Vec<String>,
-    /// Regression coefficients at the end of the pre-period: `(name, mean, sd)`.
-    pub coefficients: Vec<(String, f64, f64)>,
+    /// Regression coefficients at the end of the pre-period.
+    pub coefficients: Vec<ControlWeight>,
+    /// Whether the control coefficients were shrunk together (empirical-Bayes ridge prior).
+    #[serde(default)]
+    pub shrunk_controls: bool,
+    /// Choices made on the data (e.g. an AR(1) component added).
+    #[serde(default)]
+    pub notes: Vec<String>,
     /// Optimiser report.
     pub optimiser: OptimReport,
+}
+
+/// A regressor's coefficient at the end of the pre-period.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ControlWeight {
+    /// Control or `event:NAME`.
+    pub name: String,
+    /// Posterior mean of the coefficient.
+    pub coefficient: f64,
+    /// Its posterior sd.
+    pub sd: f64,
+    /// Coefficient times the regressor's pre-period sd: its weight in the outcome's units,
+    /// comparable across controls (the largest are the controls that drive the outcome).
+    pub standardised: f64,
 }
 
 /// Everything the analysis reports about the pre-period fit (serialisable into the result's
@@ -452,6 +583,7 @@ pub fn prepare(
         regs.push(x[..n].to_vec());
         names.push(name.clone());
     }
+    let n_controls = regs.len();
     if let Some(cal) = events {
         let (inds, unused) = cal.indicators(&series.axis)?;
         if !unused.is_empty() {
@@ -495,7 +627,7 @@ pub fn prepare(
         };
         seasons.push(s);
     }
-    let prepared = Prepared { y, regs, reg_names: names, seasons, log: pp.log, times: pts[..n].to_vec() };
+    let prepared = Prepared { y, regs, reg_names: names, n_controls, seasons, log: pp.log, times: pts[..n].to_vec() };
     Ok((prepared, warnings, breaks))
 }
 
@@ -507,32 +639,96 @@ impl ValidParams {
     /// Preparation and fitting errors.
     pub fn fit(&self, series: &Series, split: Split, events: Option<&EventCalendar>) -> ForecastResult<Fitted> {
         let (prepared, mut warnings, control_breaks) = prepare(series, &split, self, events)?;
-        let kind = if self.get().model == ModelKind::Auto {
-            let bt = run_backtest(
-                &prepared,
-                &split,
-                self,
-                &[ModelKind::Structural, ModelKind::HoltWinters, ModelKind::Harmonic],
-            );
-            choose(&bt, &mut warnings)
+        let cands = candidates(self);
+        let chosen = if cands.len() > 1 {
+            let bt = run_backtest(&prepared, &split, self, &cands);
+            choose(&bt, &cands, self.get().model == ModelKind::Auto, &mut warnings)
         } else {
-            self.get().model
+            cands[0].clone()
         };
-        let model = fit_model(kind, &prepared, self, split.pre_end)?;
+        let model = fit_model(chosen.kind, &prepared, &chosen.params, split.pre_end)?;
         warnings.extend(model.warnings().iter().cloned());
-        Ok(Fitted { model, prepared, split, params: self.clone(), warnings, control_breaks })
+        Ok(Fitted { model, prepared, split, params: chosen.params, warnings, control_breaks })
     }
 }
 
-fn choose(bt: &Backtest, warnings: &mut Vec<String>) -> ModelKind {
-    match bt.chosen.as_deref() {
-        Some("holt-winters") => ModelKind::HoltWinters,
-        Some("harmonic") => ModelKind::Harmonic,
-        Some(_) => ModelKind::Structural,
-        None => {
-            warnings.push("auto: no model could be backtested in the pre-period; the structural model is used".into());
-            ModelKind::Structural
+/// A model the backtest can score: a family and the parameters it runs with.
+#[derive(Debug, Clone)]
+pub struct Candidate {
+    /// Name in the backtest table.
+    pub name: String,
+    /// Model family.
+    pub kind: ModelKind,
+    /// Parameters (for `auto`, the structural trend differs between candidates).
+    pub params: ValidParams,
+}
+
+/// The candidates of a run. The structural model with `trend` left to the data (the default)
+/// is tried with a local level (`structural`) and with a local linear trend
+/// (`structural-trend`) when the backtest runs; `auto` adds Holt-Winters and harmonic
+/// regression. Otherwise the one model asked for. The first candidate is the fallback when no
+/// backtest fold fits in the pre-period.
+pub fn candidates(params: &ValidParams) -> Vec<Candidate> {
+    let pp = params.get();
+    let with = |kind: ModelKind, trend: Option<Trend>| {
+        let mut q = pp.clone();
+        q.model = kind;
+        q.trend = trend;
+        ValidParams(q)
+    };
+    let structural_kind = pp.model == ModelKind::Structural || pp.model == ModelKind::Auto;
+    let mut out = Vec::new();
+    if structural_kind {
+        match pp.trend {
+            Some(t) => out.push(Candidate {
+                name: "structural".into(),
+                kind: ModelKind::Structural,
+                params: with(ModelKind::Structural, Some(t)),
+            }),
+            None => {
+                out.push(Candidate {
+                    name: "structural".into(),
+                    kind: ModelKind::Structural,
+                    params: with(ModelKind::Structural, Some(Trend::Level)),
+                });
+                if pp.backtest_folds > 0 {
+                    out.push(Candidate {
+                        name: "structural-trend".into(),
+                        kind: ModelKind::Structural,
+                        params: with(ModelKind::Structural, Some(Trend::LinearTrend)),
+                    });
+                }
+            }
         }
+    }
+    if pp.model == ModelKind::Auto {
+        out.push(Candidate {
+            name: "holt-winters".into(),
+            kind: ModelKind::HoltWinters,
+            params: with(ModelKind::HoltWinters, pp.trend),
+        });
+        out.push(Candidate {
+            name: "harmonic".into(),
+            kind: ModelKind::Harmonic,
+            params: with(ModelKind::Harmonic, pp.trend),
+        });
+    }
+    if out.is_empty() {
+        out.push(Candidate { name: pp.model.name().into(), kind: pp.model, params: params.clone() });
+    }
+    out
+}
+
+fn choose(bt: &Backtest, cands: &[Candidate], auto: bool, warnings: &mut Vec<String>) -> Candidate {
+    match bt.chosen.as_deref().and_then(|n| cands.iter().find(|c| c.name == n)) {
+        Some(c) => c.clone(),
+        None if auto => {
+            warnings.push(
+                "--model auto: no model could be backtested in the pre-period, so the structural model with a local level is used".into(),
+            );
+            cands[0].clone()
+        }
+        None => cands[0].clone(),
     }
 }
 
@@ -540,7 +736,7 @@ fn choose(bt: &Backtest, warnings: &mut Vec<String>) -> ModelKind {
 /// horizon; each fold fits on the data before the origin, skips the washout and scores the
 /// next `horizon` periods (on the outcome's scale). At most `backtest_folds` folds, each with
 /// at least half of the pre-period to fit on.
-pub fn run_backtest(p: &Prepared, split: &Split, params: &ValidParams, models: &[ModelKind]) -> Backtest {
+pub fn run_backtest(p: &Prepared, split: &Split, params: &ValidParams, models: &[Candidate]) -> Backtest {
     let pp = params.get();
     let skip = split.post_start - split.pre_end;
     let h = split.post_len();
@@ -554,13 +750,22 @@ pub fn run_backtest(p: &Prepared, split: &Split, params: &ValidParams, models: &
     }
     let mut rows = Vec::new();
     let mut summary = Vec::new();
-    for &kind in models {
+    for cand in models {
+        let kind = cand.kind;
+        let name = cand.name.as_str();
         let mut failed = None;
         let mut mine = Vec::new();
+        let mut warm: Option<StructuralFit> = None;
+        // folds run from the latest origin back; each structural fit starts from the previous one
+        let mut bt_params = cand.params.clone();
+        bt_params.0.parameter_sets = bt_params.0.parameter_sets.min(BACKTEST_PARAMETER_SETS);
         for (fi, &o) in origins.iter().enumerate() {
-            let res = fit_model(kind, p, params, o).and_then(|m| {
-                let seed = child_seed(pp.inference.seed, &format!("backtest-{}-{fi}", kind.name()));
-                draw_paths(&m, p, params, o, skip, h, pp.backtest_draws, seed)
+            let res = fit_model_from(kind, p, &bt_params, o, warm.as_ref()).and_then(|m| {
+                if let FittedModel::Structural(f) = &m {
+                    warm = Some(f.clone());
+                }
+                let seed = child_seed(pp.inference.seed, &format!("backtest-{name}-{fi}"));
+                draw_paths(&m, p, &bt_params, o, skip, h, pp.backtest_draws, seed)
             });
             match res {
                 Ok(paths) => {
@@ -573,7 +778,7 @@ pub fn run_backtest(p: &Prepared, split: &Split, params: &ValidParams, models: &
                         (o + skip..o + skip + h).map(|t| if p.log { p.y[t].exp() } else { p.y[t] }).collect();
                     let (c, mape, cov) = score(&paths, &obs, pp.inference.level);
                     mine.push(BacktestRow {
-                        model: kind.name().into(),
+                        model: name.into(),
                         fit_end: p.times[o - 1],
                         first: p.times[o + skip],
                         horizon: h,
@@ -594,7 +799,7 @@ pub fn run_backtest(p: &Prepared, split: &Split, params: &ValidParams, models: &
         };
         let (c, m, cv) = (mean(&|r| r.crps), mean(&|r| r.mape), mean(&|r| r.coverage));
         summary.push(BacktestSummary {
-            model: kind.name().into(),
+            model: name.into(),
             folds: if failed.is_some() { 0 } else { mine.len() },
             crps: c,
             mape: m,
@@ -698,14 +903,7 @@ impl Fitted {
         match &self.model {
             FittedModel::Structural(f) => {
                 let names = f.spec.param_names();
-                let natural: Vec<f64> = {
-                    let pr = &f.params;
-                    let mut v = vec![pr.irregular, pr.level];
-                    v.extend(pr.slope);
-                    v.extend(pr.seasons.iter().copied());
-                    v.extend(pr.damping);
-                    v
-                };
+                let natural = f.spec.natural(&f.params);
                 let out = structural::loglik_at(&f.spec, &f.params, &p.y[..n], &truncate(&p.regs, n));
                 let m = f.spec.n_states();
                 let r0 = f.spec.regression_start();
@@ -715,7 +913,15 @@ impl Fitted {
                     .enumerate()
                     .map(|(k, name)| {
                         let i = r0 + k;
-                        (name.clone(), out.a_next[i], out.p_next[i * m + i].max(0.0).sqrt())
+                        let x = &p.regs[k][..n];
+                        let mean = x.iter().sum::<f64>() / n as f64;
+                        let sd_x = (x.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n as f64).sqrt();
+                        ControlWeight {
+                            name: name.clone(),
+                            coefficient: out.a_next[i],
+                            sd: out.p_next[i * m + i].max(0.0).sqrt(),
+                            standardised: out.a_next[i] * sd_x,
+                        }
                     })
                     .collect();
                 d.converged = f.optim.converged;
@@ -725,6 +931,8 @@ impl Fitted {
                     loglik: f.loglik,
                     zero_variance: f.at_lower_edge.clone(),
                     coefficients,
+                    shrunk_controls: !f.spec.control_scales.is_empty(),
+                    notes: f.notes.clone(),
                     optimiser: f.optim.clone(),
                 });
             }
@@ -761,6 +969,8 @@ impl Fitted {
 pub struct ForecastRun {
     /// The fitted model and its inputs.
     pub fitted: Fitted,
+    /// Name of the model that gave the counterfactual (as in the backtest table).
+    pub chosen: String,
     /// Counterfactual draws.
     pub counterfactual: Counterfactual,
     /// The point counterfactual: the pointwise median of the draws (the forecast's own answer).
@@ -807,42 +1017,64 @@ pub fn analyse(
         return Err(ForecastError::ConstantOutcome { value: *first, periods: pre.len() });
     }
     let (prepared, mut warnings, control_breaks) = prepare(series, &split, params, events)?;
-    let models: Vec<ModelKind> = if pp.model == ModelKind::Auto {
-        vec![ModelKind::Structural, ModelKind::HoltWinters, ModelKind::Harmonic]
-    } else {
-        vec![pp.model]
-    };
+    let models = candidates(params);
     let backtest = (pp.backtest_folds > 0 || pp.model == ModelKind::Auto)
         .then(|| run_backtest(&prepared, &split, params, &models));
-    let kind = match (&backtest, pp.model) {
-        (Some(bt), ModelKind::Auto) => choose(bt, &mut warnings),
-        (_, k) => k,
+    let chosen = match &backtest {
+        Some(bt) if models.len() > 1 => choose(bt, &models, pp.model == ModelKind::Auto, &mut warnings),
+        _ => models[0].clone(),
     };
     if let Some(bt) = &backtest
         && bt.rows.is_empty()
         && pp.backtest_folds > 0
     {
+        let consequence = if pp.trend.is_none() && chosen.kind == ModelKind::Structural {
+            "; the forecast keeps a local level (no slope), since a slope could not be checked"
+        } else {
+            ""
+        };
         warnings.push(format!(
-            "the pre-period is too short for a backtest at the post-period's horizon ({} periods)",
+            "the pre-period is too short for a backtest at the post-period's horizon ({} periods){consequence}",
             split.post_len()
         ));
     }
-    let model = fit_model(kind, &prepared, params, split.pre_end)?;
+    let model = fit_model(chosen.kind, &prepared, &chosen.params, split.pre_end)?;
     warnings.extend(model.warnings().iter().cloned());
-    let fitted = Fitted { model, prepared, split, params: params.clone(), warnings: warnings.clone(), control_breaks };
+    let fitted =
+        Fitted { model, prepared, split, params: chosen.params.clone(), warnings: warnings.clone(), control_breaks };
     let cf = fitted.counterfactual()?;
     let median = median_path(&cf.draws, cf.observed.len());
     let coverage = backtest
         .as_ref()
-        .and_then(|bt| bt.summary.iter().find(|s| s.model == kind.name() && s.folds > 0).map(|s| s.coverage));
+        .and_then(|bt| bt.summary.iter().find(|s| s.model == chosen.name && s.folds > 0).map(|s| s.coverage));
     let (diagnostics, pre_path) = fitted.diagnostics(coverage);
-    if diagnostics.ljung_box.p_value < 0.01 {
+    if diagnostics.ljung_box.p_value < LJUNG_BOX_ALPHA {
+        let has_ar = matches!(&fitted.model, FittedModel::Structural(f) if f.spec.ar);
+        let fix = match (&fitted.model, has_ar, pp.ar) {
+            (FittedModel::Structural(_), true, _) => {
+                "an AR(1) component is already in the model; add an --events calendar for holidays and outliers, or a missing --season"
+            }
+            (FittedModel::Structural(_), false, Choice::Off) => "rerun with --ar on (an AR(1) component absorbs it)",
+            (FittedModel::Structural(_), false, _) => {
+                "an AR(1) component did not help; add an --events calendar for holidays and outliers, or a missing --season"
+            }
+            _ => "use --model structural, which adds an AR(1) component when the residuals call for it",
+        };
         warnings.push(format!(
-            "one-step residuals are autocorrelated in the pre-period (Ljung-Box Q = {:.1} on {} lags, p = {:.3}); intervals may be too narrow",
-            diagnostics.ljung_box.statistic, diagnostics.ljung_box.lags, diagnostics.ljung_box.p_value
+            "the model's one-day-ahead errors in the pre-period are correlated (Ljung-Box p = {:.3}), so the interval may be too narrow: {fix}",
+            diagnostics.ljung_box.p_value
         ));
     }
-    Ok(ForecastRun { fitted, counterfactual: cf, median_path: median, pre_path, diagnostics, backtest, warnings })
+    Ok(ForecastRun {
+        fitted,
+        chosen: chosen.name,
+        counterfactual: cf,
+        median_path: median,
+        pre_path,
+        diagnostics,
+        backtest,
+        warnings,
+    })
 }
 
 impl ForecastRun {
@@ -853,7 +1085,7 @@ impl ForecastRun {
         let cf = &self.counterfactual;
         let diagnostics = ForecastDiagnostics {
             model: self.diagnostics.clone(),
-            chosen_model: self.fitted.model.name().into(),
+            chosen_model: self.chosen.clone(),
             draws: pp.inference.draws,
             backtest: self.backtest.clone(),
         };

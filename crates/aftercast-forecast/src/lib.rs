@@ -40,4 +40,4 @@ pub mod structural;
 pub use analysis::{Counterfactual, Diagnostics, Fitted, FittedModel, ForecastDiagnostics, ForecastRun, analyse};
 pub use error::{ForecastError, ForecastResult};
 pub use events::EventCalendar;
-pub use params::{ForecastParams, ModelKind, Season, ValidParams};
+pub use params::{Choice, ForecastParams, ModelKind, Season, ValidParams};

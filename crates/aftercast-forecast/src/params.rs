@@ -5,7 +5,9 @@
 //! | --- | --- | --- | --- |
 //! | `model` | `structural` | model family | `structural`, `holt-winters`, `harmonic`, `auto` |
 //! | `seasons` | from the data's frequency | seasonal components (`7`, `365.25:4`) | period > 1; `K <= period / 2` |
-//! | `trend` | `level` | structural trend (a slope is an explicit choice) | `level`, `linear-trend`, `damped-trend` |
+//! | `trend` | auto (`None`) | structural trend; auto: local level vs local linear trend by the pre-period backtest's CRPS, a local level when no backtest fold fits in the pre-period | `level`, `linear-trend`, `damped-trend` |
+//! | `ar` | `auto` | AR(1) component in the structural model: `auto` adds it when the one-step residuals are autocorrelated (Ljung-Box p < 0.01) and it lowers the AIC | `auto`, `on`, `off` |
+//! | `shrink_controls` | `auto` | shrink the control coefficients together (empirical-Bayes ridge prior); `auto`: from 5 controls on | `auto`, `on`, `off` |
 //! | `log` | `false` | model the log of the outcome (multiplicative effects) | outcome > 0 |
 //! | `inference` | level 0.9, 1000 draws, seed 20240601, ROPE +-1% | [`Inference`] (shared by every verb) | see there |
 //! | `parameter_uncertainty` | `true` | draw structural variances from the MLE's asymptotic normal | |
@@ -67,6 +69,50 @@ impl std::str::FromStr for ModelKind {
         }
     }
 }
+
+/// A choice that can also be left to the data.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "kebab-case")]
+pub enum Choice {
+    /// Decided by the rule documented where the choice is used.
+    #[default]
+    Auto,
+    /// Always.
+    On,
+    /// Never.
+    Off,
+}
+
+impl std::str::FromStr for Choice {
+    type Err = String;
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        match s.trim() {
+            "auto" => Ok(Choice::Auto),
+            "on" => Ok(Choice::On),
+            "off" => Ok(Choice::Off),
+            other => Err(format!("'{other}' is not one of auto, on, off")),
+        }
+    }
+}
+
+/// The `--trend` option: `auto` or a trend.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct TrendOption(pub Option<Trend>);
+
+impl std::str::FromStr for TrendOption {
+    type Err = String;
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        if s.trim() == "auto" {
+            return Ok(TrendOption(None));
+        }
+        s.parse::<Trend>()
+            .map(|t| TrendOption(Some(t)))
+            .map_err(|_| format!("'{}' is not a trend (auto, level, linear-trend, damped-trend)", s.trim()))
+    }
+}
+
+/// Number of controls from which `shrink_controls = auto` shrinks their coefficients.
+pub const SHRINK_FROM_CONTROLS: usize = 5;
 
 /// A seasonal component as the user gives it: `P` (an integer period is a dummy seasonal, a
 /// fractional one trigonometric with `min(4, P/2)` harmonics) or `P:K` (trigonometric, K harmonics).
@@ -153,8 +199,15 @@ pub struct ForecastParams {
     pub model: ModelKind,
     /// Seasonal components; `None` follows the data's frequency.
     pub seasons: Option<Vec<Season>>,
-    /// Structural trend.
-    pub trend: Trend,
+    /// Structural trend; `None` chooses between a local level and a local linear trend by the
+    /// pre-period backtest (a local level when the backtest cannot run).
+    pub trend: Option<Trend>,
+    /// AR(1) component of the structural model.
+    #[serde(default)]
+    pub ar: Choice,
+    /// Shrinkage of the control coefficients in the structural model.
+    #[serde(default)]
+    pub shrink_controls: Choice,
     /// Model the log of the outcome.
     pub log: bool,
     /// Controls entered on the log scale (a count that relates to the outcome
@@ -184,7 +237,9 @@ impl Default for ForecastParams {
         ForecastParams {
             model: ModelKind::Structural,
             seasons: None,
-            trend: Trend::Level,
+            trend: None,
+            ar: Choice::Auto,
+            shrink_controls: Choice::Auto,
             log: false,
             log_controls: Vec::new(),
             inference: Inference::default(),
@@ -223,9 +278,19 @@ impl ForecastParams {
         self.seasons = Some(Vec::new());
         self
     }
-    /// Set the structural trend.
-    pub fn trend(mut self, t: Trend) -> Self {
-        self.trend = t;
+    /// Set the structural trend (`None`: chosen by the pre-period backtest).
+    pub fn trend(mut self, t: impl Into<Option<Trend>>) -> Self {
+        self.trend = t.into();
+        self
+    }
+    /// AR(1) component: auto, on or off.
+    pub fn ar(mut self, c: Choice) -> Self {
+        self.ar = c;
+        self
+    }
+    /// Shrinkage of the control coefficients: auto, on or off.
+    pub fn shrink_controls(mut self, c: Choice) -> Self {
+        self.shrink_controls = c;
         self
     }
     /// Model the log of the outcome.

@@ -93,7 +93,8 @@ fn every_model_finds_a_ten_percent_lift() {
     }
 }
 
-/// `auto` backtests the three families, reports the table and uses the winner.
+/// `auto` backtests the structural model with a local level and with a linear trend,
+/// Holt-Winters and harmonic regression, reports the table and uses the winner.
 #[test]
 fn auto_reports_backtest_and_winner() {
     let s = load(&daily_csv(280, 250, 0.0, false), &["c1", "c2"]);
@@ -101,9 +102,11 @@ fn auto_reports_backtest_and_winner() {
     let p = params(ModelKind::Auto).check().unwrap();
     let run = analyse(&s, split, &p, None).unwrap();
     let bt = run.backtest.as_ref().unwrap();
-    assert_eq!(bt.summary.len(), 3);
+    let names: Vec<&str> = bt.summary.iter().map(|s| s.model.as_str()).collect();
+    assert_eq!(names, ["structural", "structural-trend", "holt-winters", "harmonic"]);
     let chosen = bt.chosen.clone().unwrap();
-    assert_eq!(chosen, run.fitted.model.name());
+    assert_eq!(chosen, run.chosen);
+    assert!(chosen.starts_with(run.fitted.model.name()), "{chosen} vs {}", run.fitted.model.name());
     let best = bt.summary.iter().filter(|s| s.folds > 0).map(|s| s.crps).fold(f64::INFINITY, f64::min);
     let won = bt.summary.iter().find(|s| s.model == chosen).unwrap();
     assert_eq!(won.crps, best);
@@ -113,7 +116,7 @@ fn auto_reports_backtest_and_winner() {
         bt.rows
     );
     let json = serde_json::to_value(run.summarize(vec![]).unwrap().result).unwrap();
-    assert!(json["diagnostics"]["backtest"]["summary"].as_array().unwrap().len() == 3);
+    assert!(json["diagnostics"]["backtest"]["summary"].as_array().unwrap().len() == 4);
 }
 
 /// A control that jumps at the intervention triggers the break warning; untouched ones do not.
@@ -182,7 +185,8 @@ fn events_calendar_becomes_indicators() {
         let rel = run.summarize(vec![]).unwrap().result.effect.relative.unwrap();
         assert!(rel.lower < 0.0 && 0.0 < rel.upper, "{model:?}: {rel:?}");
         if let Some(sd) = &run.diagnostics.structural {
-            let (_, coef, se) = sd.coefficients.iter().find(|c| c.0 == "event:promo").unwrap();
+            let w = sd.coefficients.iter().find(|c| c.name == "event:promo").unwrap();
+            let (coef, se) = (w.coefficient, w.sd);
             assert!((coef - 30.0).abs() < 4.0 * se + 1.0, "promo coefficient {coef} +- {se}");
         }
     }

@@ -28,6 +28,7 @@ fn spec(init: Initialisation) -> StructuralSpec {
         seasons: vec![SeasonKind::Dummy { period: 7 }, SeasonKind::Trig { period: 365.25, harmonics: 4 }],
         n_regressors: 2,
         ar: false,
+        control_scales: vec![],
         init,
     }
 }
@@ -51,6 +52,7 @@ fn approximate_diffuse_matches_statsmodels_on_18_states() {
             damping: None,
             ar_variance: None,
             ar_coef: None,
+            control_prior: None,
         };
         let out = loglik_at(&spec(Initialisation::ApproximateDiffuse { kappa: 1e6 }), &par, &y, &x);
         let want = b["llf"][k].as_f64().unwrap();

@@ -30,6 +30,7 @@ fn spec_a() -> StructuralSpec {
         seasons: vec![SeasonKind::Dummy { period: 7 }],
         n_regressors: 1,
         ar: false,
+        control_scales: vec![],
         init: Initialisation::ExactDiffuse,
     }
 }
@@ -40,6 +41,7 @@ fn spec_b() -> StructuralSpec {
         seasons: vec![SeasonKind::Trig { period: 12.0, harmonics: 2 }],
         n_regressors: 0,
         ar: false,
+        control_scales: vec![],
         init: Initialisation::ExactDiffuse,
     }
 }
@@ -53,6 +55,7 @@ fn params_a(p: &[f64]) -> StructuralParams {
         damping: None,
         ar_variance: None,
         ar_coef: None,
+        control_prior: None,
     }
 }
 
@@ -65,6 +68,7 @@ fn params_b(p: &[f64]) -> StructuralParams {
         damping: None,
         ar_variance: None,
         ar_coef: None,
+        control_prior: None,
     }
 }
 

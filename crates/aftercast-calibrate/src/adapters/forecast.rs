@@ -66,6 +66,7 @@ impl PathModel for StructuralModel {
             seasons: self.seasons.clone(),
             n_regressors: controls.len(),
             ar: false,
+            control_scales: vec![],
             init: Initialisation::ExactDiffuse,
         };
         let fit = structural::fit(&spec, y, controls, None)?;

@@ -36,7 +36,7 @@ pub struct Args {
     #[arg(long, default_value = "structural", value_parser = ["structural"])]
     pub model: String,
     /// Structural trend: level, linear-trend or damped-trend (as for forecast).
-    #[arg(long, default_value = "linear-trend")]
+    #[arg(long, default_value = "level")]
     pub trend: Trend,
     /// Seasons, repeatable, as for forecast: `7` (dummy seasonal) or `365.25:4` (trigonometric
     /// with 4 harmonics). Without it the seasons follow the data's frequency, as for forecast.

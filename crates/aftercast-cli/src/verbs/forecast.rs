@@ -4,8 +4,8 @@ use crate::common::{Common, DataOptions, read_table};
 use crate::failure::bad_input;
 use aftercast_core::series::{Series, SeriesSpec};
 use aftercast_forecast::holt_winters::Seasonality;
-use aftercast_forecast::structural::Trend;
-use aftercast_forecast::{EventCalendar, ForecastParams, ModelKind, Season, analyse};
+use aftercast_forecast::params::TrendOption;
+use aftercast_forecast::{Choice, EventCalendar, ForecastParams, ModelKind, Season, analyse};
 use std::path::PathBuf;
 
 /// Arguments of `forecast` (flag names are the contract in ../shared/DESIGN.md).
@@ -42,9 +42,20 @@ pub struct Args {
     /// No seasonal component at all.
     #[arg(long, conflicts_with = "season")]
     pub no_season: bool,
-    /// Structural trend: level, linear-trend or damped-trend.
-    #[arg(long, default_value = "linear-trend")]
-    pub trend: Trend,
+    /// Structural trend: auto (a local level or a local linear trend, whichever forecast the
+    /// pre-period's own held-out stretches better; a local level when the pre-period is too
+    /// short to check), level (the forecast carries the last level forward), linear-trend or
+    /// damped-trend (a slope is extrapolated into the post-period).
+    #[arg(long, default_value = "auto")]
+    pub trend: TrendOption,
+    /// AR(1) component of the structural model: auto (added when the pre-period's one-step
+    /// errors are correlated and it improves the fit), on or off.
+    #[arg(long, default_value = "auto")]
+    pub ar: Choice,
+    /// Shrink the control coefficients together (an empirical-Bayes ridge prior, for many
+    /// candidate controls): auto (from 5 controls on), on or off.
+    #[arg(long, default_value = "auto")]
+    pub shrink_controls: Choice,
     /// Holt-Winters seasonality: additive or multiplicative.
     #[arg(long, default_value = "additive")]
     pub hw_seasonality: Seasonality,
@@ -101,7 +112,9 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     let inf = a.common.inference();
     let mut params = ForecastParams::builder()
         .model(model)
-        .trend(a.trend)
+        .trend(a.trend.0)
+        .ar(a.ar)
+        .shrink_controls(a.shrink_controls)
         .log(a.log)
         .log_controls(a.log_controls.clone())
         .inference(inf)
@@ -132,7 +145,7 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         if a.log { "Multiplicative effect" } else { "Effect" },
         a.outcome,
         a.start,
-        run.fitted.model.name(),
+        run.chosen,
         split.pre_end,
         split.post_len()
     );

@@ -25,6 +25,12 @@ pub const ZERO_VARIANCE_RATIO: f64 = 1e-6;
 /// likelihood is not finite at every starting point).
 pub const APPROX_KAPPA: f64 = 1e6;
 
+/// The optimiser stops when the norm of the gradient of the mean log-likelihood per observation
+/// is below this (or when an iteration changes that mean by less than 1e-10, see
+/// [`crate::optim`]): on 1,000 observations, a total log-likelihood within about 1e-6 of the
+/// maximum, far below what moves an interval.
+pub const FIT_TOLERANCE: f64 = 1e-6;
+
 /// Guard on parameter draws: a drawn log-variance departs at most this far from the MLE
 /// (a factor of about 55 in the variance), and stays in the optimiser's box.
 pub const MAX_LOG_VAR_DEVIATION: f64 = 4.0;
@@ -51,6 +57,9 @@ pub struct StructuralFit {
     pub n_used: usize,
     /// Plain-language warnings (non-convergence, flat directions).
     pub warnings: Vec<String>,
+    /// Choices made on the data (e.g. why an AR(1) component was added).
+    #[serde(default)]
+    pub notes: Vec<String>,
 }
 
 /// Scale of the variances: variance of the first differences of the observed values
@@ -99,9 +108,35 @@ fn objective(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], theta: &[f64], lo
         }
     }
     let p = spec.params_from_theta(&th);
-    let (out, score) = filter_with_score(&spec.system(&p), &spec.system_derivatives(&th), y, x);
+    let (loglik, score) = parallel_score(&spec.system(&p), &spec.system_derivatives(&th), y, x);
     let grad = score.iter().zip(&dpen).map(|(s, d)| -s + 10.0 * d).collect();
-    (-out.loglik + pen * 10.0, grad)
+    (-loglik + pen * 10.0, grad)
+}
+
+/// The log-likelihood and its score, the directions split across the worker threads (each
+/// share reruns the filter itself; the values do not depend on the split).
+fn parallel_score(
+    sys: &super::model::System,
+    derivs: &[super::kalman::SystemDerivative],
+    y: &[f64],
+    x: &[Vec<f64>],
+) -> (f64, Vec<f64>) {
+    use rayon::prelude::*;
+    let parts = rayon::current_num_threads().clamp(1, derivs.len().max(1));
+    if parts <= 1 {
+        let (out, g) = filter_with_score(sys, derivs, y, x);
+        return (out.loglik, g);
+    }
+    let size = derivs.len().div_ceil(parts);
+    let pieces: Vec<(f64, Vec<f64>)> = derivs
+        .par_chunks(size)
+        .map(|chunk| {
+            let (out, g) = filter_with_score(sys, chunk, y, x);
+            (out.loglik, g)
+        })
+        .collect();
+    let loglik = pieces.first().map_or(f64::NAN, |p| p.0);
+    (loglik, pieces.into_iter().flat_map(|p| p.1).collect())
 }
 
 /// Log-likelihood and filter output at given natural-scale parameters.
@@ -182,9 +217,27 @@ pub fn fit(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], start: Option<&[f64
     };
     let _ = ll0;
     let n_used = probe.n_used.max(1) as f64;
-    let f = |th: &[f64]| objective(spec, y, x, th, lo, hi).0 / n_used;
-    let g = |th: &[f64]| objective(spec, y, x, th, lo, hi).1.into_iter().map(|v| v / n_used).collect::<Vec<f64>>();
-    let out = minimise_with_gradient(&f, Some(&g), &theta0, 300, 1e-7)
+    // the optimiser asks for the value and the gradient at the same point separately; one pass
+    // of the filter gives both, so the last point's pair is kept
+    let last: std::sync::Mutex<Option<(Vec<f64>, f64, Vec<f64>)>> = std::sync::Mutex::new(None);
+    let both = |th: &[f64]| -> (f64, Vec<f64>) {
+        if let Ok(guard) = last.lock()
+            && let Some((at, v, g)) = guard.as_ref()
+            && at.as_slice() == th
+        {
+            return (*v, g.clone());
+        }
+        let (v, g) = objective(spec, y, x, th, lo, hi);
+        let g: Vec<f64> = g.into_iter().map(|v| v / n_used).collect();
+        let v = v / n_used;
+        if let Ok(mut guard) = last.lock() {
+            *guard = Some((th.to_vec(), v, g.clone()));
+        }
+        (v, g)
+    };
+    let f = |th: &[f64]| both(th).0;
+    let g = |th: &[f64]| both(th).1;
+    let out = minimise_with_gradient(&f, Some(&g), &theta0, 300, FIT_TOLERANCE)
         .map_err(|detail| ForecastError::Optimiser { model: "structural", detail })?;
     let mut theta = out.x;
     for (i, v) in theta.iter_mut().enumerate() {
@@ -230,6 +283,7 @@ pub fn fit(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], start: Option<&[f64
         at_lower_edge,
         n_used: fo.n_used,
         warnings,
+        notes: Vec::new(),
     })
 }
 

@@ -60,13 +60,14 @@ pub struct FilterTrace {
     /// One-step-ahead forecast `Z[t] a[t]` of each observation (while the diffuse period lasts,
     /// the limit of the forecast as the prior variance of the diffuse states grows).
     pub forecast: Vec<f64>,
-    /// Its variance `F[t]` (NaN while the diffuse states are not all identified).
+    /// Its variance `F[t]` (NaN where the forecast loads on a diffuse direction the data before
+    /// `t` have not identified).
     pub forecast_var: Vec<f64>,
     /// Filtered state `a[t|t]`, one vector per period.
     pub filtered_state: Vec<Vec<f64>>,
     /// Predicted state `a[t]` (before seeing `y[t]`), one vector per period.
     pub predicted_state: Vec<Vec<f64>>,
-    /// Whether period `t` was in the diffuse period (its forecast variance is unbounded).
+    /// Whether period `t`'s forecast variance is unbounded (`F_inf > 0` in the exact recursion).
     pub diffuse: Vec<bool>,
 }
 
@@ -186,24 +187,59 @@ impl Factor {
     }
 }
 
-/// `-S^+ s`, the limit of the diffuse states' estimate as their prior variance grows
-/// (Moore-Penrose inverse: the prior is `kappa I` on the diffuse states).
-fn delta_limit(s_mat: &[f64], s_vec: &[f64], d: usize) -> Vec<f64> {
-    let m = nalgebra::DMatrix::from_row_slice(d, d, s_mat);
-    let eig = nalgebra::SymmetricEigen::new(m);
-    let top = eig.eigenvalues.iter().fold(0.0_f64, |a, b| a.max(b.abs()));
-    let mut out = vec![0.0; d];
-    for (k, &lam) in eig.eigenvalues.iter().enumerate() {
-        if lam <= top * 1e-12 || lam <= 0.0 {
-            continue;
+/// The diffuse part while `S` may still be singular: `delta = -S^+ s`, the limit of the diffuse
+/// states' estimate as their prior variance grows (Moore-Penrose inverse: the prior is
+/// `kappa I` on the diffuse states), and the eigen-decomposition of `S` to tell whether a
+/// forecast loads on a direction the data have not identified yet.
+struct Limit {
+    delta: Vec<f64>,
+    /// `(eigenvalue, eigenvector)` of the identified directions.
+    range: Vec<(f64, Vec<f64>)>,
+    /// Eigenvectors of the directions not identified yet.
+    null: Vec<Vec<f64>>,
+}
+
+impl Limit {
+    fn new(s_mat: &[f64], s_vec: &[f64], d: usize) -> Limit {
+        let m = nalgebra::DMatrix::from_row_slice(d, d, s_mat);
+        let eig = nalgebra::SymmetricEigen::new(m);
+        let top = eig.eigenvalues.iter().fold(0.0_f64, |a, b| a.max(b.abs()));
+        let mut delta = vec![0.0; d];
+        let (mut range, mut null) = (Vec::new(), Vec::new());
+        for (k, &lam) in eig.eigenvalues.iter().enumerate() {
+            let u: Vec<f64> = eig.eigenvectors.column(k).iter().copied().collect();
+            if lam <= top * 1e-12 || lam <= 0.0 {
+                null.push(u);
+                continue;
+            }
+            let proj: f64 = u.iter().zip(s_vec).map(|(a, b)| a * b).sum::<f64>() / lam;
+            for (di, ui) in delta.iter_mut().zip(&u) {
+                *di -= ui * proj;
+            }
+            range.push((lam, u));
         }
-        let u = eig.eigenvectors.column(k);
-        let proj: f64 = (0..d).map(|i| u[i] * s_vec[i]).sum::<f64>() / lam;
-        for i in 0..d {
-            out[i] -= u[i] * proj;
+        Limit { delta, range, null }
+    }
+
+    /// `V S^+ V'` when `V` lies in the identified directions (the forecast's variance is then
+    /// finite: `F_inf = 0` in the exact recursion), `None` otherwise.
+    fn quad(&self, v: &[f64]) -> Option<f64> {
+        let norm2: f64 = v.iter().map(|x| x * x).sum();
+        let off: f64 = self.null.iter().map(|u| u.iter().zip(v).map(|(a, b)| a * b).sum::<f64>().powi(2)).sum();
+        if off > 1e-10 * norm2.max(f64::MIN_POSITIVE) {
+            return None;
+        }
+        Some(self.range.iter().map(|(lam, u)| u.iter().zip(v).map(|(a, b)| a * b).sum::<f64>().powi(2) / lam).sum())
+    }
+}
+
+/// Copy the upper triangle of a `d x d` row-major matrix into its lower triangle.
+fn mirror_upper(s: &mut [f64], d: usize) {
+    for i in 0..d {
+        for j in 0..i {
+            s[i * d + j] = s[j * d + i];
         }
     }
-    out
 }
 
 /// `dst[i] = sum_j T[i][j] src[j]` for rows of `ncol` entries (`src`, `dst`: `m x ncol`).
@@ -394,17 +430,15 @@ fn run(
         }
         if let Some(tr) = trace.as_mut() {
             if augmented {
-                let delta = delta_limit(&s_mat, &s_vec, d);
+                mirror_upper(&mut s_mat, d);
+                let lim = Limit::new(&s_mat, &s_vec, d);
                 let pred: Vec<f64> =
-                    (0..m).map(|i| a[i] + (0..d).map(|j| aa[i * d + j] * delta[j]).sum::<f64>()).collect();
+                    (0..m).map(|i| a[i] + (0..d).map(|j| aa[i * d + j] * lim.delta[j]).sum::<f64>()).collect();
                 tr.forecast.push(z_dot(&z, &pred));
                 tr.predicted_state.push(pred);
-                let fvar = match (full_rank, Factor::new(&s_mat, d)) {
-                    (true, Some(fac)) => f + dv.iter().zip(fac.solve(&dv)).map(|(a, b)| a * b).sum::<f64>(),
-                    _ => f64::NAN,
-                };
-                tr.forecast_var.push(fvar);
-                tr.diffuse.push(!full_rank);
+                let q = lim.quad(&dv);
+                tr.forecast_var.push(q.map_or(f64::NAN, |q| f + q));
+                tr.diffuse.push(q.is_none());
             } else {
                 tr.predicted_state.push(a.clone());
                 tr.forecast.push(z_dot(&z, &a));
@@ -423,18 +457,21 @@ fn run(
                     minus_z_a(&z, &g.daa, d, &mut g.dv_row);
                     g.dlogf += df * fi;
                     g.dq_sum += 2.0 * v * dvv * fi - v * v * df * fi * fi;
+                    let c2 = df * fi * fi;
                     for i in 0..d {
-                        g.ds_vec[i] += (g.dv_row[i] * v + dv[i] * dvv) * fi - dv[i] * v * df * fi * fi;
-                        for j in 0..d {
-                            g.ds_mat[i * d + j] +=
-                                (g.dv_row[i] * dv[j] + dv[i] * g.dv_row[j]) * fi - dv[i] * dv[j] * df * fi * fi;
+                        g.ds_vec[i] += (g.dv_row[i] * v + dv[i] * dvv) * fi - dv[i] * v * c2;
+                        // upper triangle only (mirrored where it is used)
+                        let (a1, b1, e1) = (g.dv_row[i] * fi, dv[i] * fi, dv[i] * c2);
+                        let row = &mut g.ds_mat[i * d + i..(i + 1) * d];
+                        for ((r, x), y) in row.iter_mut().zip(&dv[i..]).zip(&g.dv_row[i..]) {
+                            *r += a1 * x + b1 * y - e1 * x;
                         }
                     }
                     for i in 0..m {
-                        let (mi, dmi) = (mvec[i], g.dm[i]);
+                        let (a1, b1, e1) = (g.dm[i] * fi, mvec[i] * fi, mvec[i] * c2);
                         let row = &mut g.daa[i * d..(i + 1) * d];
-                        for j in 0..d {
-                            row[j] += (dmi * dv[j] + mi * g.dv_row[j]) * fi - mi * dv[j] * df * fi * fi;
+                        for ((r, x), y) in row.iter_mut().zip(&dv).zip(&g.dv_row) {
+                            *r += a1 * x + b1 * y - e1 * x;
                         }
                     }
                 } else if t >= sys.burn {
@@ -443,11 +480,12 @@ fn run(
                 for i in 0..m {
                     g.da[i] += (g.dm[i] * v + mvec[i] * dvv) * fi - mvec[i] * v * df * fi * fi;
                 }
+                let c2 = df * fi * fi;
                 for r in 0..m {
-                    let (mr, dmr) = (mvec[r], g.dm[r]);
+                    let (a1, b1, e1) = (g.dm[r] * fi, mvec[r] * fi, mvec[r] * c2);
                     let row = &mut g.dp[r * m..(r + 1) * m];
-                    for c in 0..m {
-                        row[c] -= (dmr * mvec[c] + mr * g.dm[c]) * fi - mr * mvec[c] * df * fi * fi;
+                    for ((pc, x), y) in row.iter_mut().zip(&mvec).zip(&g.dm) {
+                        *pc -= a1 * x + b1 * y - e1 * x;
                     }
                 }
             }
@@ -455,9 +493,10 @@ fn run(
                 logf_sum += f.ln();
                 q_sum += v * v * fi;
                 for i in 0..d {
-                    s_vec[i] += dv[i] * v * fi;
-                    for j in 0..d {
-                        s_mat[i * d + j] += dv[i] * dv[j] * fi;
+                    let b1 = dv[i] * fi;
+                    s_vec[i] += b1 * v;
+                    for (r, x) in s_mat[i * d + i..(i + 1) * d].iter_mut().zip(&dv[i..]) {
+                        *r += b1 * x;
                     }
                 }
                 for i in 0..m {
@@ -478,8 +517,7 @@ fn run(
             }
             for r in 0..m {
                 let mr = mvec[r] * fi;
-                let row = &mut p[r * m..(r + 1) * m];
-                for (pc, mc) in row.iter_mut().zip(&mvec) {
+                for (pc, mc) in p[r * m..(r + 1) * m].iter_mut().zip(&mvec) {
                     *pc -= mr * mc;
                 }
             }
@@ -488,18 +526,23 @@ fn run(
             n_diffuse = t + 1;
         }
         let mut do_collapse = None;
-        if augmented && n_aug >= d && yt.is_finite() {
+        let last = t + 1 == y.len();
+        // the check costs d^3 / 6: every observation until S has full rank (so `n_diffuse` is
+        // exact) and while tracing, then every 4th, and at the end
+        let check = last || keep_trace || !full_rank || n_aug % 4 == 0;
+        if augmented && n_aug >= d && check {
+            mirror_upper(&mut s_mat, d);
             if let Some(fac) = Factor::new(&s_mat, d) {
                 full_rank = full_rank || fac.min_pivot > RANK_PIVOT;
-                let last = t + 1 == y.len();
                 if fac.min_pivot > COLLAPSE_PIVOT || (last && full_rank) {
                     do_collapse = Some(fac);
                 }
             }
-        } else if augmented && !yt.is_finite() && t + 1 == y.len() && full_rank {
-            do_collapse = Factor::new(&s_mat, d);
         }
         if let Some(fac) = do_collapse {
+            for g in ds.iter_mut() {
+                mirror_upper(&mut g.ds_mat, d);
+            }
             let base = -0.5 * (n_aug as f64 * LN_2PI + logf_sum + q_sum);
             loglik += collapse(&mut a, &mut p, &aa, &s_mat, &s_vec, &fac, &mut ds, base);
             augmented = false;
@@ -507,7 +550,8 @@ fn run(
         }
         if let Some(tr) = trace.as_mut() {
             if augmented {
-                let delta = delta_limit(&s_mat, &s_vec, d);
+                mirror_upper(&mut s_mat, d);
+                let delta = Limit::new(&s_mat, &s_vec, d).delta;
                 tr.filtered_state
                     .push((0..m).map(|i| a[i] + (0..d).map(|j| aa[i * d + j] * delta[j]).sum::<f64>()).collect());
             } else {

@@ -87,6 +87,13 @@ pub struct StructuralSpec {
     /// autocorrelated departures from the other components.
     #[serde(default)]
     pub ar: bool,
+    /// Shrinkage of the control coefficients: when not empty, the first `control_scales.len()`
+    /// regressors (the controls) get a proper prior `N(0, tau2 / control_scales[k])` (their
+    /// pre-period variances) instead of a diffuse one, with `tau2` estimated by maximum
+    /// likelihood (an empirical-Bayes ridge: many candidate controls are shrunk together, and
+    /// their remaining uncertainty is carried by the filter into the paths).
+    #[serde(default)]
+    pub control_scales: Vec<f64>,
     /// Initial-state treatment.
     pub init: Initialisation,
 }
@@ -110,6 +117,9 @@ pub struct StructuralParams {
     /// Coefficient of the AR(1) component.
     #[serde(default)]
     pub ar_coef: Option<f64>,
+    /// Prior variance `tau2` of a standardised control's coefficient (shrinkage only).
+    #[serde(default)]
+    pub control_prior: Option<f64>,
 }
 
 /// Lower and upper bounds of the damping factor.
@@ -118,7 +128,10 @@ pub const DAMPING_RANGE: (f64, f64) = (0.0, 1.0);
 impl StructuralSpec {
     /// Number of variances among the optimiser's parameters (they come first).
     pub fn n_variances(&self) -> usize {
-        2 + usize::from(self.trend != Trend::Level) + self.seasons.len() + usize::from(self.ar)
+        2 + usize::from(self.trend != Trend::Level)
+            + self.seasons.len()
+            + usize::from(self.ar)
+            + usize::from(!self.control_scales.is_empty())
     }
 
     /// Number of parameters the optimiser sees: the log-variances, then the logit damping and
@@ -148,6 +161,9 @@ impl StructuralSpec {
         if self.ar {
             v.push("AR(1) variance".into());
         }
+        if !self.control_scales.is_empty() {
+            v.push("control prior variance".into());
+        }
         if self.trend == Trend::DampedTrend {
             v.push("damping".into());
         }
@@ -171,12 +187,25 @@ impl StructuralSpec {
         let slope = (self.trend != Trend::Level).then(|| next().exp());
         let seasons = self.seasons.iter().map(|_| next().exp()).collect();
         let ar_variance = self.ar.then(|| next().exp());
+        let control_prior = (!self.control_scales.is_empty()).then(|| next().exp());
         let damping = (self.trend == Trend::DampedTrend).then(|| {
             let x = next();
             1.0 / (1.0 + (-x).exp())
         });
         let ar_coef = self.ar.then(|| next().tanh());
-        StructuralParams { irregular, level, slope, seasons, damping, ar_variance, ar_coef }
+        StructuralParams { irregular, level, slope, seasons, damping, ar_variance, ar_coef, control_prior }
+    }
+
+    /// Natural-scale values in the order of [`Self::param_names`].
+    pub fn natural(&self, p: &StructuralParams) -> Vec<f64> {
+        let mut v = vec![p.irregular, p.level];
+        v.extend(p.slope);
+        v.extend(p.seasons.iter().copied());
+        v.extend(p.ar_variance);
+        v.extend(p.control_prior);
+        v.extend(p.damping);
+        v.extend(p.ar_coef);
+        v
     }
 
     /// The optimiser's vector from natural-scale parameters.
@@ -190,6 +219,9 @@ impl StructuralSpec {
         }
         if self.ar {
             v.push(p.ar_variance.unwrap_or(1.0).ln());
+        }
+        if !self.control_scales.is_empty() {
+            v.push(p.control_prior.unwrap_or(1.0).ln());
         }
         if self.trend == Trend::DampedTrend {
             let phi = p.damping.unwrap_or(0.9);
@@ -240,6 +272,11 @@ impl StructuralSpec {
                 dp0: vec![(i, i, s2 / (1.0 - rho * rho))],
                 ..Default::default()
             });
+        }
+        if let Some(tau2) = p.control_prior {
+            let r0 = self.regression_start();
+            let dp0 = self.control_scales.iter().enumerate().map(|(k, v)| (r0 + k, r0 + k, tau2 / v)).collect();
+            out.push(SystemDerivative { dp0, ..Default::default() });
         }
         if let Some(phi) = p.damping {
             let dphi = phi * (1.0 - phi);
@@ -350,6 +387,12 @@ impl StructuralSpec {
         for j in 0..self.n_regressors {
             rows[k + j].push((k + j, 1.0));
         }
+        if let Some(tau2) = p.control_prior {
+            for (j, v) in self.control_scales.iter().enumerate() {
+                diffuse[k + j] = false;
+                p_star0[(k + j) * m + k + j] = tau2 / v;
+            }
+        }
         let (p_inf0, p_star0) = match self.init {
             Initialisation::ExactDiffuse => {
                 let mut pinf = vec![0.0; m * m];
@@ -437,7 +480,8 @@ impl System {
         a.copy_from_slice(&scratch[..self.m]);
     }
 
-    /// `P <- T P T'` (row-major) using `scratch` of length `m * m`.
+    /// `P <- T P T'` (row-major, `P` symmetric) using `scratch` of length `m * m`; afterwards
+    /// `scratch` holds `T P` of the old `P`.
     pub fn transition_cov(&self, p: &mut [f64], scratch: &mut [f64]) {
         let m = self.m;
         // scratch = T P
@@ -451,11 +495,13 @@ impl System {
                 }
             }
         }
-        // p = scratch T'
+        // p = scratch T' (symmetric: the upper triangle, mirrored)
         for i in 0..m {
             let w = &scratch[i * m..(i + 1) * m];
-            for (k, row) in self.rows.iter().enumerate() {
-                p[i * m + k] = row.iter().map(|&(j, v)| v * w[j]).sum();
+            for (k, row) in self.rows.iter().enumerate().skip(i) {
+                let v: f64 = row.iter().map(|&(j, v)| v * w[j]).sum();
+                p[i * m + k] = v;
+                p[k * m + i] = v;
             }
         }
     }
