@@ -47,7 +47,7 @@ fn score_local_level_nile() {
 fn score_trend_dummy_season_regressor_with_missing_values() {
     let (y, x, _) = uc();
     let s = spec(Trend::LinearTrend, vec![SeasonKind::Dummy { period: 7 }], 1, false);
-    check("trend + dummy(7) + regressor", &s, &[1.2, -0.5, -3.9, -1.9], &y, &[x.clone()]);
+    check("trend + dummy(7) + regressor", &s, &[1.2, -0.5, -3.9, -1.9], &y, std::slice::from_ref(&x));
     let s = spec(Trend::DampedTrend, vec![SeasonKind::Dummy { period: 7 }], 1, true);
     check("damped + dummy(7) + regressor + AR(1)", &s, &[1.0, -0.5, -3.0, -1.9, -0.5, 1.5, -0.6], &y, &[x]);
 }
