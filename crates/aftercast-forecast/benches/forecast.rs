@@ -38,6 +38,7 @@ fn bench(c: &mut Criterion) {
     let xp: Vec<Vec<f64>> = x.iter().map(|v| v[..n_pre].to_vec()).collect();
     let mut g = c.benchmark_group("forecast");
     g.sample_size(10);
+    g.bench_function("structural_mle_1095", |b| b.iter(|| fit(&spec, &y[..n_pre], &xp, None).unwrap()));
     let f = fit(&spec, &y[..n_pre], &xp, None).unwrap();
     eprintln!(
         "fit: converged {} ({}, {} iterations), loglik {:.3}, params {:?}",
