@@ -244,3 +244,24 @@ fn good_files_still_read_with_the_lenient_policies() {
     assert_eq!(code, Some(0), "{err}");
     assert!(out.contains("10 Daily periods") && out.contains("1 missing"), "{out}");
 }
+
+/// The forecast's model options: an unknown value is a one-line usage error (exit 2), and
+/// `--model auto` without a backtest (`--folds 0`) is refused rather than silently given one.
+#[test]
+fn forecast_option_errors_exit_2() {
+    let nile = concat!(env!("CARGO_MANIFEST_DIR"), "/../aftercast-forecast/tests/data/nile.csv");
+    let base = ["forecast", "--data", nile, "--time", "year", "--outcome", "volume", "--start", "1899"];
+    for (extra, expect) in [
+        (vec!["--trend", "wobbly"], "wobbly"),
+        (vec!["--ar", "maybe"], "maybe"),
+        (vec!["--shrink-controls", "3"], "'3'"),
+        (vec!["--model", "auto", "--folds", "0"], "--folds 1 or more"),
+    ] {
+        let mut args: Vec<String> = base.iter().map(|s| s.to_string()).collect();
+        args.extend(extra.iter().map(|s| s.to_string()));
+        let (code, _, err) = run(&args);
+        assert_eq!(code, Some(2), "{extra:?}: {err}");
+        assert_eq!(err.trim_end().lines().count(), 1, "{extra:?}: one line expected: {err}");
+        assert!(err.contains(expect) && !err.contains("panicked"), "{extra:?}: {err}");
+    }
+}

@@ -3,7 +3,7 @@
 //! turn them into effects, diagnostics and the shared JSON result.
 
 use crate::backtest::{Backtest, BacktestRow, BacktestSummary, score};
-use crate::diagnostics::{ControlBreak, FitStats, LjungBox, control_break, fit_stats, ljung_box};
+use crate::diagnostics::{ControlBreak, FitStats, LjungBox, break_threshold, control_break, fit_stats, ljung_box};
 use crate::error::{ForecastError, ForecastResult};
 use crate::events::EventCalendar;
 use crate::harmonic::{self, HarmonicFit, HarmonicSpec};
@@ -549,6 +549,7 @@ pub fn prepare(
             return Err(ForecastError::UnknownLogControl { name: name.clone(), controls: controls.join(",") });
         }
     }
+    let z_crit = break_threshold(series.controls.len());
     for (name, raw) in &series.controls {
         if let Some((t, v)) = raw[..n].iter().enumerate().find(|(_, v)| !v.is_finite()) {
             return Err(ForecastError::NonFiniteControl { name: name.clone(), value: *v, at: pts[t].to_string() });
@@ -572,7 +573,7 @@ pub fn prepare(
             warnings.push(format!("control '{name}' is constant in the pre-period and is left out"));
             continue;
         }
-        let b = control_break(name, x, split.pre_end, split.post_start, split.post_end);
+        let b = control_break(name, x, split.pre_end, split.post_start, split.post_end, z_crit);
         if b.flagged {
             warnings.push(format!(
                 "control '{name}' shifts at the intervention (mean departure {:.4} from its pre-period trend, z = {:.1}); the change may have touched it",
@@ -663,6 +664,15 @@ pub struct Candidate {
     pub params: ValidParams,
 }
 
+/// The name of the structural model with this trend, in the backtest table and results.
+pub fn structural_name(t: Trend) -> &'static str {
+    match t {
+        Trend::Level => "structural",
+        Trend::LinearTrend => "structural-trend",
+        Trend::DampedTrend => "structural-damped",
+    }
+}
+
 /// The candidates of a run. The structural model with `trend` left to the data (the default)
 /// is tried with a local level (`structural`) and with a local linear trend
 /// (`structural-trend`) when the backtest runs; `auto` adds Holt-Winters and harmonic
@@ -681,7 +691,7 @@ pub fn candidates(params: &ValidParams) -> Vec<Candidate> {
     if structural_kind {
         match pp.trend {
             Some(t) => out.push(Candidate {
-                name: "structural".into(),
+                name: structural_name(t).into(),
                 kind: ModelKind::Structural,
                 params: with(ModelKind::Structural, Some(t)),
             }),
@@ -1038,6 +1048,11 @@ pub fn analyse(
             split.post_len()
         ));
     }
+    if pp.trend.is_none() && pp.backtest_folds == 0 && chosen.kind == ModelKind::Structural {
+        warnings.push(
+            "with --folds 0 the trend is not checked on a backtest, so the forecast keeps a local level (no slope); if the series grows or shrinks, that reads as an effect: keep the backtest or give --trend".into(),
+        );
+    }
     let model = fit_model(chosen.kind, &prepared, &chosen.params, split.pre_end)?;
     warnings.extend(model.warnings().iter().cloned());
     let fitted =
@@ -1061,7 +1076,7 @@ pub fn analyse(
             _ => "use --model structural, which adds an AR(1) component when the residuals call for it",
         };
         warnings.push(format!(
-            "the model's one-day-ahead errors in the pre-period are correlated (Ljung-Box p = {:.3}), so the interval may be too narrow: {fix}",
+            "the model's one-step-ahead errors in the pre-period are correlated (Ljung-Box p = {:.3}), so the interval may be too narrow: {fix}",
             diagnostics.ljung_box.p_value
         ));
     }

@@ -102,13 +102,24 @@ pub struct ControlBreak {
     pub placebos: usize,
     /// Share of placebo dates with a departure at least as large in absolute value.
     pub placebo_p: Option<f64>,
-    /// Whether the control looks touched: `|z| >` [`BREAK_Z`] and (with placebos) larger than
-    /// every placebo departure.
+    /// Whether the control looks touched: `|z|` above [`break_threshold`] and (with placebos)
+    /// larger than every placebo departure.
     pub flagged: bool,
 }
 
-/// Threshold of the break check (a common-practice 3-sigma rule, not a calibrated test).
+/// Threshold of the break check for one control (a common-practice 3-sigma rule, not a
+/// calibrated test).
 pub const BREAK_Z: f64 = 3.0;
+
+/// Threshold of the break check when `k` controls are checked at once: the two-sided tail of
+/// [`BREAK_Z`] (0.27%) split over the `k` checks (Bonferroni), so that with 20 pure-noise
+/// controls a false flag is as rare as with one (3.0 for one control, 3.82 for 20).
+pub fn break_threshold(k: usize) -> f64 {
+    use statrs::distribution::{ContinuousCDF, Normal};
+    let n = Normal::standard();
+    let tail = 1.0 - n.cdf(BREAK_Z);
+    n.inverse_cdf(1.0 - tail / k.max(1) as f64)
+}
 
 /// Fewest placebo dates for the placebo-based scale.
 pub const MIN_PLACEBOS: usize = 10;
@@ -141,7 +152,14 @@ fn departure(x: &[f64], at: usize, h: usize, w: usize) -> (f64, f64) {
 /// departures, and the control is flagged when `|z| > 3` and the departure exceeds every
 /// placebo departure. With fewer than [`MIN_PLACEBOS`] placebo dates the analytic standard
 /// error of the line's projection is used instead.
-pub fn control_break(name: &str, x: &[f64], pre_end: usize, post_start: usize, post_end: usize) -> ControlBreak {
+pub fn control_break(
+    name: &str,
+    x: &[f64],
+    pre_end: usize,
+    post_start: usize,
+    post_end: usize,
+    z_crit: f64,
+) -> ControlBreak {
     let h = post_end - post_start;
     let w = pre_end.min((3 * h).max(28)).max(3.min(pre_end));
     // the line is fitted on the window ending at pre_end; the post-period starts after the washout
@@ -167,7 +185,7 @@ pub fn control_break(name: &str, x: &[f64], pre_end: usize, post_start: usize, p
             z,
             placebos: placebo.len(),
             placebo_p: Some(p),
-            flagged: z.abs() > BREAK_Z && beyond == 0,
+            flagged: z.abs() > z_crit && beyond == 0,
         };
     }
     // analytic fallback (the washout gap is ignored in the projection spread)
@@ -179,7 +197,7 @@ pub fn control_break(name: &str, x: &[f64], pre_end: usize, post_start: usize, p
     } else {
         0.0
     };
-    ControlBreak { control: name.to_string(), shift, z, placebos: 0, placebo_p: None, flagged: z.abs() > BREAK_Z }
+    ControlBreak { control: name.to_string(), shift, z, placebos: 0, placebo_p: None, flagged: z.abs() > z_crit }
 }
 
 /// Mean departure of `x[from..from + h]` from the line fitted to `x[line_end - w..line_end]`.

@@ -230,3 +230,13 @@ fn bad_input_is_an_error() {
     let t = RawTable::from_csv_bytes(std::path::Path::new("ev.csv"), b"day,name\n2024-01-01,x\n").unwrap();
     assert!(matches!(EventCalendar::from_table(&t), Err(ForecastError::Data(_))));
 }
+
+/// The control-break threshold splits the 3-sigma tail over the controls checked (Bonferroni):
+/// scipy 1.x `norm.isf(norm.sf(3) / k)` gives 3.0000000000000004 for k = 1 and
+/// 3.8171724833936995 for k = 20.
+#[test]
+fn break_threshold_matches_scipy() {
+    use aftercast_forecast::diagnostics::break_threshold;
+    assert!((break_threshold(1) - 3.0).abs() < 1e-9, "{}", break_threshold(1));
+    assert!((break_threshold(20) - 3.8171724833936995).abs() < 1e-9, "{}", break_threshold(20));
+}

@@ -72,7 +72,8 @@ pub struct Args {
     /// Model the log of the outcome (multiplicative effects).
     #[arg(long)]
     pub log: bool,
-    /// Rolling origins of the pre-period backtest (0 = none; auto needs at least 1).
+    /// Rolling origins of the pre-period backtest (0 = none; --model auto needs at least 1, and
+    /// with --trend auto and 0 folds the forecast keeps a local level).
     #[arg(long, default_value_t = 3)]
     pub folds: usize,
     #[command(flatten)]
@@ -118,7 +119,7 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         .log(a.log)
         .log_controls(a.log_controls.clone())
         .inference(inf)
-        .backtest_folds(if model == ModelKind::Auto { a.folds.max(1) } else { a.folds });
+        .backtest_folds(a.folds);
     params.hw_seasonality = a.hw_seasonality;
     params.hw_damped = a.damped;
     if a.no_season {
@@ -126,6 +127,11 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     }
     for s in &a.season {
         params = params.season(*s);
+    }
+    if model == ModelKind::Auto && a.folds == 0 {
+        return Err(crate::failure::bad_input_msg(
+            "--model auto chooses the model on a backtest, so it needs --folds 1 or more (it is 0)",
+        ));
     }
     let params = params.check().map_err(bad_input)?;
     let mut inputs = vec![table.info()];
@@ -140,8 +146,12 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     let run = analyse(&series, split, &params, events.as_ref()).map_err(classify)?;
     let mut est = run.estimate();
     est.warnings.splice(0..0, series.notes.iter().cloned());
+    let with_ar = match &run.fitted.model {
+        aftercast_forecast::FittedModel::Structural(f) if f.spec.ar => " with an AR(1) component",
+        _ => "",
+    };
     let headline = format!(
-        "{} of '{}' from {} ({} model, {} pre-periods, {} post-periods)",
+        "{} of '{}' from {} ({} model{with_ar}, {} pre-periods, {} post-periods)",
         if a.log { "Multiplicative effect" } else { "Effect" },
         a.outcome,
         a.start,
