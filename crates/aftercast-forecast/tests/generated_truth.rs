@@ -107,7 +107,14 @@ fn weekly_series_with_yearly_season_and_two_regressors_needs_no_fallback() {
         let f = fit(&spec, &y, &x, None).unwrap();
         assert!(f.optim.converged, "{trend:?}: {:?}", f.optim);
         assert_eq!(f.spec.init, Initialisation::ExactDiffuse);
-        assert!(f.warnings.is_empty(), "{trend:?}: {:?}", f.warnings);
+        assert!(
+            f.warnings.is_empty(),
+            "{trend:?}: {:?} at {:?}, theta {:?}, cov diag {:?}",
+            f.warnings,
+            f.params,
+            f.theta,
+            (0..f.theta.len()).map(|i| f.theta_cov[i][i]).collect::<Vec<_>>()
+        );
         let out = loglik_at(&f.spec, &f.params, &y, &x);
         assert!(out.resolved && out.loglik.is_finite());
         let m = f.spec.n_states();

@@ -87,6 +87,15 @@ pub struct FilterOutput {
     pub n_diffuse: usize,
     /// Number of observations that entered the likelihood.
     pub n_used: usize,
+    /// Number of diffuse states `d`.
+    pub n_diffuse_states: usize,
+    /// Sum of squared standardised one-step errors, the diffuse part included as
+    /// `q - s' S^-1 s`: scaling every variance by `c` scales it by `1 / c`, and the exact diffuse
+    /// log-likelihood by `-((n_used - d) log c + rss / c - rss) / 2` (so the scale can be
+    /// concentrated out; see `structural::fit`).
+    pub rss: f64,
+    /// Derivative of `rss` along each direction of the score (empty without one).
+    pub rss_score: Vec<f64>,
     /// Whether the diffuse period ended.
     pub resolved: bool,
     /// Period after which the filter collapsed to the ordinary recursion.
@@ -291,6 +300,7 @@ struct Deriv {
     ds_vec: Vec<f64>,
     dq_sum: f64,
     dlogf: f64,
+    drss: f64,
     dll: f64,
     dm: Vec<f64>,
     dv_row: Vec<f64>,
@@ -339,6 +349,7 @@ fn run(
                 ds_vec: vec![0.0; d],
                 dq_sum: 0.0,
                 dlogf: 0.0,
+                drss: 0.0,
                 dll: 0.0,
                 dm: vec![0.0; m],
                 dv_row: vec![0.0; d],
@@ -346,6 +357,7 @@ fn run(
         })
         .collect();
     let mut loglik = 0.0;
+    let mut rss = 0.0;
     let mut n_used = 0;
     let mut n_diffuse = 0;
     let mut full_rank = d == 0;
@@ -365,7 +377,7 @@ fn run(
                     fac: &Factor,
                     ds: &mut [Deriv],
                     base: f64|
-     -> f64 {
+     -> (f64, f64) {
         let delta: Vec<f64> = fac.solve(s_vec).into_iter().map(|v| -v).collect();
         let sd: f64 = s_vec.iter().zip(&delta).map(|(a, b)| a * b).sum(); // = -s' S^-1 s
         let ll = base - 0.5 * (sd + fac.log_det());
@@ -392,6 +404,7 @@ fn run(
             }
             let d_ssinv = -2.0 * dsd - quad;
             g.dll += -0.5 * (g.dlogf + g.dq_sum - d_ssinv + tr);
+            g.drss += g.dq_sum - d_ssinv;
             // d delta = -S^-1 (ds + dS delta)
             let rhs: Vec<f64> =
                 (0..d).map(|i| g.ds_vec[i] + (0..d).map(|j| g.ds_mat[i * d + j] * delta[j]).sum::<f64>()).collect();
@@ -419,7 +432,7 @@ fn run(
                 p[i * m + c] += (0..d).map(|j| w[i][j] * aa[c * d + j]).sum::<f64>();
             }
         }
-        ll
+        (ll, -sd)
     };
     for (t, &yt) in y.iter().enumerate() {
         sys.z_at(x, t, &mut z);
@@ -478,6 +491,7 @@ fn run(
                     }
                 } else if t >= sys.burn {
                     g.dll += -0.5 * (df * fi + 2.0 * v * dvv * fi - v * v * df * fi * fi);
+                    g.drss += 2.0 * v * dvv * fi - v * v * df * fi * fi;
                 }
                 for i in 0..m {
                     g.da[i] += (g.dm[i] * v + mvec[i] * dvv) * fi - mvec[i] * v * df * fi * fi;
@@ -512,6 +526,7 @@ fn run(
                 n_used += 1;
             } else if t >= sys.burn {
                 loglik -= 0.5 * (LN_2PI + f.ln() + v * v * fi);
+                rss += v * v * fi;
                 n_used += 1;
             }
             for (ai, mi) in a.iter_mut().zip(&mvec) {
@@ -546,7 +561,9 @@ fn run(
                 mirror_upper(&mut g.ds_mat, d);
             }
             let base = -0.5 * (n_aug as f64 * LN_2PI + logf_sum + q_sum);
-            loglik += collapse(&mut a, &mut p, &aa, &s_vec, &fac, &mut ds, base);
+            let (ll, ssinv) = collapse(&mut a, &mut p, &aa, &s_vec, &fac, &mut ds, base);
+            loglik += ll;
+            rss += q_sum - ssinv;
             augmented = false;
             collapsed_at = Some(t + 1);
         }
@@ -615,6 +632,9 @@ fn run(
         loglik: if resolved { loglik } else { f64::NAN },
         n_diffuse: if d == 0 { 0 } else { n_diffuse },
         n_used,
+        n_diffuse_states: d,
+        rss: if resolved { rss } else { f64::NAN },
+        rss_score: ds.iter().map(|g| g.drss).collect(),
         resolved,
         collapsed_at,
         a_next: a,
