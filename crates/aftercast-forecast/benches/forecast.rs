@@ -33,6 +33,7 @@ fn bench(c: &mut Criterion) {
         n_regressors: 2,
         ar: false,
         control_scales: vec![],
+        absent: vec![],
         init: Initialisation::ExactDiffuse,
     };
     let xp: Vec<Vec<f64>> = x.iter().map(|v| v[..n_pre].to_vec()).collect();

@@ -36,6 +36,7 @@ fn main() {
         n_regressors: 2,
         ar: false,
         control_scales: vec![],
+        absent: vec![],
         init: Initialisation::ExactDiffuse,
     };
     let opts = SimulationOptions { draws: 1000, seed: 1, parameter_uncertainty: true, parameter_sets: 100 };

@@ -97,12 +97,17 @@ fn structural_spec(p: &Prepared, params: &ValidParams, n_fit: usize) -> Structur
     } else {
         Vec::new()
     };
+    // a regressor constant over the fitting span (an event that has not occurred yet in a
+    // backtest fold) cannot be learned: its coefficient is fixed at zero
+    let absent =
+        p.regs.iter().enumerate().filter(|(_, x)| x[..n_fit].iter().all(|v| *v == x[0])).map(|(k, _)| k).collect();
     StructuralSpec {
         trend: pp.trend.unwrap_or(Trend::Level),
         seasons: p.seasons.iter().map(Season::kind).collect(),
         n_regressors: p.regs.len(),
         ar: pp.ar == Choice::On,
         control_scales,
+        absent,
         init: Initialisation::ExactDiffuse,
     }
 }
@@ -261,7 +266,7 @@ pub fn fit_model_from(
     match kind {
         ModelKind::Structural | ModelKind::Auto => {
             let spec = structural_spec(p, params, n_fit);
-            let needed = spec.n_states() - spec.control_scales.len() + 3;
+            let needed = spec.n_states() - spec.control_scales.len() - spec.absent.len() + 3;
             let found = y.iter().filter(|v| v.is_finite()).count();
             if found < needed {
                 return Err(ForecastError::TooShort { model: "structural", needed, found, at });
@@ -733,9 +738,10 @@ fn choose(bt: &Backtest, cands: &[Candidate], auto: bool, warnings: &mut Vec<Str
     match bt.chosen.as_deref().and_then(|n| cands.iter().find(|c| c.name == n)) {
         Some(c) => c.clone(),
         None if auto => {
-            warnings.push(
-                "--model auto: no model could be backtested in the pre-period, so the structural model with a local level is used".into(),
-            );
+            warnings.push(format!(
+                "--model auto: no model could be backtested in the pre-period, so the first candidate ({}) is used",
+                cands[0].name
+            ));
             cands[0].clone()
         }
         None => cands[0].clone(),
@@ -1073,7 +1079,7 @@ pub fn analyse(
             (FittedModel::Structural(_), false, _) => {
                 "an AR(1) component did not help; add an --events calendar for holidays and outliers, or a missing --season"
             }
-            _ => "use --model structural, which adds an AR(1) component when the residuals call for it",
+            _ => "the structural model (--model structural) can absorb it with an AR(1) component (--ar auto or on)",
         };
         warnings.push(format!(
             "the model's one-step-ahead errors in the pre-period are correlated (Ljung-Box p = {:.3}), so the interval may be too narrow: {fix}",

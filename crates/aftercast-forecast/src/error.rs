@@ -98,7 +98,7 @@ pub enum ForecastError {
     /// The diffuse part of the Kalman filter did not end in the pre-period: some state (e.g. a
     /// regression coefficient whose control never varies) is not identified by the data.
     #[error(
-        "the {model} model is not identified by the pre-period data: the diffuse initial state did not resolve in {periods} periods (is a control constant, or an event absent from the pre-period?)"
+        "the {model} model is not identified by the pre-period data: the diffuse initial state did not resolve in {periods} periods (is a control constant, do two controls repeat one another, or is an event absent from the pre-period?)"
     )]
     NotIdentified {
         /// Which model.

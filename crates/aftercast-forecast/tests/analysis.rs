@@ -240,3 +240,22 @@ fn break_threshold_matches_scipy() {
     assert!((break_threshold(1) - 3.0).abs() < 1e-9, "{}", break_threshold(1));
     assert!((break_threshold(20) - 3.8171724833936995).abs() < 1e-9, "{}", break_threshold(20));
 }
+
+/// An event that occurs only after the backtest folds' origins cannot be learned in those folds:
+/// its coefficient is fixed at zero there (it stays out of the fold's forecast), so every fold is
+/// still scored instead of failing as not identified.
+#[test]
+fn event_after_the_fold_origins_does_not_fail_the_backtest() {
+    let s = load(&daily_csv(280, 250, 0.0, false), &["c1", "c2"]);
+    let cal = "date,name\n2024-08-28,late-event\n";
+    let table = RawTable::from_csv_bytes(std::path::Path::new("events.csv"), cal.as_bytes()).unwrap();
+    let events = EventCalendar::from_table(&table).unwrap();
+    let split = s.split("2024-09-06", None, 0, 30).unwrap();
+    let p = params(ModelKind::Structural).backtest_folds(3).check().unwrap();
+    let run = analyse(&s, split, &p, Some(&events)).unwrap();
+    assert!(run.diagnostics.regressors.contains(&"event:late-event".to_string()));
+    let bt = run.backtest.as_ref().unwrap();
+    for row in bt.summary.iter().filter(|r| r.model.starts_with("structural")) {
+        assert!(row.failed.is_none() && row.folds == 3, "{row:?}");
+    }
+}

@@ -29,6 +29,7 @@ fn spec(init: Initialisation) -> StructuralSpec {
         n_regressors: 2,
         ar: false,
         control_scales: vec![],
+        absent: vec![],
         init,
     }
 }
@@ -102,6 +103,7 @@ fn weekly_series_with_yearly_season_and_two_regressors_needs_no_fallback() {
             n_regressors: 2,
             ar: false,
             control_scales: vec![],
+            absent: vec![],
             init: Initialisation::ExactDiffuse,
         };
         let f = fit(&spec, &y, &x, None).unwrap();

@@ -10,7 +10,15 @@ fn nile() -> Vec<f64> {
 }
 
 fn spec(init: Initialisation) -> StructuralSpec {
-    StructuralSpec { trend: Trend::Level, seasons: vec![], n_regressors: 0, ar: false, control_scales: vec![], init }
+    StructuralSpec {
+        trend: Trend::Level,
+        seasons: vec![],
+        n_regressors: 0,
+        ar: false,
+        control_scales: vec![],
+        absent: vec![],
+        init,
+    }
 }
 
 fn params(eps: f64, eta: f64) -> StructuralParams {

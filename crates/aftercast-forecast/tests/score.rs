@@ -7,7 +7,15 @@ mod common;
 use aftercast_forecast::structural::{Initialisation, SeasonKind, StructuralSpec, Trend, score_at};
 
 fn spec(trend: Trend, seasons: Vec<SeasonKind>, n_regressors: usize, ar: bool) -> StructuralSpec {
-    StructuralSpec { trend, seasons, n_regressors, ar, control_scales: vec![], init: Initialisation::ExactDiffuse }
+    StructuralSpec {
+        trend,
+        seasons,
+        n_regressors,
+        ar,
+        control_scales: vec![],
+        absent: vec![],
+        init: Initialisation::ExactDiffuse,
+    }
 }
 
 fn check(name: &str, s: &StructuralSpec, theta: &[f64], y: &[f64], x: &[Vec<f64>]) {

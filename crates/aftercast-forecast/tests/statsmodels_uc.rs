@@ -31,6 +31,7 @@ fn spec_a() -> StructuralSpec {
         n_regressors: 1,
         ar: false,
         control_scales: vec![],
+        absent: vec![],
         init: Initialisation::ExactDiffuse,
     }
 }
@@ -42,6 +43,7 @@ fn spec_b() -> StructuralSpec {
         n_regressors: 0,
         ar: false,
         control_scales: vec![],
+        absent: vec![],
         init: Initialisation::ExactDiffuse,
     }
 }

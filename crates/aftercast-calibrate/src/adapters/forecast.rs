@@ -67,6 +67,7 @@ impl PathModel for StructuralModel {
             n_regressors: controls.len(),
             ar: false,
             control_scales: vec![],
+            absent: vec![],
             init: Initialisation::ExactDiffuse,
         };
         let fit = structural::fit(&spec, y, controls, None)?;

@@ -170,8 +170,9 @@ fn parallel_scored(
     }
 }
 
-/// Box of the concentrated optimiser's variance ratios (log scale).
-const LOG_RATIO_BOX: f64 = 40.0;
+/// Box of the concentrated optimiser's variance ratios (log scale): as wide as the box of the
+/// log-variances, and within what `P -= M M' / F` can carry in double precision.
+const LOG_RATIO_BOX: f64 = LOG_VAR_SPAN;
 
 /// The optimiser's vector with the irregular variance at 1 and the other variances given as
 /// log-ratios to it (`ratios`: the vector without its first entry).
@@ -310,7 +311,7 @@ fn starting_points(spec: &StructuralSpec, ls: f64) -> Vec<Vec<f64>> {
         v[0] = ls + irr;
         v[1] = ls + lev;
         if spec.ar {
-            v[n_var - 1] = ls + irr - 0.7;
+            v[n_var - 1 - usize::from(!spec.control_scales.is_empty())] = ls + irr - 0.7;
         }
         if spec.trend == Trend::DampedTrend {
             v.push(2.0);
@@ -336,10 +337,13 @@ pub fn fit(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], start: Option<&[f64
     let n_var = spec.n_variances();
     let mut warnings = Vec::new();
     let mut spec_used = spec.clone();
-    let candidates = match start {
-        Some(s) => vec![s.to_vec()],
-        None => starting_points(spec, ls),
-    };
+    // a warm start (a nearby fit) joins the standard starting points; the best by likelihood wins
+    let mut candidates = starting_points(spec, ls);
+    if let Some(s) = start
+        && s.len() == spec.n_params()
+    {
+        candidates.insert(0, s.to_vec());
+    }
     let probe = filter(&spec.system(&spec.params_from_theta(&candidates[0])), y, x, false);
     if !probe.resolved {
         return Err(ForecastError::NotIdentified { model: "structural", periods: y.len() });
@@ -368,6 +372,13 @@ pub fn fit(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], start: Option<&[f64
     let concentrated_fit = (spec.init == Initialisation::ExactDiffuse)
         .then(|| maximise_concentrated(spec, y, x, &theta0, n_used).ok())
         .flatten()
+        .map(|(mut th, report)| {
+            for (i, v) in th.iter_mut().enumerate() {
+                let (l, h) = bounds(spec, i, lo, hi);
+                *v = v.clamp(l, h);
+            }
+            (th, report)
+        })
         .filter(|(th, _)| value(spec, th).is_finite() && value(spec, th) >= value(spec, &theta0));
     let out = match concentrated_fit {
         Some((x, report)) => crate::optim::OptimOutcome { x, report },
@@ -447,9 +458,10 @@ pub fn fit(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], start: Option<&[f64
     })
 }
 
-/// Hessian of `-loglik` over the `free` entries of `theta`: forward differences (step 1e-4) of
-/// the analytic score, symmetrised; the `k + 1` evaluations run in parallel. The O(h) error of a
-/// forward difference is about 1e-4 relative here, far inside what a covariance needs.
+/// Hessian of `-loglik` over the `free` entries of `theta`: forward differences (step 1e-4,
+/// inward at an upper bound) of the analytic score, symmetrised; the `k + 1` evaluations run in
+/// parallel. The O(h) error of a forward difference is about 1e-4 relative here, far inside what
+/// a covariance needs.
 fn score_hessian(
     spec: &StructuralSpec,
     y: &[f64],
@@ -462,12 +474,14 @@ fn score_hessian(
     use rayon::prelude::*;
     const H: f64 = 1e-4;
     let k = free.len();
+    // step inward at an upper bound, so no step lands in the box's penalty
+    let steps: Vec<f64> = free.iter().map(|&i| if theta[i] + H > bounds(spec, i, lo, hi).1 { -H } else { H }).collect();
     let grads: Vec<Vec<f64>> = (0..=k)
         .into_par_iter()
         .map(|e| {
             let mut th = theta.to_vec();
             if e < k {
-                th[free[e]] += H;
+                th[free[e]] += steps[e];
             }
             objective(spec, y, x, &th, lo, hi).1
         })
@@ -478,7 +492,7 @@ fn score_hessian(
     for a in 0..k {
         for b in 0..k {
             let gb = free[b];
-            hess[a][b] = (grads[a][gb] - g0[gb]) / H;
+            hess[a][b] = (grads[a][gb] - g0[gb]) / steps[a];
         }
     }
     #[allow(clippy::needless_range_loop)] // symmetric fill: both hess[a][b] and hess[b][a]

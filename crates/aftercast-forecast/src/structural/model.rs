@@ -94,6 +94,11 @@ pub struct StructuralSpec {
     /// their remaining uncertainty is carried by the filter into the paths).
     #[serde(default)]
     pub control_scales: Vec<f64>,
+    /// Regressors (indices among the regressors) whose coefficient is fixed at zero: constant
+    /// over the fitting span (an event that has not occurred yet in a backtest fold), so the
+    /// data cannot learn it; its effect stays out of the forecast.
+    #[serde(default)]
+    pub absent: Vec<usize>,
     /// Initial-state treatment.
     pub init: Initialisation,
 }
@@ -275,7 +280,13 @@ impl StructuralSpec {
         }
         if let Some(tau2) = p.control_prior {
             let r0 = self.regression_start();
-            let dp0 = self.control_scales.iter().enumerate().map(|(k, v)| (r0 + k, r0 + k, tau2 / v)).collect();
+            let dp0 = self
+                .control_scales
+                .iter()
+                .enumerate()
+                .filter(|(k, _)| !self.absent.contains(k))
+                .map(|(k, v)| (r0 + k, r0 + k, tau2 / v))
+                .collect();
             out.push(SystemDerivative { dp0, ..Default::default() });
         }
         if let Some(phi) = p.damping {
@@ -392,6 +403,10 @@ impl StructuralSpec {
                 diffuse[k + j] = false;
                 p_star0[(k + j) * m + k + j] = tau2 / v;
             }
+        }
+        for &j in &self.absent {
+            diffuse[k + j] = false;
+            p_star0[(k + j) * m + k + j] = 0.0;
         }
         let (p_inf0, p_star0) = match self.init {
             Initialisation::ExactDiffuse => {
