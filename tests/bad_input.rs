@@ -256,6 +256,7 @@ fn forecast_option_errors_exit_2() {
         (vec!["--ar", "maybe"], "maybe"),
         (vec!["--shrink-controls", "3"], "'3'"),
         (vec!["--model", "auto", "--folds", "0"], "--folds 1 or more"),
+        (vec!["--season", "50"], "longer than the pre-period (28 periods)"),
     ] {
         let mut args: Vec<String> = base.iter().map(|s| s.to_string()).collect();
         args.extend(extra.iter().map(|s| s.to_string()));
@@ -264,4 +265,57 @@ fn forecast_option_errors_exit_2() {
         assert_eq!(err.trim_end().lines().count(), 1, "{extra:?}: one line expected: {err}");
         assert!(err.contains(expect) && !err.contains("panicked"), "{extra:?}: {err}");
     }
+}
+
+/// Values too large to compute with (found by scripts/fuzz.py): an outcome near 1e308 in a
+/// synthetic-control panel, and a season period of 1e308, are bad input (exit 2, one line that
+/// names the unit and period or the flag), not internal errors.
+#[test]
+fn huge_values_are_bad_input() {
+    let dir = std::env::temp_dir().join(format!("aftercast-huge-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let mut panel = String::from("region,week,revenue\n");
+    for (u, unit) in ["ash", "birch", "cedar", "elm", "fir", "oak"].iter().enumerate() {
+        for w in 0..20 {
+            let day = chrono::NaiveDate::from_ymd_opt(2024, 1, 1).unwrap() + chrono::Duration::weeks(w);
+            let v =
+                if *unit == "elm" && w == 7 { 1e300 } else { 100.0 + u as f64 * 10.0 + (w as f64 * 0.7).sin() * 5.0 };
+            panel.push_str(&format!("{unit},{day},{v}\n"));
+        }
+    }
+    let path = dir.join("panel.csv");
+    std::fs::write(&path, panel).unwrap();
+    let args: Vec<String> = [
+        "synthetic",
+        "--data",
+        path.to_str().unwrap(),
+        "--unit",
+        "region",
+        "--time",
+        "week",
+        "--outcome",
+        "revenue",
+        "--treated",
+        "ash",
+        "--start",
+        "2024-04-15",
+        "--json",
+        dir.join("out.json").to_str().unwrap(),
+    ]
+    .iter()
+    .map(|s| s.to_string())
+    .collect();
+    let (code, _, err) = run(&args);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("unit 'elm'") && err.contains("too large to compute with"), "{err}");
+    let nile = concat!(env!("CARGO_MANIFEST_DIR"), "/../aftercast-forecast/tests/data/nile.csv");
+    let args: Vec<String> =
+        ["forecast", "--data", nile, "--time", "year", "--outcome", "volume", "--start", "1899", "--season", "1e308"]
+            .iter()
+            .map(|s| s.to_string())
+            .collect();
+    let (code, _, err) = run(&args);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("1e308") && err.trim_end().lines().count() == 1, "{err}");
+    let _ = std::fs::remove_dir_all(&dir);
 }

@@ -613,6 +613,15 @@ pub fn prepare(
     let user_seasons = pp.seasons.is_some();
     let mut seasons = Vec::new();
     for s in pp.seasons.clone().unwrap_or_else(|| Season::defaults(series.frequency())) {
+        if user_seasons && s.period > split.pre_end as f64 {
+            return Err(ForecastError::BadSeason {
+                text: s.label(),
+                detail: format!(
+                    "the period is longer than the pre-period ({} periods), so the season cannot be learned",
+                    split.pre_end
+                ),
+            });
+        }
         if !user_seasons && s.period * 2.0 > split.pre_end as f64 {
             warnings.push(format!(
                 "the pre-period ({} periods) is shorter than two cycles of the default season {}; that season is left out",

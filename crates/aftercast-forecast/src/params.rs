@@ -111,6 +111,10 @@ impl std::str::FromStr for TrendOption {
     }
 }
 
+/// Longest seasonal period accepted (a guard: a season must repeat within the pre-period, and
+/// no series this tool reads has 100,000 periods of pre-period).
+pub const MAX_SEASON_PERIOD: f64 = 100_000.0;
+
 /// Number of controls from which `shrink_controls = auto` shrinks their coefficients.
 pub const SHRINK_FROM_CONTROLS: usize = 5;
 
@@ -135,6 +139,9 @@ impl std::str::FromStr for Season {
         let period: f64 = p.trim().parse().map_err(|_| bad("the period is not a number (examples: 7, 365.25:4)"))?;
         if !period.is_finite() || period < 2.0 {
             return Err(bad("the period must be at least 2"));
+        }
+        if period > MAX_SEASON_PERIOD {
+            return Err(bad("the period is longer than any series can cover (at most 100000 periods)"));
         }
         let harmonics = match k {
             Some(k) => {
@@ -365,8 +372,8 @@ impl ForecastParams {
         }
         if let Some(ss) = &self.seasons {
             for s in ss {
-                if !(s.period.is_finite() && s.period >= 2.0) {
-                    return bad("season", s.period.to_string(), "the period must be at least 2");
+                if !(s.period.is_finite() && s.period >= 2.0 && s.period <= MAX_SEASON_PERIOD) {
+                    return bad("season", s.period.to_string(), "the period must be between 2 and 100000");
                 }
                 if let Some(k) = s.harmonics
                     && (k == 0 || 2.0 * k as f64 > s.period + 1e-12)

@@ -5,6 +5,9 @@ use crate::params::SynthParams;
 use aftercast_core::panel::Panel;
 use aftercast_core::time::TimePoint;
 
+/// Largest outcome magnitude the weight solver takes (its sums of squares must stay finite).
+pub const MAX_MAGNITUDE: f64 = 1e150;
+
 /// The panel cut to the periods in use, with treated and donor positions resolved.
 #[derive(Debug, Clone)]
 pub(crate) struct Prepared {
@@ -89,6 +92,12 @@ pub(crate) fn prepare(panel: &Panel, treated: &[String], start: TimePoint, p: &S
                 period: times[t].to_string(),
                 value: *v,
             });
+        }
+        // squares of larger values overflow in the weight solver
+        if let Some((t, v)) = r.iter().enumerate().find(|(_, v)| v.abs() > MAX_MAGNITUDE)
+            && (tpos.contains(&u) || donors.contains(&u))
+        {
+            return Err(SynthError::TooLarge { unit: panel.units[u].clone(), period: times[t].to_string(), value: *v });
         }
         y.push(r);
     }

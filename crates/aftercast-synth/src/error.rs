@@ -95,6 +95,18 @@ pub enum SynthError {
         /// The value.
         value: f64,
     },
+    /// A value too large in magnitude for the weight solver's sums of squares.
+    #[error(
+        "unit '{unit}' has an outcome of {value:e} at period {period}, too large to compute with (at most 1e150 in absolute value: rescale the column, e.g. to thousands)"
+    )]
+    TooLarge {
+        /// The unit.
+        unit: String,
+        /// The period.
+        period: String,
+        /// The value.
+        value: f64,
+    },
     /// A parameter is outside its allowed range.
     #[error("invalid parameter {name} = {value}: {detail}")]
     BadParameter {
