@@ -319,3 +319,18 @@ fn huge_values_are_bad_input() {
     assert!(err.contains("1e308") && err.trim_end().lines().count() == 1, "{err}");
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// A usage error shows the offending value as every error shows user text (found by
+/// scripts/fuzz.py): control and bidirectional characters escaped, cut to 80 characters.
+#[test]
+fn usage_errors_show_values_escaped_and_cut() {
+    let base = ["forecast", "--data", "x.csv", "--time", "t", "--outcome", "y", "--start", "1", "--ar"];
+    for value in ["\u{202e}evil", &"x".repeat(300)] {
+        let mut args: Vec<String> = base.iter().map(|s| s.to_string()).collect();
+        args.push(value.to_string());
+        let (code, _, err) = run(&args);
+        assert_eq!(code, Some(2), "{err}");
+        assert_eq!(err.trim_end().lines().count(), 1, "{err}");
+        assert!(!err.contains('\u{202e}') && err.len() < 400, "{err}");
+    }
+}

@@ -108,8 +108,21 @@ fn main() {
         }
         Err(e) => {
             // usage errors in one line, as every other error (the usage text is one --help away)
-            let text = e.render().to_string();
-            esayln!("aftercast: error: {}", crate::study::one_line(&text).trim_start_matches("error: "));
+            // the offending value as every error shows user text: escaped and cut to 80 characters
+            let mut text = e.render().to_string();
+            if let Some(clap::error::ContextValue::String(v)) = e.get(clap::error::ContextKind::InvalidValue)
+                && !v.is_empty()
+            {
+                text = text.replace(v.as_str(), &aftercast_core::error::shown(v));
+            }
+            let line: String = crate::study::one_line(&text)
+                .chars()
+                .flat_map(|c| {
+                    let bidi = matches!(c, '\u{200E}' | '\u{200F}' | '\u{202A}'..='\u{202E}' | '\u{2066}'..='\u{2069}');
+                    if c.is_control() || bidi { c.escape_default().collect::<Vec<_>>() } else { vec![c] }
+                })
+                .collect();
+            esayln!("aftercast: error: {}", line.trim_start_matches("error: "));
             std::process::exit(2);
         }
     };
