@@ -170,6 +170,18 @@ impl Season {
         }
     }
 
+    /// The component the structural model uses: as [`Season::kind`], except that a dummy
+    /// seasonal longer than [`crate::analysis::MAX_DUMMY_PERIOD`] becomes trigonometric with
+    /// `min(period / 2, 10)` harmonics (a dummy seasonal has `period - 1` states).
+    pub fn structural_kind(&self) -> SeasonKind {
+        match self.kind() {
+            SeasonKind::Dummy { period } if period > crate::analysis::MAX_DUMMY_PERIOD => {
+                SeasonKind::Trig { period: self.period, harmonics: (period / 2).min(10) }
+            }
+            k => k,
+        }
+    }
+
     /// Number of Fourier harmonics used by the harmonic regression for this season.
     pub fn fourier_harmonics(&self) -> usize {
         match self.kind() {

@@ -181,10 +181,10 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         Season::defaults(series.frequency())
             .into_iter()
             .filter(|s| s.period * 2.0 <= pre as f64)
-            .map(|s| s.kind())
+            .map(|s| s.structural_kind())
             .collect()
     } else {
-        a.season.iter().map(Season::kind).collect()
+        a.season.iter().map(Season::structural_kind).collect()
     };
     let trend = a.trend;
     let model = StructuralModel { trend, seasons, parameter_uncertainty: true, parameter_sets: 20 };
