@@ -222,10 +222,14 @@ fn bad_input_is_an_error() {
     neg.outcome[3] = -1.0;
     let p = params(ModelKind::Structural).log(true).backtest_folds(0).check().unwrap();
     assert!(matches!(analyse(&neg, split, &p, None), Err(ForecastError::NonPositiveForLog { .. })));
-    // too short a pre-period for the model
+    // a season longer than the pre-period cannot be learned
     let tiny = s.split("2024-01-06", None, 0, 3).unwrap();
     let p = params(ModelKind::Structural).backtest_folds(0).check().unwrap();
-    assert!(matches!(analyse(&s, tiny, &p, None), Err(ForecastError::TooShort { .. })));
+    assert!(matches!(analyse(&s, tiny, &p, None), Err(ForecastError::BadSeason { .. })));
+    // too short a pre-period for the model
+    let tinier = s.split("2024-01-04", None, 0, 3).unwrap();
+    let p = params(ModelKind::Structural).no_seasons().backtest_folds(0).check().unwrap();
+    assert!(matches!(analyse(&s, tinier, &p, None), Err(ForecastError::TooShort { .. })));
     // events file without the needed column
     let t = RawTable::from_csv_bytes(std::path::Path::new("ev.csv"), b"day,name\n2024-01-01,x\n").unwrap();
     assert!(matches!(EventCalendar::from_table(&t), Err(ForecastError::Data(_))));
