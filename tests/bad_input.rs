@@ -164,6 +164,11 @@ fn cases() -> Vec<Case> {
     ]
 }
 
+/// Owned arguments from string slices.
+fn owned(args: &[&str]) -> Vec<String> {
+    args.iter().map(|s| s.to_string()).collect()
+}
+
 fn run(args: &[String]) -> (Option<i32>, String, String) {
     let out = Command::new(env!("CARGO_BIN_EXE_aftercast")).args(args).output().expect("run aftercast");
     (
@@ -180,7 +185,7 @@ fn every_malformed_file_exits_2_with_a_located_message() {
     let mut failures = Vec::new();
     for c in &cases {
         let mut args = vec!["inspect".to_string(), "--data".to_string(), corpus(c.file)];
-        args.extend(c.args.iter().map(|s| s.to_string()));
+        args.extend(owned(c.args));
         let (code, _out, err) = run(&args);
         let ok = code == Some(2)
             && err.starts_with("aftercast: error: ")
@@ -258,8 +263,8 @@ fn forecast_option_errors_exit_2() {
         (vec!["--model", "auto", "--folds", "0"], "--folds 1 or more"),
         (vec!["--season", "50"], "longer than the pre-period (28 periods)"),
     ] {
-        let mut args: Vec<String> = base.iter().map(|s| s.to_string()).collect();
-        args.extend(extra.iter().map(|s| s.to_string()));
+        let mut args = owned(&base);
+        args.extend(owned(&extra));
         let (code, _, err) = run(&args);
         assert_eq!(code, Some(2), "{extra:?}: {err}");
         assert_eq!(err.trim_end().lines().count(), 1, "{extra:?}: one line expected: {err}");
@@ -285,7 +290,7 @@ fn huge_values_are_bad_input() {
     }
     let path = dir.join("panel.csv");
     std::fs::write(&path, panel).unwrap();
-    let args: Vec<String> = [
+    let args = owned(&[
         "synthetic",
         "--data",
         path.to_str().unwrap(),
@@ -301,19 +306,24 @@ fn huge_values_are_bad_input() {
         "2024-04-15",
         "--json",
         dir.join("out.json").to_str().unwrap(),
-    ]
-    .iter()
-    .map(|s| s.to_string())
-    .collect();
+    ]);
     let (code, _, err) = run(&args);
     assert_eq!(code, Some(2), "{err}");
     assert!(err.contains("unit 'elm'") && err.contains("too large to compute with"), "{err}");
     let nile = concat!(env!("CARGO_MANIFEST_DIR"), "/../aftercast-forecast/tests/data/nile.csv");
-    let args: Vec<String> =
-        ["forecast", "--data", nile, "--time", "year", "--outcome", "volume", "--start", "1899", "--season", "1e308"]
-            .iter()
-            .map(|s| s.to_string())
-            .collect();
+    let args = owned(&[
+        "forecast",
+        "--data",
+        nile,
+        "--time",
+        "year",
+        "--outcome",
+        "volume",
+        "--start",
+        "1899",
+        "--season",
+        "1e308",
+    ]);
     let (code, _, err) = run(&args);
     assert_eq!(code, Some(2), "{err}");
     assert!(err.contains("1e308") && err.trim_end().lines().count() == 1, "{err}");
@@ -326,7 +336,7 @@ fn huge_values_are_bad_input() {
 fn usage_errors_show_values_escaped_and_cut() {
     let base = ["forecast", "--data", "x.csv", "--time", "t", "--outcome", "y", "--start", "1", "--ar"];
     for value in ["\u{202e}evil", &"x".repeat(300)] {
-        let mut args: Vec<String> = base.iter().map(|s| s.to_string()).collect();
+        let mut args = owned(&base);
         args.push(value.to_string());
         let (code, _, err) = run(&args);
         assert_eq!(code, Some(2), "{err}");

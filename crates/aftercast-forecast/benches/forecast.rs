@@ -5,37 +5,16 @@
 //! benches/data/bench_series.csv (written by benches/bench_statsmodels.py, which times the same
 //! job with statsmodels).
 
-use aftercast_forecast::structural::{
-    Initialisation, SeasonKind, SimulationOptions, StructuralSpec, Trend, fit, simulate,
-};
+use aftercast_forecast::structural::{Initialisation, SimulationOptions, fit, simulate};
 use criterion::{Criterion, criterion_group, criterion_main};
 
-fn load() -> (Vec<f64>, Vec<Vec<f64>>) {
-    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/benches/data/bench_series.csv")).unwrap();
-    let mut y = Vec::new();
-    let mut c1 = Vec::new();
-    let mut c2 = Vec::new();
-    for l in text.lines().skip(1) {
-        let f: Vec<&str> = l.split(',').collect();
-        y.push(f[1].parse().unwrap());
-        c1.push(f[2].parse().unwrap());
-        c2.push(f[3].parse().unwrap());
-    }
-    (y, vec![c1, c2])
-}
+#[path = "shared/job.rs"]
+mod job;
 
 fn bench(c: &mut Criterion) {
-    let (y, x) = load();
-    let n_pre = 1095;
-    let spec = StructuralSpec {
-        trend: Trend::LinearTrend,
-        seasons: vec![SeasonKind::Dummy { period: 7 }, SeasonKind::Trig { period: 365.25, harmonics: 4 }],
-        n_regressors: 2,
-        ar: false,
-        control_scales: vec![],
-        absent: vec![],
-        init: Initialisation::ExactDiffuse,
-    };
+    let (y, x) = job::load();
+    let n_pre = job::N_PRE;
+    let spec = job::spec(Initialisation::ExactDiffuse);
     let xp: Vec<Vec<f64>> = x.iter().map(|v| v[..n_pre].to_vec()).collect();
     let mut g = c.benchmark_group("forecast");
     g.sample_size(10);

@@ -6,39 +6,18 @@
 //!
 //! `cargo run --release -p aftercast-forecast --example structural_job -- [--reps N]`
 
-use aftercast_forecast::structural::{
-    Initialisation, SeasonKind, SimulationOptions, StructuralSpec, Trend, fit, simulate,
-};
+use aftercast_forecast::structural::{Initialisation, SimulationOptions, fit, simulate};
 use std::time::Instant;
+
+#[path = "../benches/shared/job.rs"]
+mod job;
 
 fn main() {
     let reps: usize = std::env::args().skip_while(|a| a != "--reps").nth(1).and_then(|v| v.parse().ok()).unwrap_or(3);
-    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/benches/data/bench_series.csv");
-    let Ok(text) = std::fs::read_to_string(path) else {
-        eprintln!("structural_job: cannot read {path}");
-        std::process::exit(2);
-    };
-    let (mut y, mut c1, mut c2) = (Vec::new(), Vec::new(), Vec::new());
-    for l in text.lines().skip(1) {
-        let f: Vec<f64> = l.split(',').skip(1).filter_map(|v| v.parse().ok()).collect();
-        if f.len() == 3 {
-            y.push(f[0]);
-            c1.push(f[1]);
-            c2.push(f[2]);
-        }
-    }
-    let n_pre = 1095;
-    let x = vec![c1, c2];
+    let (y, x) = job::load();
+    let n_pre = job::N_PRE;
     let xp: Vec<Vec<f64>> = x.iter().map(|v| v[..n_pre].to_vec()).collect();
-    let spec = StructuralSpec {
-        trend: Trend::LinearTrend,
-        seasons: vec![SeasonKind::Dummy { period: 7 }, SeasonKind::Trig { period: 365.25, harmonics: 4 }],
-        n_regressors: 2,
-        ar: false,
-        control_scales: vec![],
-        absent: vec![],
-        init: Initialisation::ExactDiffuse,
-    };
+    let spec = job::spec(Initialisation::ExactDiffuse);
     let opts = SimulationOptions { draws: 1000, seed: 1, parameter_uncertainty: true, parameter_sets: 100 };
     let mut times = Vec::new();
     let mut fit_times = Vec::new();

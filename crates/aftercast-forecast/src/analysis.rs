@@ -630,13 +630,13 @@ pub fn prepare(
             ));
             continue;
         }
-        let s = match s.kind() {
-            SeasonKind::Dummy { period } if period > MAX_DUMMY_PERIOD => {
-                let k = (period / 2).min(10);
+        // the structural model's rule for long dummy seasons (Season::structural_kind), said
+        let s = match (s.kind(), s.structural_kind()) {
+            (SeasonKind::Dummy { period }, SeasonKind::Trig { harmonics, .. }) => {
                 warnings.push(format!(
-                    "season {period} is long for a dummy seasonal; a trigonometric seasonal {period}:{k} is used instead"
+                    "season {period} is long for a dummy seasonal; a trigonometric seasonal {period}:{harmonics} is used instead"
                 ));
-                Season { period: s.period, harmonics: Some(k) }
+                Season { period: s.period, harmonics: Some(harmonics) }
             }
             _ => s,
         };

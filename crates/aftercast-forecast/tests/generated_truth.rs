@@ -10,29 +10,9 @@ use aftercast_forecast::structural::{
     Initialisation, SeasonKind, StructuralParams, StructuralSpec, Trend, fit, loglik_at,
 };
 
-fn load() -> (Vec<f64>, Vec<Vec<f64>>) {
-    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/benches/data/bench_series.csv")).unwrap();
-    let (mut y, mut c1, mut c2) = (vec![], vec![], vec![]);
-    for l in text.lines().skip(1).take(1095) {
-        let f: Vec<&str> = l.split(',').collect();
-        y.push(f[1].parse::<f64>().unwrap());
-        c1.push(f[2].parse::<f64>().unwrap());
-        c2.push(f[3].parse::<f64>().unwrap());
-    }
-    (y, vec![c1, c2])
-}
-
-fn spec(init: Initialisation) -> StructuralSpec {
-    StructuralSpec {
-        trend: Trend::LinearTrend,
-        seasons: vec![SeasonKind::Dummy { period: 7 }, SeasonKind::Trig { period: 365.25, harmonics: 4 }],
-        n_regressors: 2,
-        ar: false,
-        control_scales: vec![],
-        absent: vec![],
-        init,
-    }
-}
+#[path = "../benches/shared/job.rs"]
+mod job;
+use job::{pre_period as load, spec};
 
 /// Our approximate diffuse filter vs statsmodels 0.15.0 UnobservedComponents (default
 /// approximate diffuse, loglikelihood_burn 18) on the 18-state model at two fixed parameter

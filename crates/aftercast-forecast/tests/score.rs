@@ -4,6 +4,8 @@
 //! 1e-5 relative to the largest entry of the gradient.
 
 mod common;
+#[path = "../benches/shared/job.rs"]
+mod job;
 use aftercast_forecast::structural::{Initialisation, SeasonKind, StructuralSpec, Trend, score_at};
 
 fn spec(trend: Trend, seasons: Vec<SeasonKind>, n_regressors: usize, ar: bool) -> StructuralSpec {
@@ -73,19 +75,7 @@ fn score_trigonometric_season() {
 /// diffuse part is collapsed late.
 #[test]
 fn score_eighteen_states() {
-    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/benches/data/bench_series.csv")).unwrap();
-    let (mut y, mut c1, mut c2) = (vec![], vec![], vec![]);
-    for l in text.lines().skip(1).take(1095) {
-        let f: Vec<f64> = l.split(',').skip(1).map(|v| v.parse().unwrap()).collect();
-        y.push(f[0]);
-        c1.push(f[1]);
-        c2.push(f[2]);
-    }
-    let s = spec(
-        Trend::LinearTrend,
-        vec![SeasonKind::Dummy { period: 7 }, SeasonKind::Trig { period: 365.25, harmonics: 4 }],
-        2,
-        false,
-    );
-    check("18 states", &s, &[2.7, 0.1, -6.0, -5.0, -8.0], &y, &[c1, c2]);
+    let (y, x) = job::pre_period();
+    let s = job::spec(Initialisation::ExactDiffuse);
+    check("18 states", &s, &[2.7, 0.1, -6.0, -5.0, -8.0], &y, &x);
 }

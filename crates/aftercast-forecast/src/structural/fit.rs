@@ -99,14 +99,14 @@ fn bounds(spec: &StructuralSpec, i: usize, lo: f64, hi: f64) -> (f64, f64) {
     if i < spec.n_variances() { (lo, hi) } else { spec.shape_bounds(i) }
 }
 
-/// Negative log-likelihood with a soft box on the optimiser vector, and its gradient (the
-/// analytic score of the filter, plus the penalty's).
-fn objective(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], theta: &[f64], lo: f64, hi: f64) -> (f64, Vec<f64>) {
+/// The soft box of the optimisers: each value clamped into `bounds(i)`, with the quadratic
+/// penalty of its distance outside and the penalty's gradient.
+fn soft_box(values: &[f64], bounds: impl Fn(usize) -> (f64, f64)) -> (Vec<f64>, f64, Vec<f64>) {
     let mut pen = 0.0;
-    let mut dpen = vec![0.0; theta.len()];
-    let mut th = theta.to_vec();
-    for (i, v) in th.iter_mut().enumerate() {
-        let (l, h) = bounds(spec, i, lo, hi);
+    let mut dpen = vec![0.0; values.len()];
+    let mut out = values.to_vec();
+    for (i, v) in out.iter_mut().enumerate() {
+        let (l, h) = bounds(i);
         if *v < l {
             pen += (l - *v).powi(2);
             dpen[i] = -2.0 * (l - *v);
@@ -117,6 +117,13 @@ fn objective(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], theta: &[f64], lo
             *v = h;
         }
     }
+    (out, pen, dpen)
+}
+
+/// Negative log-likelihood with a soft box on the optimiser vector, and its gradient (the
+/// analytic score of the filter, plus the penalty's).
+fn objective(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], theta: &[f64], lo: f64, hi: f64) -> (f64, Vec<f64>) {
+    let (th, pen, dpen) = soft_box(theta, |i| bounds(spec, i, lo, hi));
     let p = spec.params_from_theta(&th);
     let (loglik, score) = parallel_score(&spec.system(&p), &spec.system_derivatives(&th), y, x);
     let grad = score.iter().zip(&dpen).map(|(s, d)| -s + 10.0 * d).collect();
@@ -194,21 +201,8 @@ fn from_ratios(ratios: &[f64]) -> Vec<f64> {
 /// derivative is zero there).
 fn concentrated(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], ratios: &[f64]) -> (f64, Vec<f64>, f64) {
     let n_var = spec.n_variances();
-    let mut pen = 0.0;
-    let mut dpen = vec![0.0; ratios.len()];
-    let mut r = ratios.to_vec();
-    for (j, v) in r.iter_mut().enumerate() {
-        let (l, h) = if j + 1 < n_var { (-LOG_RATIO_BOX, LOG_RATIO_BOX) } else { spec.shape_bounds(j + 1) };
-        if *v < l {
-            pen += (l - *v).powi(2);
-            dpen[j] = -2.0 * (l - *v);
-            *v = l;
-        } else if *v > h {
-            pen += (*v - h).powi(2);
-            dpen[j] = 2.0 * (*v - h);
-            *v = h;
-        }
-    }
+    let (r, pen, dpen) =
+        soft_box(ratios, |j| if j + 1 < n_var { (-LOG_RATIO_BOX, LOG_RATIO_BOX) } else { spec.shape_bounds(j + 1) });
     let th = from_ratios(&r);
     let p = spec.params_from_theta(&th);
     let derivs = spec.system_derivatives(&th);
