@@ -298,6 +298,7 @@ pub fn compare_units(
         }
         let sample = observational_sample(experiment, pool, &spec.outcome)?;
         for m in methods {
+            let _stage = aftercast_core::progress::stage(format!("{} on {}", m.name(), pool.name), None);
             match m.estimate(&sample, &spec.outcome, &spec.covariates, opts) {
                 Ok(est) => rows.push(ComparisonRow::new(&m.name(), &pool.name, est, &ts, Some(truth.n_treated), opts)),
                 Err(e) => failures.push(MethodFailure {

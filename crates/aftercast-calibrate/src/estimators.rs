@@ -144,31 +144,40 @@ fn standardised(s: &UnitTable, covariates: &[String]) -> CalibrateResult<Vec<Vec
 /// Weighted least squares over `rows` with design columns `cols` (each indexed by unit);
 /// returns `None` when `X'WX` is not positive definite.
 pub(crate) fn wls(cols: &[&[f64]], y: &[f64], w: &[f64], rows: &[usize]) -> Option<DVector<f64>> {
-    let p = cols.len();
-    let mut xtx = DMatrix::<f64>::zeros(p, p);
-    let mut xty = DVector::<f64>::zeros(p);
-    let mut x = vec![0.0; p];
-    for (k, &i) in rows.iter().enumerate() {
-        let wi = w[k];
-        for (j, c) in cols.iter().enumerate() {
-            x[j] = c[i];
+    RowDesign::new(cols, y, rows).wls(w)
+}
+
+/// A least-squares design gathered once into rows (outcome alongside), for fits repeated
+/// with new weights (bootstrap replicates).
+pub(crate) struct RowDesign {
+    p: usize,
+    x: Vec<f64>,
+    y: Vec<f64>,
+}
+
+impl RowDesign {
+    pub(crate) fn new(cols: &[&[f64]], y: &[f64], rows: &[usize]) -> Self {
+        let p = cols.len();
+        let mut x = Vec::with_capacity(rows.len() * p);
+        for &i in rows {
+            x.extend(cols.iter().map(|c| c[i]));
         }
-        for a in 0..p {
-            let wa = wi * x[a];
-            xty[a] += wa * y[i];
-            for b in 0..=a {
-                xtx[(a, b)] += wa * x[b];
-            }
-        }
+        RowDesign { p, x, y: rows.iter().map(|&i| y[i]).collect() }
     }
-    for a in 0..p {
-        for b in 0..a {
-            xtx[(b, a)] = xtx[(a, b)];
-        }
+
+    /// Weighted least squares with weights `w` (one per row); `None` when `X'WX` is not
+    /// positive definite.
+    pub(crate) fn wls(&self, w: &[f64]) -> Option<DVector<f64>> {
+        let p = self.p;
+        // each entry summed over the rows in order (rows of weight 0 add nothing)
+        let (lower, xty) =
+            aftercast_match::linear::cross_products(p, self.y.len(), |r| &self.x[r * p..(r + 1) * p], &self.y, w);
+        let xty = DVector::from_vec(xty);
+        let xtx = DMatrix::<f64>::from_fn(p, p, |a, b| if b <= a { lower[a * p + b] } else { lower[b * p + a] });
+        let chol = xtx.cholesky()?;
+        let beta = chol.solve(&xty);
+        beta.iter().all(|v| v.is_finite()).then_some(beta)
     }
-    let chol = xtx.cholesky()?;
-    let beta = chol.solve(&xty);
-    beta.iter().all(|v| v.is_finite()).then_some(beta)
 }
 
 impl UnitEstimator for Regression {
@@ -202,23 +211,29 @@ impl UnitEstimator for Regression {
         }
         let singular = || CalibrateError::Singular { columns: covariates.to_vec() };
         let kind = self.kind;
+        // the least-squares design, gathered once for all replicates
+        let mut cols: Vec<&[f64]> = vec![&ones];
+        if kind == RegressionKind::Coefficient {
+            cols.push(&tr);
+        }
+        cols.extend(xs.iter().map(Vec::as_slice));
+        let all: Vec<usize> = treated.iter().chain(&controls).copied().collect();
+        let rows = match kind {
+            RegressionKind::Coefficient => RowDesign::new(&cols, y, &all),
+            RegressionKind::Imputation => RowDesign::new(&cols, y, &controls),
+        };
         // One replicate: weights for treated and controls (unit weights give the point).
         let one = |wt: &[f64], wc: &[f64]| -> Option<(f64, f64)> {
             let st: f64 = wt.iter().sum();
             let ybar_t = treated.iter().zip(wt).map(|(&i, w)| w * y[i]).sum::<f64>() / st;
             match kind {
                 RegressionKind::Coefficient => {
-                    let mut cols: Vec<&[f64]> = vec![&ones, &tr];
-                    cols.extend(xs.iter().map(Vec::as_slice));
-                    let all: Vec<usize> = treated.iter().chain(&controls).copied().collect();
                     let w: Vec<f64> = wt.iter().chain(wc).copied().collect();
-                    let b = wls(&cols, y, &w, &all)?;
+                    let b = rows.wls(&w)?;
                     Some((b[1], ybar_t - b[1]))
                 }
                 RegressionKind::Imputation => {
-                    let mut cols: Vec<&[f64]> = vec![&ones];
-                    cols.extend(xs.iter().map(Vec::as_slice));
-                    let b = wls(&cols, y, wc, &controls)?;
+                    let b = rows.wls(wc)?;
                     let pred = |i: usize| cols.iter().zip(b.iter()).map(|(c, bj)| c[i] * bj).sum::<f64>();
                     let cf = treated.iter().zip(wt).map(|(&i, w)| w * pred(i)).sum::<f64>() / st;
                     Some((ybar_t - cf, cf))

@@ -37,6 +37,18 @@ pub struct Pool {
     pub dropped_rows: usize,
 }
 
+impl UnitCompareSpec {
+    /// The columns of the experiment's file: arm as text, outcome and covariates as numbers.
+    pub fn experiment_projection(&self) -> aftercast_core::Projection {
+        aftercast_core::Projection::none().text(&self.arm).number(&self.outcome).numbers(&self.covariates)
+    }
+
+    /// The columns of a pool's file: outcome and covariates.
+    pub fn pool_projection(&self) -> aftercast_core::Projection {
+        aftercast_core::Projection::none().number(&self.outcome).numbers(&self.covariates)
+    }
+}
+
 /// Read the experiment: arm, outcome and covariates.
 ///
 /// # Errors
@@ -66,11 +78,11 @@ pub fn read_pool(table: &RawTable, spec: &UnitCompareSpec, name: Option<&str>) -
     let mut lines = Vec::new();
     let mut vals: Vec<Vec<f64>> = vec![Vec::new(); cols.len()];
     let mut dropped = 0;
-    for (r, row) in table.rows().iter().enumerate() {
+    for r in 0..table.row_count() {
         let cells: Option<Vec<f64>> = cols.iter().map(|c| c[r]).collect();
         match cells {
             Some(v) => {
-                lines.push(row.line);
+                lines.push(table.line(r));
                 for (k, x) in v.into_iter().enumerate() {
                     vals[k].push(x);
                 }
@@ -111,7 +123,7 @@ pub fn observational_sample(experiment: &UnitTable, pool: &Pool, outcome: &str) 
     let mut ids = Vec::with_capacity(n);
     let mut lines = Vec::with_capacity(n);
     for &i in &rows {
-        ids.push(format!("experiment {}", experiment.ids[i]));
+        ids.push(format!("experiment {}", experiment.id(i)));
         lines.push(experiment.lines[i]);
     }
     for &l in &pool.lines {

@@ -117,8 +117,8 @@ pub fn comma_list(s: &str) -> Vec<String> {
 ///
 /// # Errors
 /// The reader's [`DataError`].
-pub fn read_table(path: &Path) -> anyhow::Result<RawTable> {
-    RawTable::read(path).map_err(anyhow::Error::new)
+pub fn read_table(path: &Path, projection: &aftercast_core::Projection) -> anyhow::Result<RawTable> {
+    RawTable::read_columns(path, projection).map_err(anyhow::Error::new)
 }
 
 /// An output folder being written. It refuses a non-empty folder unless forced; forced, it

@@ -57,6 +57,20 @@ fn threads_of(verb: &Verb) -> Option<u64> {
     }
 }
 
+fn quiet_of(verb: &Verb) -> bool {
+    match verb {
+        Verb::Windows(a) => a.quiet,
+        Verb::Forecast(a) => a.common.quiet,
+        Verb::Inspect(a) => a.quiet,
+        Verb::Run(a) => a.output.quiet,
+        Verb::Demo(a) => a.output.quiet,
+        Verb::Match(a) => a.common.quiet,
+        Verb::Synthetic(a) => a.common.quiet,
+        Verb::Compare(a) => a.common.quiet,
+        Verb::Backtest(a) => a.common.quiet,
+    }
+}
+
 /// Run an analysis verb and hand back its result (None for verbs that are not analyses).
 pub(crate) fn analyze(verb: &Verb) -> Option<anyhow::Result<verbs::Outcome>> {
     match verb {
@@ -131,6 +145,10 @@ fn main() {
             // A second initialisation can only fail if a pool exists already; results never
             // depend on the thread count, so that is harmless.
             let _ = rayon::ThreadPoolBuilder::new().num_threads(n as usize).build_global();
+        }
+        // the backtest draws its own bar; every other verb shows the libraries' stages
+        if !quiet_of(&cli.verb) && !matches!(cli.verb, Verb::Backtest(_)) {
+            progress::show_stages();
         }
         dispatch(&cli.verb)
     }) {

@@ -72,3 +72,111 @@ impl aftercast_calibrate::backtest::Progress for Bar {
         }
     }
 }
+
+/// How long a stage runs before it is shown (short steps never flicker on the screen).
+const SHOW_AFTER: std::time::Duration = std::time::Duration::from_millis(800);
+
+/// The reporter of the libraries' stages (reading, fitting, drawing, each analysis of a study):
+/// one line on stderr, shown once a stage has run for a moment, only on a terminal. Stages are
+/// followed only on the thread that installed it; stages begun inside parallel work on other
+/// threads are declined, so their counts never mix into the line.
+struct StderrReporter {
+    owner: std::thread::ThreadId,
+    state: std::sync::Mutex<ReporterState>,
+}
+
+#[derive(Default)]
+struct ReporterState {
+    stack: Vec<Frame>,
+    bar: Option<ProgressBar>,
+}
+
+struct Frame {
+    what: String,
+    total: Option<u64>,
+    done: u64,
+    since: std::time::Instant,
+}
+
+impl ReporterState {
+    /// Show the innermost stage (creating the line once the outermost has run long enough).
+    fn show(&mut self) {
+        let Some(top) = self.stack.last() else { return };
+        let started = self.stack.first().map_or(top.since, |f| f.since);
+        let mut created = false;
+        if self.bar.is_none() {
+            if started.elapsed() < SHOW_AFTER {
+                return;
+            }
+            // drawn only once it is dressed
+            self.bar = Some(ProgressBar::hidden());
+            created = true;
+        }
+        let Some(bar) = &self.bar else { return };
+        // the stages from the outside in: "analysis 3 of 8: loyalty-ipw · 1000 draws"
+        let path: Vec<&str> = self.stack.iter().map(|f| f.what.as_str()).collect();
+        bar.set_message(path.join(" · "));
+        let template = match top.total {
+            Some(_) => "{spinner} {msg} [{bar:24}] {percent}% ({elapsed})",
+            None => "{spinner} {msg} ({elapsed})",
+        };
+        if let Ok(style) = ProgressStyle::with_template(template) {
+            bar.set_style(style);
+        }
+        bar.set_length(top.total.unwrap_or(0));
+        bar.set_position(top.done);
+        if created {
+            bar.set_draw_target(ProgressDrawTarget::stderr());
+        }
+        bar.tick();
+    }
+}
+
+impl aftercast_core::progress::Reporter for StderrReporter {
+    fn begin(&self, what: &str, total: Option<u64>) -> bool {
+        if std::thread::current().id() != self.owner {
+            return false;
+        }
+        let mut s = self.state.lock().unwrap_or_else(|e| e.into_inner());
+        s.stack.push(Frame { what: what.to_string(), total, done: 0, since: std::time::Instant::now() });
+        s.show();
+        true
+    }
+
+    fn advance(&self, n: u64) {
+        let mut s = self.state.lock().unwrap_or_else(|e| e.into_inner());
+        if let Some(top) = s.stack.last_mut() {
+            top.done += n;
+        }
+        s.show();
+    }
+
+    fn end(&self) {
+        let mut s = self.state.lock().unwrap_or_else(|e| e.into_inner());
+        s.stack.pop();
+        if s.stack.is_empty() {
+            if let Some(bar) = s.bar.take() {
+                bar.finish_and_clear();
+            }
+        } else {
+            s.show();
+        }
+    }
+}
+
+/// Follow the libraries' stages on stderr when it is a terminal (a ticker thread keeps the
+/// line alive during stages that report no counts, such as a model fit).
+pub fn show_stages() {
+    if !std::io::stderr().is_terminal() {
+        return;
+    }
+    let reporter = Box::new(StderrReporter { owner: std::thread::current().id(), state: Default::default() });
+    if aftercast_core::progress::install(reporter) {
+        std::thread::spawn(|| {
+            loop {
+                std::thread::sleep(std::time::Duration::from_millis(250));
+                aftercast_core::progress::tick();
+            }
+        });
+    }
+}

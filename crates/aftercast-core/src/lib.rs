@@ -14,6 +14,8 @@
 //! ```
 
 pub mod budget;
+pub mod column;
+pub mod csv_read;
 #[cfg(feature = "parquet")]
 pub mod draws_file;
 pub mod error;
@@ -23,15 +25,17 @@ pub mod panel;
 #[cfg(feature = "parquet")]
 mod parquet_read;
 pub mod policy;
+pub mod progress;
 pub mod result;
 pub mod series;
 pub mod table;
 pub mod time;
 pub mod units;
 
+pub use column::{Column, ColumnKind};
 pub use error::{DataError, DataResult, Location};
 pub use estimate::{DEFAULT_SEED, Estimate, Figures, Inference, KeptDraws, Per, Point, Scope};
 pub use policy::{GapPolicy, MissingPolicy};
 pub use result::{AnalysisResult, EffectBlock, EffectDraws, Rope, RopeUnits, Summary, Verdict};
-pub use table::{InputInfo, RawTable};
+pub use table::{InputInfo, Projection, RawTable};
 pub use time::{Frequency, TimeAxis, TimePoint};

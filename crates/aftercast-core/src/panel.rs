@@ -1,7 +1,7 @@
 //! A balanced panel: units x periods of one outcome, with optional per-unit-period covariates.
 
 use crate::error::{DataError, DataResult};
-use crate::table::{InputInfo, RawTable};
+use crate::table::{InputInfo, Projection, RawTable};
 use crate::time::{DateFormat, TimeAxis, TimePoint, detect_frequency, parse_time, steps_between};
 use std::collections::{BTreeSet, HashMap};
 
@@ -37,7 +37,23 @@ pub struct Panel {
     pub input: InputInfo,
 }
 
+impl LongPanelSpec {
+    /// The columns this panel needs, as the reader should keep them.
+    pub fn projection(&self) -> Projection {
+        Projection::none().text(&self.unit).text(&self.time).number(&self.outcome).numbers(&self.covariates)
+    }
+}
+
 impl Panel {
+    /// The columns a wide panel needs: the time column as text, every other (or the named
+    /// unit columns) as numbers.
+    pub fn wide_projection(time: &str, units: Option<&[String]>) -> Projection {
+        match units {
+            Some(us) => Projection::none().text(time).numbers(us),
+            None => Projection::all(crate::column::ColumnKind::Number).text(time),
+        }
+    }
+
     /// Read a long-format panel. Every unit must have every period exactly once.
     ///
     /// # Errors
@@ -52,41 +68,50 @@ impl Panel {
         let mut units: Vec<String> = Vec::new();
         let mut times: BTreeSet<TimePoint> = BTreeSet::new();
         let mut cells: HashMap<(usize, TimePoint), (u64, f64, Vec<f64>)> = HashMap::new();
-        for row in table.rows() {
-            let u = row.cells[ucol].clone();
+        // times are parsed once per distinct text (a panel repeats every period for every unit)
+        let mut parsed: HashMap<String, TimePoint> = HashMap::new();
+        for r in 0..table.row_count() {
+            let u = table.text(r, ucol);
             if u.is_empty() {
-                return Err(DataError::MissingValue { at: table.at(row, ucol) });
+                return Err(DataError::MissingValue { at: table.at(r, ucol) });
             }
-            let t = parse_time(&row.cells[tcol], &spec.date_format, || table.at(row, tcol))?;
-            let y =
-                table.parse_number(row, ycol)?.ok_or_else(|| DataError::MissingValue { at: table.at(row, ycol) })?;
+            let ttext = table.text(r, tcol);
+            let t = match parsed.get(ttext.as_ref()) {
+                Some(t) => *t,
+                None => {
+                    let t = parse_time(&ttext, &spec.date_format, || table.at(r, tcol))?;
+                    parsed.insert(ttext.to_string(), t);
+                    t
+                }
+            };
+            let y = table.parse_number(r, ycol)?.ok_or_else(|| DataError::MissingValue { at: table.at(r, ycol) })?;
             let mut xs = Vec::with_capacity(xcols.len());
             for &c in &xcols {
-                xs.push(table.parse_number(row, c)?.ok_or_else(|| DataError::MissingValue { at: table.at(row, c) })?);
+                xs.push(table.parse_number(r, c)?.ok_or_else(|| DataError::MissingValue { at: table.at(r, c) })?);
             }
             let next = units.len();
-            let ui = *unit_index.entry(u.clone()).or_insert(next);
+            let ui = *unit_index.entry(u.to_string()).or_insert(next);
             if ui == next {
-                units.push(u.clone());
+                units.push(u.to_string());
             }
             if let Some(first) = times.first()
                 && std::mem::discriminant(first) != std::mem::discriminant(&t)
             {
                 return Err(DataError::Invalid {
-                    at: table.at(row, tcol),
-                    message: format!("'{}' mixes dates and integer periods", row.cells[tcol]),
+                    at: table.at(r, tcol),
+                    message: format!("'{}' mixes dates and integer periods", ttext),
                 });
             }
             times.insert(t);
             if let Some((first_line, _, _)) = cells.get(&(ui, t)) {
                 return Err(DataError::Duplicate {
-                    at: table.at(row, tcol),
+                    at: table.at(r, tcol),
                     what: "unit and period",
-                    key: format!("{u} / {}", row.cells[tcol]),
+                    key: format!("{u} / {}", ttext),
                     first_line: *first_line,
                 });
             }
-            cells.insert((ui, t), (row.line, y, xs));
+            cells.insert((ui, t), (table.line(r), y, xs));
         }
         let points: Vec<TimePoint> = times.into_iter().collect();
         let axis = regular_axis(table, &points)?;
@@ -141,14 +166,14 @@ impl Panel {
                 needed: 1,
             });
         }
-        let mut points = Vec::with_capacity(table.rows().len());
+        let mut points = Vec::with_capacity(table.row_count());
         let mut seen: HashMap<TimePoint, u64> = HashMap::new();
-        let mut outcome = vec![Vec::with_capacity(table.rows().len()); ucols.len()];
-        for row in table.rows() {
-            let t = parse_time(&row.cells[tcol], date_format, || table.at(row, tcol))?;
-            if let Some(first) = seen.insert(t, row.line) {
+        let mut outcome = vec![Vec::with_capacity(table.row_count()); ucols.len()];
+        for r in 0..table.row_count() {
+            let t = parse_time(&table.text(r, tcol), date_format, || table.at(r, tcol))?;
+            if let Some(first) = seen.insert(t, table.line(r)) {
                 return Err(DataError::Duplicate {
-                    at: table.at(row, tcol),
+                    at: table.at(r, tcol),
                     what: "time",
                     key: t.to_string(),
                     first_line: first,
@@ -158,14 +183,14 @@ impl Panel {
                 && t < *prev
             {
                 return Err(DataError::NonMonotone {
-                    at: table.at(row, tcol),
+                    at: table.at(r, tcol),
                     text: t.to_string(),
                     previous: prev.to_string(),
                 });
             }
             points.push(t);
             for (k, &c) in ucols.iter().enumerate() {
-                let v = table.parse_number(row, c)?.ok_or_else(|| DataError::MissingValue { at: table.at(row, c) })?;
+                let v = table.parse_number(r, c)?.ok_or_else(|| DataError::MissingValue { at: table.at(r, c) })?;
                 outcome[k].push(v);
             }
         }
@@ -205,7 +230,10 @@ fn regular_axis(table: &RawTable, points: &[TimePoint]) -> DataResult<TimeAxis> 
     })?;
     for w in points.windows(2) {
         if steps_between(freq, w[0], w[1]) != Some(1) {
-            let line = table.rows().iter().find(|r| r.cells.iter().any(|c| c == &w[1].to_string())).map(|r| r.line);
+            let wanted = w[1].to_string();
+            let line = (0..table.row_count())
+                .find(|&r| table.header().iter().enumerate().any(|(c, _)| table.kept(c) && table.text(r, c) == wanted))
+                .map(|r| table.line(r));
             return Err(DataError::Irregular {
                 at: crate::error::Location { file: table.path().to_path_buf(), line, column: None, column_name: None },
                 text: w[1].to_string(),

@@ -1,42 +1,109 @@
-//! Parquet input: a flat file is turned into the same text cells as a CSV file, so that one set
-//! of checks serves both formats. Row numbers take the place of line numbers (row 1 is the first
+//! Parquet input: the projected columns of a flat file become the same typed columns as a CSV
+//! file's (a cell that is not a plain number goes through its text), so that one set of checks
+//! serves both formats. Row numbers take the place of line numbers (row 1 is the first
 //! data row; messages say "line" = row + 1, as a CSV export of the same file would).
 
+use crate::column::Column;
+use crate::csv_read::hex;
 use crate::error::{DataError, DataResult, Location};
-use crate::table::RawRow;
-use arrow_array::{Array, RecordBatch, cast::AsArray, types};
+use crate::table::Projection;
+use arrow_array::{Array, cast::AsArray, types};
 use arrow_schema::{DataType, TimeUnit};
+use parquet::arrow::ProjectionMask;
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
+use sha2::{Digest, Sha256};
+use std::fs::File;
+use std::io::{Read, Seek, SeekFrom};
 use std::path::Path;
 
 fn malformed(path: &Path, message: String) -> DataError {
     DataError::Malformed { at: Location::file(path), format: "Parquet", message }
 }
 
-pub(crate) fn read_cells(path: &Path, bytes: Vec<u8>) -> DataResult<(Vec<String>, Vec<RawRow>)> {
-    let builder = ParquetRecordBatchReaderBuilder::try_new(bytes::Bytes::from(bytes))
-        .map_err(|e| malformed(path, e.to_string()))?;
-    let schema = builder.schema().clone();
-    let header: Vec<String> = schema.fields().iter().map(|f| f.name().clone()).collect();
-    let reader = builder.build().map_err(|e| malformed(path, e.to_string()))?;
-    let mut rows: Vec<RawRow> = Vec::new();
-    for batch in reader {
-        let batch = batch.map_err(|e| malformed(path, e.to_string()))?;
-        append_batch(path, &batch, &mut rows)?;
-    }
-    Ok((header, rows))
+pub(crate) struct ParquetColumns {
+    pub header: Vec<String>,
+    pub columns: Vec<Option<Column>>,
+    pub rows: usize,
+    pub sha256: String,
 }
 
-fn append_batch(path: &Path, batch: &RecordBatch, rows: &mut Vec<RawRow>) -> DataResult<()> {
-    let start = rows.len();
-    for r in 0..batch.num_rows() {
-        rows.push(RawRow { line: (start + r + 2) as u64, cells: Vec::with_capacity(batch.num_columns()) });
+/// Read the projected columns of a Parquet file, batch by batch (row group by row group).
+pub(crate) fn read_columns(path: &Path, mut file: File, projection: &Projection) -> DataResult<ParquetColumns> {
+    let io = |source| DataError::Io { path: path.to_path_buf(), source };
+    let _stage = crate::progress::stage(format!("reading {}", path.display()), None);
+    // the file's hash: one streaming pass (the reader below fetches only the projected columns)
+    let mut hasher = Sha256::new();
+    let mut buf = vec![0u8; 1 << 20];
+    let mut total = 0usize;
+    loop {
+        match file.read(&mut buf) {
+            Ok(0) => break,
+            Ok(k) => {
+                hasher.update(&buf[..k]);
+                total += k;
+            }
+            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+            Err(e) => return Err(io(e)),
+        }
     }
-    for (c, col) in batch.columns().iter().enumerate() {
-        let name = batch.schema().field(c).name().clone();
-        for r in 0..batch.num_rows() {
-            let text = if col.is_null(r) { String::new() } else { cell_text(path, &name, col.as_ref(), r)? };
-            rows[start + r].cells.push(text);
+    if total == 0 {
+        return Err(DataError::EmptyFile { path: path.to_path_buf() });
+    }
+    file.seek(SeekFrom::Start(0)).map_err(io)?;
+    let builder = ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| malformed(path, e.to_string()))?;
+    let schema = builder.schema().clone();
+    let header: Vec<String> = schema.fields().iter().map(|f| f.name().clone()).collect();
+    let kinds = projection.kinds(&header);
+    let roots: Vec<usize> = kinds.iter().enumerate().filter(|(_, k)| k.is_some()).map(|(i, _)| i).collect();
+    let mask = ProjectionMask::roots(builder.parquet_schema(), roots.iter().copied());
+    let reader = builder.with_projection(mask).build().map_err(|e| malformed(path, e.to_string()))?;
+    let mut columns: Vec<Option<Column>> = kinds.iter().map(|k| k.map(Column::new)).collect();
+    let mut rows = 0usize;
+    for batch in reader {
+        let batch = batch.map_err(|e| malformed(path, e.to_string()))?;
+        for (j, &c) in roots.iter().enumerate() {
+            let Some(col) = columns[c].as_mut() else { continue };
+            append_array(path, &header[c], batch.column(j).as_ref(), col)?;
+        }
+        rows += batch.num_rows();
+    }
+    for c in columns.iter_mut().flatten() {
+        c.seal();
+    }
+    Ok(ParquetColumns { header, columns, rows, sha256: hex(&hasher.finalize()) })
+}
+
+fn append_array(path: &Path, name: &str, array: &dyn Array, col: &mut Column) -> DataResult<()> {
+    let numeric = matches!(col, Column::Number(_));
+    macro_rules! direct {
+        ($t:ty) => {{
+            let a = array.as_primitive::<$t>();
+            for r in 0..a.len() {
+                if a.is_null(r) { col.push("") } else { col.push_number(a.value(r) as f64) }
+            }
+            return Ok(());
+        }};
+    }
+    if numeric {
+        match array.data_type() {
+            DataType::Int8 => direct!(types::Int8Type),
+            DataType::Int16 => direct!(types::Int16Type),
+            DataType::Int32 => direct!(types::Int32Type),
+            DataType::UInt8 => direct!(types::UInt8Type),
+            DataType::UInt16 => direct!(types::UInt16Type),
+            DataType::UInt32 => direct!(types::UInt32Type),
+            DataType::Int64 => direct!(types::Int64Type),
+            DataType::UInt64 => direct!(types::UInt64Type),
+            DataType::Float64 => direct!(types::Float64Type),
+            _ => {}
+        }
+    }
+    // every other type goes through its text, exactly as written out
+    for r in 0..array.len() {
+        if array.is_null(r) {
+            col.push("");
+        } else {
+            col.push(&cell_text(path, name, array, r)?);
         }
     }
     Ok(())

@@ -2,7 +2,7 @@
 
 use crate::error::{DataError, DataResult};
 use crate::policy::{GapPolicy, MissingPolicy};
-use crate::table::{InputInfo, RawRow, RawTable};
+use crate::table::{InputInfo, Projection, RawTable};
 use crate::time::{DateFormat, Frequency, TimeAxis, TimePoint, detect_frequency, parse_time, steps_between};
 use std::collections::HashMap;
 
@@ -41,7 +41,22 @@ pub struct Series {
     pub notes: Vec<String>,
 }
 
+impl SeriesSpec {
+    /// The columns this series needs, as the reader should keep them.
+    pub fn projection(&self) -> Projection {
+        Projection::none().text(&self.time).number(&self.outcome).numbers(&self.controls)
+    }
+}
+
 impl Series {
+    /// Read a series from a file, keeping only the columns it needs.
+    ///
+    /// # Errors
+    /// As [`RawTable::read_columns`] and [`Series::from_table`].
+    pub fn read(path: impl AsRef<std::path::Path>, spec: &SeriesSpec) -> DataResult<Self> {
+        Self::from_table(&RawTable::read_columns(path, &spec.projection())?, spec)
+    }
+
     /// Read a series from a table.
     ///
     /// # Errors
@@ -53,50 +68,53 @@ impl Series {
         let tcol = table.column(&spec.time)?;
         let ycol = table.column(&spec.outcome)?;
         let ccols: Vec<usize> = spec.controls.iter().map(|c| table.column(c)).collect::<DataResult<_>>()?;
-        let mut times: Vec<(TimePoint, &RawRow)> = Vec::with_capacity(table.rows().len());
-        let mut values = Vec::with_capacity(table.rows().len());
+        let mut times: Vec<(TimePoint, usize)> = Vec::with_capacity(table.row_count());
+        let mut values = Vec::with_capacity(table.row_count());
         let mut controls: Vec<Vec<f64>> = vec![Vec::new(); ccols.len()];
         let mut seen: HashMap<TimePoint, u64> = HashMap::new();
         let mut dropped = 0usize;
-        for row in table.rows() {
-            let t = parse_time(&row.cells[tcol], &spec.date_format, || table.at(row, tcol))?;
+        for r in 0..table.row_count() {
+            let text = table.text(r, tcol);
+            let t = parse_time(&text, &spec.date_format, || table.at(r, tcol))?;
             if let Some(first) = seen.get(&t) {
                 return Err(DataError::Duplicate {
-                    at: table.at(row, tcol),
+                    at: table.at(r, tcol),
                     what: "time",
-                    key: row.cells[tcol].clone(),
+                    key: text.into_owned(),
                     first_line: *first,
                 });
             }
-            seen.insert(t, row.line);
-            if let Some((prev, prow)) = times.last() {
-                if std::mem::discriminant(prev) != std::mem::discriminant(&t) {
+            seen.insert(t, table.line(r));
+            if let Some(&(prev, pr)) = times.last() {
+                if std::mem::discriminant(&prev) != std::mem::discriminant(&t) {
                     return Err(DataError::Invalid {
-                        at: table.at(row, tcol),
+                        at: table.at(r, tcol),
                         message: format!(
                             "'{}' mixes dates and integer periods (line {} has '{}')",
-                            row.cells[tcol], prow.line, prow.cells[tcol]
+                            text,
+                            table.line(pr),
+                            table.text(pr, tcol)
                         ),
                     });
                 }
-                if t < *prev {
+                if t < prev {
                     return Err(DataError::NonMonotone {
-                        at: table.at(row, tcol),
-                        text: row.cells[tcol].clone(),
-                        previous: prow.cells[tcol].clone(),
+                        at: table.at(r, tcol),
+                        text: text.into_owned(),
+                        previous: table.text(pr, tcol).into_owned(),
                     });
                 }
             }
-            let y = table.parse_number(row, ycol)?;
+            let y = table.parse_number(r, ycol)?;
             let mut crow = Vec::with_capacity(ccols.len());
             for &c in &ccols {
-                match table.parse_number(row, c)? {
+                match table.parse_number(r, c)? {
                     Some(v) => crow.push(v),
                     None if spec.missing == MissingPolicy::DropRow => {
                         crow.clear();
                         break;
                     }
-                    None => return Err(DataError::MissingValue { at: table.at(row, c) }),
+                    None => return Err(DataError::MissingValue { at: table.at(r, c) }),
                 }
             }
             if crow.len() != ccols.len() {
@@ -105,14 +123,14 @@ impl Series {
             }
             let y = match (y, spec.missing) {
                 (Some(v), _) => v,
-                (None, MissingPolicy::Error) => return Err(DataError::MissingValue { at: table.at(row, ycol) }),
+                (None, MissingPolicy::Error) => return Err(DataError::MissingValue { at: table.at(r, ycol) }),
                 (None, MissingPolicy::Keep) => f64::NAN,
                 (None, MissingPolicy::DropRow) => {
                     dropped += 1;
                     continue;
                 }
             };
-            times.push((t, row));
+            times.push((t, r));
             values.push(y);
             for (k, v) in crow.into_iter().enumerate() {
                 controls[k].push(v);
@@ -125,8 +143,9 @@ impl Series {
         let freq = detect_frequency(&points).ok_or_else(|| {
             let (t1, r1) = times[1];
             let (t0, _) = times[0];
+            let r1 = &r1;
             DataError::Irregular {
-                at: table.at(r1, tcol),
+                at: table.at(*r1, tcol),
                 text: t1.to_string(),
                 previous: t0.to_string(),
                 detail: "spacing is not daily, weekly, monthly or quarterly".into(),

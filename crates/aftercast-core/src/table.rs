@@ -1,12 +1,14 @@
-//! Reading a file into a validated table of text cells, with line numbers kept for errors.
+//! Reading a file into a validated table of typed columns, with line numbers kept for errors.
 //!
 //! Every reader of a shape (series, panel, unit table) starts here, so that CSV and Parquet
 //! inputs go through one set of checks and produce the same error messages.
 
+use crate::column::{Column, ColumnKind};
+use crate::csv_read::{CsvChunking, Lines};
 use crate::error::{DataError, DataResult, Location};
 use crate::policy::MissingPolicy;
 use serde::{Deserialize, Serialize};
-use sha2::{Digest, Sha256};
+use std::borrow::Cow;
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 
@@ -41,16 +43,9 @@ pub struct InputInfo {
     pub rows: usize,
 }
 
-/// One data row: its cells as text and its line in the file.
-#[derive(Debug, Clone)]
-pub struct RawRow {
-    /// 1-based line in the CSV file (header is line 1), or 1-based data row + 1 for Parquet.
-    pub line: u64,
-    /// Cell texts, one per header column.
-    pub cells: Vec<String>,
-}
-
-/// A whole input file as text cells, checked for shape (header, ragged rows, duplicate names).
+/// A whole input file as typed columns, checked for shape (header, ragged rows, duplicate
+/// names). Only the columns asked for are kept ([`RawTable::read_columns`]); every row keeps its
+/// line in the file for messages.
 #[derive(Debug, Clone)]
 pub struct RawTable {
     path: PathBuf,
@@ -58,87 +53,122 @@ pub struct RawTable {
     sha256: String,
     header: Vec<String>,
     index: HashMap<String, usize>,
-    rows: Vec<RawRow>,
+    columns: Vec<Option<Column>>,
+    lines: Lines,
+    rows: usize,
 }
 
-fn sha256_hex(bytes: &[u8]) -> String {
-    let digest = Sha256::digest(bytes);
-    let mut s = String::with_capacity(64);
-    for b in digest {
-        s.push_str(&format!("{b:02x}"));
+/// Which columns to keep and how: by name; columns not named are not kept.
+#[derive(Debug, Clone, Default)]
+pub struct Projection {
+    wanted: Vec<(String, ColumnKind)>,
+    all: Option<ColumnKind>,
+}
+
+impl Projection {
+    /// Every column, as one kind.
+    pub fn all(kind: ColumnKind) -> Self {
+        Projection { wanted: Vec::new(), all: Some(kind) }
     }
-    s
+
+    /// No column yet.
+    pub fn none() -> Self {
+        Projection::default()
+    }
+
+    /// Keep a column as numbers (a name already asked for as text stays text).
+    pub fn number(mut self, name: &str) -> Self {
+        if !self.wanted.iter().any(|(n, _)| n == name) {
+            self.wanted.push((name.to_string(), ColumnKind::Number));
+        }
+        self
+    }
+
+    /// Keep columns as numbers.
+    pub fn numbers<'a>(self, names: impl IntoIterator<Item = &'a String>) -> Self {
+        names.into_iter().fold(self, |p, n| p.number(n))
+    }
+
+    /// Keep a column as text (ids, categories, times, labels).
+    pub fn text(mut self, name: &str) -> Self {
+        match self.wanted.iter_mut().find(|(n, _)| n == name) {
+            Some(w) => w.1 = ColumnKind::Text,
+            None => self.wanted.push((name.to_string(), ColumnKind::Text)),
+        }
+        self
+    }
+
+    /// The kind of each header column (`None` = not kept).
+    pub fn kinds(&self, header: &[String]) -> Vec<Option<ColumnKind>> {
+        header.iter().map(|h| self.wanted.iter().find(|(n, _)| n == h).map(|w| w.1).or(self.all)).collect()
+    }
 }
 
 impl RawTable {
-    /// Read a CSV or Parquet file (chosen by extension).
+    /// Read a CSV or Parquet file (chosen by extension), every column kept as text.
     ///
     /// # Errors
     /// [`DataError::Io`], [`DataError::EmptyFile`], [`DataError::NoRows`],
     /// [`DataError::Malformed`], [`DataError::RaggedRow`], [`DataError::DuplicateColumn`].
     pub fn read(path: impl AsRef<Path>) -> DataResult<Self> {
+        Self::read_columns(path, &Projection::all(ColumnKind::Text))
+    }
+
+    /// Read a CSV or Parquet file keeping only the columns of `projection`, typed. CSV is
+    /// streamed and parsed in parallel chunks; Parquet reads only the projected columns.
+    ///
+    /// # Errors
+    /// As [`RawTable::read`].
+    pub fn read_columns(path: impl AsRef<Path>, projection: &Projection) -> DataResult<Self> {
         let path = path.as_ref();
-        let bytes = read_input(path)?;
+        let file = open_input(path)?;
         match Format::from_path(path) {
-            Format::Csv => Self::from_csv_bytes(path, &bytes),
-            Format::Parquet => Self::from_parquet_bytes(path, bytes),
+            Format::Csv => {
+                let again = || read_input(path);
+                let size = file.metadata().ok().map(|m| m.len());
+                let kinds = |h: &[String]| projection.kinds(h);
+                let parts = crate::csv_read::read_csv(path, file, &kinds, CsvChunking::default(), &again, size)?;
+                Self::from_csv_parts(path, parts)
+            }
+            Format::Parquet => Self::from_parquet_file(path, file, projection),
         }
     }
 
-    /// Parse CSV bytes; `path` is used in messages only.
+    /// Parse CSV bytes, every column as text; `path` is used in messages only.
     ///
     /// (Reading a file goes through [`read_input`], which registers it as an input.)
     ///
     /// # Errors
     /// As [`RawTable::read`].
     pub fn from_csv_bytes(path: &Path, bytes: &[u8]) -> DataResult<Self> {
-        let sha256 = sha256_hex(bytes);
-        let text_start = if bytes.starts_with(&[0xEF, 0xBB, 0xBF]) { 3 } else { 0 };
-        let body = &bytes[text_start..];
-        if body.iter().all(|b| b.is_ascii_whitespace()) {
-            return Err(DataError::EmptyFile { path: path.to_path_buf() });
-        }
-        let mut reader =
-            csv::ReaderBuilder::new().has_headers(false).flexible(true).trim(csv::Trim::All).from_reader(body);
-        let mut header: Option<Vec<String>> = None;
-        let mut rows = Vec::new();
-        let mut record = csv::StringRecord::new();
-        loop {
-            match reader.read_record(&mut record) {
-                Ok(false) => break,
-                Ok(true) => {}
-                Err(e) => {
-                    let line = e.position().map(|p| p.line()).unwrap_or(0);
-                    let message = match e.kind() {
-                        csv::ErrorKind::Utf8 { .. } => "text is not valid UTF-8".to_string(),
-                        _ => e.to_string(),
-                    };
-                    return Err(DataError::Malformed { at: Location::line(path, line), format: "CSV", message });
-                }
-            }
-            let line = record.position().map(|p| p.line()).unwrap_or(0);
-            // Skip wholly blank lines.
-            if record.len() == 1 && record[0].is_empty() {
-                continue;
-            }
-            match &header {
-                None => {
-                    header = Some(record.iter().map(|s| s.to_string()).collect());
-                }
-                Some(h) => {
-                    if record.len() != h.len() {
-                        return Err(DataError::RaggedRow {
-                            at: Location::line(path, line),
-                            expected: h.len(),
-                            found: record.len(),
-                        });
-                    }
-                    rows.push(RawRow { line, cells: record.iter().map(|s| s.to_string()).collect() });
-                }
-            }
-        }
-        let header = header.ok_or_else(|| DataError::EmptyFile { path: path.to_path_buf() })?;
-        Self::assemble(path, Format::Csv, sha256, header, rows)
+        Self::from_csv_bytes_with(path, bytes, &Projection::all(ColumnKind::Text), CsvChunking::default())
+    }
+
+    /// Parse CSV bytes with a projection and explicit block and chunk sizes (tests use chunks
+    /// of a few bytes to check that records are never cut).
+    ///
+    /// # Errors
+    /// As [`RawTable::read`].
+    pub fn from_csv_bytes_with(
+        path: &Path,
+        bytes: &[u8],
+        projection: &Projection,
+        chunking: CsvChunking,
+    ) -> DataResult<Self> {
+        let again = || Ok(bytes.to_vec());
+        let parts = crate::csv_read::read_csv(
+            path,
+            bytes,
+            &|h| projection.kinds(h),
+            chunking,
+            &again,
+            Some(bytes.len() as u64),
+        )?;
+        Self::from_csv_parts(path, parts)
+    }
+
+    fn from_csv_parts(path: &Path, parts: crate::csv_read::CsvColumns) -> DataResult<Self> {
+        Self::assemble(path, Format::Csv, parts.sha256, parts.header, parts.columns, parts.lines, parts.rows)
     }
 
     fn assemble(
@@ -146,7 +176,9 @@ impl RawTable {
         format: Format,
         sha256: String,
         header: Vec<String>,
-        rows: Vec<RawRow>,
+        columns: Vec<Option<Column>>,
+        lines: Lines,
+        rows: usize,
     ) -> DataResult<Self> {
         let mut index = HashMap::new();
         for (i, name) in header.iter().enumerate() {
@@ -163,24 +195,20 @@ impl RawTable {
                 });
             }
         }
-        if rows.is_empty() {
+        if rows == 0 {
             return Err(DataError::NoRows { path: path.to_path_buf() });
         }
-        Ok(Self { path: path.to_path_buf(), format, sha256, header, index, rows })
+        Ok(Self { path: path.to_path_buf(), format, sha256, header, index, columns, lines, rows })
     }
 
     #[cfg(feature = "parquet")]
-    fn from_parquet_bytes(path: &Path, bytes: Vec<u8>) -> DataResult<Self> {
-        let sha256 = sha256_hex(&bytes);
-        if bytes.is_empty() {
-            return Err(DataError::EmptyFile { path: path.to_path_buf() });
-        }
-        let (header, rows) = crate::parquet_read::read_cells(path, bytes)?;
-        Self::assemble(path, Format::Parquet, sha256, header, rows)
+    fn from_parquet_file(path: &Path, file: std::fs::File, projection: &Projection) -> DataResult<Self> {
+        let p = crate::parquet_read::read_columns(path, file, projection)?;
+        Self::assemble(path, Format::Parquet, p.sha256, p.header, p.columns, Lines::Regular { first: 2 }, p.rows)
     }
 
     #[cfg(not(feature = "parquet"))]
-    fn from_parquet_bytes(path: &Path, _bytes: Vec<u8>) -> DataResult<Self> {
+    fn from_parquet_file(path: &Path, _file: std::fs::File, _projection: &Projection) -> DataResult<Self> {
         Err(DataError::Malformed {
             at: Location::file(path),
             format: "Parquet",
@@ -203,14 +231,19 @@ impl RawTable {
         &self.header
     }
 
-    /// Data rows.
-    pub fn rows(&self) -> &[RawRow] {
-        &self.rows
+    /// Number of data rows.
+    pub fn row_count(&self) -> usize {
+        self.rows
+    }
+
+    /// Line of data row `r` in the file (row + 1 for Parquet), for messages.
+    pub fn line(&self, r: usize) -> u64 {
+        self.lines.get(r)
     }
 
     /// What a result records about this file.
     pub fn info(&self) -> InputInfo {
-        InputInfo { path: self.path.display().to_string(), sha256: self.sha256.clone(), rows: self.rows.len() }
+        InputInfo { path: self.path.display().to_string(), sha256: self.sha256.clone(), rows: self.rows }
     }
 
     /// Position of a column.
@@ -230,22 +263,66 @@ impl RawTable {
         self.index.contains_key(name)
     }
 
+    /// Whether the column at a position was kept when the file was read.
+    pub fn kept(&self, col: usize) -> bool {
+        self.columns.get(col).is_some_and(Option::is_some)
+    }
+
+    /// The kept column at a position.
+    ///
+    /// # Panics
+    /// When the column was not asked for when the file was read: a reader must name every
+    /// column it uses in its projection.
+    pub fn data(&self, col: usize) -> &Column {
+        match &self.columns[col] {
+            Some(c) => c,
+            None => panic!("column '{}' was read without being asked for", self.header[col]),
+        }
+    }
+
+    /// The codes and dictionary of a column kept as text.
+    pub fn text_codes(&self, col: usize) -> Option<(&[u32], &crate::column::Dictionary)> {
+        match &self.columns[col] {
+            Some(Column::Text(c)) => Some((c.codes(), c.dictionary())),
+            _ => None,
+        }
+    }
+
+    /// Whether every cell of a column kept as numbers is a finite number (no empty cell, no text).
+    pub fn all_numbers(&self, col: usize) -> bool {
+        matches!(&self.columns[col], Some(Column::Number(c)) if c.exception_count() == 0)
+    }
+
+    /// Take the values of a numeric column out of the table (for readers that own the table and
+    /// keep the column as it is).
+    pub fn take_numbers(&mut self, col: usize) -> Option<Vec<f64>> {
+        match self.columns[col].as_mut() {
+            Some(Column::Number(c)) => Some(c.take_values()),
+            _ => None,
+        }
+    }
+
     /// The location of one cell, for messages.
-    pub fn at(&self, row: &RawRow, col: usize) -> Location {
-        Location::cell(&self.path, row.line, col + 1, &self.header[col])
+    pub fn at(&self, row: usize, col: usize) -> Location {
+        Location::cell(&self.path, self.line(row), col + 1, &self.header[col])
+    }
+
+    /// One cell as text (as written, trimmed).
+    pub fn text(&self, row: usize, col: usize) -> Cow<'_, str> {
+        self.data(col).text(row)
     }
 
     /// Parse one cell as a finite number. Empty cells give `Ok(None)`.
     ///
     /// # Errors
     /// [`DataError::BadNumber`] or [`DataError::NonFinite`] with the cell's location.
-    pub fn parse_number(&self, row: &RawRow, col: usize) -> DataResult<Option<f64>> {
-        let text = row.cells[col].as_str();
-        parse_number_text(text).map_err(|nonfinite| {
+    pub fn parse_number(&self, row: usize, col: usize) -> DataResult<Option<f64>> {
+        self.data(col).number(row).map_err(|nonfinite| {
+            let text = self.text(row, col).into_owned();
             if nonfinite {
-                DataError::NonFinite { at: self.at(row, col), text: text.to_string() }
+                DataError::NonFinite { at: self.at(row, col), text }
             } else {
-                DataError::BadNumber { at: self.at(row, col), text: text.to_string() }
+                DataError::BadNumber { at: self.at(row, col), text }
             }
         })
     }
@@ -257,12 +334,11 @@ impl RawTable {
     /// As [`RawTable::parse_number`], plus [`DataError::MissingValue`].
     pub fn number_column(&self, name: &str, missing: MissingPolicy) -> DataResult<Vec<Option<f64>>> {
         let col = self.column(name)?;
-        self.rows
-            .iter()
-            .map(|row| {
-                let v = self.parse_number(row, col)?;
+        (0..self.rows)
+            .map(|r| {
+                let v = self.parse_number(r, col)?;
                 if v.is_none() && missing == MissingPolicy::Error {
-                    return Err(DataError::MissingValue { at: self.at(row, col) });
+                    return Err(DataError::MissingValue { at: self.at(r, col) });
                 }
                 Ok(v)
             })
@@ -273,9 +349,9 @@ impl RawTable {
     ///
     /// # Errors
     /// [`DataError::MissingColumn`].
-    pub fn text_column(&self, name: &str) -> DataResult<Vec<&str>> {
+    pub fn text_column(&self, name: &str) -> DataResult<Vec<Cow<'_, str>>> {
         let col = self.column(name)?;
-        Ok(self.rows.iter().map(|r| r.cells[col].as_str()).collect())
+        Ok((0..self.rows).map(|r| self.text(r, col)).collect())
     }
 }
 
@@ -283,6 +359,12 @@ impl RawTable {
 /// NaN and infinities are refused (`Err(true)`); anything else unparsable is `Err(false)`.
 pub fn parse_number_text(text: &str) -> Result<Option<f64>, bool> {
     let t = text.trim();
+    // the common case first: a plain finite number (none of the texts below parses as one)
+    if let Ok(v) = t.parse::<f64>()
+        && v.is_finite()
+    {
+        return Ok(Some(v));
+    }
     if t.is_empty() || t.eq_ignore_ascii_case("na") || t == "." || t.eq_ignore_ascii_case("null") {
         return Ok(None);
     }
@@ -305,6 +387,17 @@ pub fn parse_number_text(text: &str) -> Result<Option<f64>, bool> {
 /// # Errors
 /// [`DataError::Io`] naming the file.
 pub fn read_input(path: &Path) -> DataResult<Vec<u8>> {
+    let mut bytes = Vec::new();
+    std::io::Read::read_to_end(&mut open_input(path)?, &mut bytes)
+        .map_err(|source| DataError::Io { path: path.to_path_buf(), source })?;
+    Ok(bytes)
+}
+
+/// Open an input file for streaming, with the checks of [`read_input`].
+///
+/// # Errors
+/// [`DataError::Io`] naming the file.
+pub fn open_input(path: &Path) -> DataResult<std::fs::File> {
     let io = |source| DataError::Io { path: path.to_path_buf(), source };
     let meta = std::fs::metadata(path).map_err(io)?;
     if !meta.is_file() {
@@ -312,5 +405,5 @@ pub fn read_input(path: &Path) -> DataResult<Vec<u8>> {
         return Err(io(std::io::Error::new(std::io::ErrorKind::InvalidInput, format!("it is {what}"))));
     }
     crate::output::register_input(path);
-    std::fs::read(path).map_err(io)
+    std::fs::File::open(path).map_err(io)
 }

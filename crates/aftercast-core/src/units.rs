@@ -2,7 +2,7 @@
 
 use crate::error::{DataError, DataResult};
 use crate::policy::MissingPolicy;
-use crate::table::{InputInfo, RawTable};
+use crate::table::{InputInfo, Projection, RawTable};
 use std::collections::HashMap;
 
 /// How to read a unit table.
@@ -36,7 +36,8 @@ pub struct Categorical {
 /// A validated unit table.
 #[derive(Debug, Clone)]
 pub struct UnitTable {
-    /// Unit ids (row numbers as text when no id column is given).
+    /// Unit ids from the id column; empty when no id column is given (then a unit is named by
+    /// its line, see [`UnitTable::id`]).
     pub ids: Vec<String>,
     /// Source line of each unit, for messages.
     pub lines: Vec<u64>,
@@ -63,24 +64,78 @@ pub fn parse_treatment(text: &str) -> Option<bool> {
     }
 }
 
+impl UnitSpec {
+    /// The columns this table needs, as the reader should keep them.
+    pub fn projection(&self) -> Projection {
+        let mut p = Projection::none().text(&self.treatment).numbers(&self.outcomes).numbers(&self.numeric);
+        for c in &self.categorical {
+            p = p.text(c);
+        }
+        if let Some(id) = &self.id {
+            p = p.text(id);
+        }
+        p
+    }
+}
+
 impl UnitTable {
+    /// Read a unit table from a file, keeping only the columns it needs; the numeric columns
+    /// become the table's columns without a copy.
+    ///
+    /// # Errors
+    /// As [`RawTable::read_columns`] and [`UnitTable::from_table`].
+    pub fn read(path: impl AsRef<std::path::Path>, spec: &UnitSpec) -> DataResult<Self> {
+        let mut table = RawTable::read_columns(path, &spec.projection())?;
+        let (mut units, kept) = Self::check(&table, spec)?;
+        // each file column is moved out once; a column named twice (as an outcome and as a
+        // covariate) is copied from the first
+        let mut columns: Vec<(usize, Vec<f64>)> = Vec::new();
+        for name in spec.outcomes.iter().chain(&spec.numeric) {
+            let c = table.column(name)?;
+            let v = match columns.iter().find(|(k, _)| *k == c) {
+                Some((_, v)) => v.clone(),
+                None => match table.take_numbers(c) {
+                    Some(v) => keep_rows(v, kept.as_deref()),
+                    None => numbers(&table, c, kept.as_deref())?,
+                },
+            };
+            columns.push((c, v));
+        }
+        let mut values = columns.into_iter().map(|(_, v)| v);
+        units.outcomes = spec.outcomes.iter().map(|n| (n.clone(), values.next().unwrap_or_default())).collect();
+        units.numeric = spec.numeric.iter().map(|n| (n.clone(), values.next().unwrap_or_default())).collect();
+        Ok(units)
+    }
+
     /// Read a unit table.
     ///
     /// # Errors
     /// Missing column, bad number, NaN/inf, missing value (policy `Error`), bad treatment value,
     /// duplicate unit id, constant treatment column.
     pub fn from_table(table: &RawTable, spec: &UnitSpec) -> DataResult<Self> {
+        let (mut units, kept) = Self::check(table, spec)?;
+        let column = |name: &String| -> DataResult<(String, Vec<f64>)> {
+            Ok((name.clone(), numbers(table, table.column(name)?, kept.as_deref())?))
+        };
+        units.outcomes = spec.outcomes.iter().map(column).collect::<DataResult<_>>()?;
+        units.numeric = spec.numeric.iter().map(column).collect::<DataResult<_>>()?;
+        Ok(units)
+    }
+
+    /// Check every row in file order (so the first problem is the one reported) and build all
+    /// but the numeric columns; returns also which rows are kept when some were dropped.
+    fn check(table: &RawTable, spec: &UnitSpec) -> DataResult<(Self, Option<Vec<bool>>)> {
         let idcol = spec.id.as_deref().map(|c| table.column(c)).transpose()?;
         let trcol = table.column(&spec.treatment)?;
         let ocols: Vec<usize> = spec.outcomes.iter().map(|c| table.column(c)).collect::<DataResult<_>>()?;
         let ncols: Vec<usize> = spec.numeric.iter().map(|c| table.column(c)).collect::<DataResult<_>>()?;
+        // a numeric column whose every cell is a finite number has nothing to check row by row
+        let checked: Vec<usize> = ocols.iter().chain(&ncols).copied().filter(|&c| !table.all_numbers(c)).collect();
         let ccols: Vec<usize> = spec.categorical.iter().map(|c| table.column(c)).collect::<DataResult<_>>()?;
-        let n = table.rows().len();
-        let mut ids = Vec::with_capacity(n);
+        let n = table.row_count();
+        let mut ids = Vec::with_capacity(if idcol.is_some() { n } else { 0 });
         let mut lines = Vec::with_capacity(n);
         let mut treated = Vec::with_capacity(n);
-        let mut outs = vec![Vec::with_capacity(n); ocols.len()];
-        let mut nums = vec![Vec::with_capacity(n); ncols.len()];
         let mut cats: Vec<Categorical> = spec
             .categorical
             .iter()
@@ -89,52 +144,61 @@ impl UnitTable {
         let mut cat_index: Vec<HashMap<String, usize>> = vec![HashMap::new(); ccols.len()];
         let mut seen_ids: HashMap<String, u64> = HashMap::new();
         let mut dropped = 0usize;
-        'rows: for row in table.rows() {
-            let tr_text = &row.cells[trcol];
-            if tr_text.is_empty() {
-                if spec.missing == MissingPolicy::DropRow {
-                    dropped += 1;
-                    continue;
-                }
-                return Err(DataError::MissingValue { at: table.at(row, trcol) });
-            }
-            let tr = parse_treatment(tr_text)
-                .ok_or_else(|| DataError::BadTreatment { at: table.at(row, trcol), text: tr_text.clone() })?;
-            let mut ovals = Vec::with_capacity(ocols.len());
-            let mut nvals = Vec::with_capacity(ncols.len());
-            for (cols, vals) in [(&ocols, &mut ovals), (&ncols, &mut nvals)] {
-                for &c in cols.iter() {
-                    match table.parse_number(row, c)? {
-                        Some(v) => vals.push(v),
-                        None if spec.missing == MissingPolicy::DropRow => {
-                            dropped += 1;
-                            continue 'rows;
+        let mut kept: Option<Vec<bool>> = None;
+        let mut drop_row = |r: usize, dropped: &mut usize| {
+            *dropped += 1;
+            kept.get_or_insert_with(|| vec![true; n])[r] = false;
+        };
+        // a treatment label is read once per distinct text
+        let labels: Option<(&[u32], Vec<Option<bool>>)> = table
+            .text_codes(trcol)
+            .map(|(codes, dict)| (codes, dict.levels().iter().map(|l| parse_treatment(l)).collect()));
+        'rows: for r in 0..n {
+            let known = labels.as_ref().and_then(|(codes, parsed)| parsed[codes[r] as usize]);
+            let tr = match known {
+                Some(t) => t,
+                None => {
+                    let tr_text = table.text(r, trcol);
+                    if tr_text.is_empty() {
+                        if spec.missing == MissingPolicy::DropRow {
+                            drop_row(r, &mut dropped);
+                            continue;
                         }
-                        None => return Err(DataError::MissingValue { at: table.at(row, c) }),
+                        return Err(DataError::MissingValue { at: table.at(r, trcol) });
                     }
+                    parse_treatment(&tr_text)
+                        .ok_or_else(|| DataError::BadTreatment { at: table.at(r, trcol), text: tr_text.to_string() })?
                 }
-            }
-            let mut cvals = Vec::with_capacity(ccols.len());
-            for &c in &ccols {
-                let v = &row.cells[c];
-                if v.is_empty() {
-                    if spec.missing == MissingPolicy::DropRow {
-                        dropped += 1;
+            };
+            for &c in &checked {
+                match table.parse_number(r, c)? {
+                    Some(_) => {}
+                    None if spec.missing == MissingPolicy::DropRow => {
+                        drop_row(r, &mut dropped);
                         continue 'rows;
                     }
-                    return Err(DataError::MissingValue { at: table.at(row, c) });
+                    None => return Err(DataError::MissingValue { at: table.at(r, c) }),
                 }
-                cvals.push(v.clone());
             }
+            for &c in &ccols {
+                if table.text(r, c).is_empty() {
+                    if spec.missing == MissingPolicy::DropRow {
+                        drop_row(r, &mut dropped);
+                        continue 'rows;
+                    }
+                    return Err(DataError::MissingValue { at: table.at(r, c) });
+                }
+            }
+            let line = table.line(r);
             let id = match idcol {
                 Some(c) => {
-                    let id = row.cells[c].clone();
+                    let id = table.text(r, c).into_owned();
                     if id.is_empty() {
-                        return Err(DataError::MissingValue { at: table.at(row, c) });
+                        return Err(DataError::MissingValue { at: table.at(r, c) });
                     }
-                    if let Some(first) = seen_ids.insert(id.clone(), row.line) {
+                    if let Some(first) = seen_ids.insert(id.clone(), line) {
                         return Err(DataError::Duplicate {
-                            at: table.at(row, c),
+                            at: table.at(r, c),
                             what: "unit id",
                             key: id,
                             first_line: first,
@@ -142,27 +206,28 @@ impl UnitTable {
                     }
                     id
                 }
-                None => format!("line {}", row.line),
+                None => String::new(),
             };
-            ids.push(id);
-            lines.push(row.line);
+            if idcol.is_some() {
+                ids.push(id);
+            }
+            lines.push(line);
             treated.push(tr);
-            for (k, v) in ovals.into_iter().enumerate() {
-                outs[k].push(v);
-            }
-            for (k, v) in nvals.into_iter().enumerate() {
-                nums[k].push(v);
-            }
-            for (k, v) in cvals.into_iter().enumerate() {
+            for (k, &c) in ccols.iter().enumerate() {
+                let v = table.text(r, c);
                 let next = cats[k].levels.len();
-                let code = *cat_index[k].entry(v.clone()).or_insert(next);
-                if code == next {
-                    cats[k].levels.push(v);
-                }
+                let code = match cat_index[k].get(v.as_ref()) {
+                    Some(&code) => code,
+                    None => {
+                        cat_index[k].insert(v.to_string(), next);
+                        cats[k].levels.push(v.into_owned());
+                        next
+                    }
+                };
                 cats[k].codes.push(code);
             }
         }
-        if ids.is_empty() {
+        if treated.is_empty() {
             return Err(DataError::NoRows { path: table.path().to_path_buf() });
         }
         let n_treated = treated.iter().filter(|t| **t).count();
@@ -173,26 +238,35 @@ impl UnitTable {
                 value: if n_treated == 0 { "untreated".into() } else { "treated".into() },
             });
         }
-        Ok(UnitTable {
+        let units = UnitTable {
             ids,
             lines,
             treated,
-            outcomes: spec.outcomes.iter().cloned().zip(outs).collect(),
-            numeric: spec.numeric.iter().cloned().zip(nums).collect(),
+            outcomes: Vec::new(),
+            numeric: Vec::new(),
             categorical: cats,
             input: table.info(),
             dropped_rows: dropped,
-        })
+        };
+        Ok((units, kept))
     }
 
     /// Number of units.
     pub fn len(&self) -> usize {
-        self.ids.len()
+        self.treated.len()
     }
 
     /// Whether the table has no units.
     pub fn is_empty(&self) -> bool {
-        self.ids.is_empty()
+        self.treated.is_empty()
+    }
+
+    /// The name of unit `i`: its id, or "line N" when the table has no id column.
+    pub fn id(&self, i: usize) -> std::borrow::Cow<'_, str> {
+        match self.ids.get(i) {
+            Some(id) => std::borrow::Cow::Borrowed(id),
+            None => std::borrow::Cow::Owned(format!("line {}", self.lines[i])),
+        }
     }
 
     /// Number of treated units.
@@ -209,4 +283,27 @@ impl UnitTable {
     pub fn numeric(&self, name: &str) -> Option<&[f64]> {
         self.numeric.iter().find(|(n, _)| n == name).map(|(_, v)| v.as_slice())
     }
+}
+
+/// A checked numeric column's values over the kept rows.
+fn numbers(table: &RawTable, col: usize, kept: Option<&[bool]>) -> DataResult<Vec<f64>> {
+    let mut out = Vec::with_capacity(table.row_count());
+    for r in 0..table.row_count() {
+        if kept.is_none_or(|k| k[r]) {
+            out.push(table.parse_number(r, col)?.unwrap_or(f64::NAN));
+        }
+    }
+    Ok(out)
+}
+
+fn keep_rows(mut values: Vec<f64>, kept: Option<&[bool]>) -> Vec<f64> {
+    if let Some(k) = kept {
+        let mut i = 0;
+        values.retain(|_| {
+            let keep = k[i];
+            i += 1;
+            keep
+        });
+    }
+    values
 }

@@ -661,7 +661,9 @@ impl ValidParams {
         } else {
             cands[0].clone()
         };
+        let stage = aftercast_core::progress::stage(format!("fitting the {} model", chosen.name), None);
         let model = fit_model(chosen.kind, &prepared, &chosen.params, split.pre_end)?;
+        drop(stage);
         warnings.extend(model.warnings().iter().cloned());
         Ok(Fitted { model, prepared, split, params: chosen.params, warnings, control_breaks })
     }
@@ -1043,8 +1045,11 @@ pub fn analyse(
     }
     let (prepared, mut warnings, control_breaks) = prepare(series, &split, params, events)?;
     let models = candidates(params);
-    let backtest = (pp.backtest_folds > 0 || pp.model == ModelKind::Auto)
-        .then(|| run_backtest(&prepared, &split, params, &models));
+    let backtest = (pp.backtest_folds > 0 || pp.model == ModelKind::Auto).then(|| {
+        let _stage =
+            aftercast_core::progress::stage(format!("backtesting {} model(s) on the pre-period", models.len()), None);
+        run_backtest(&prepared, &split, params, &models)
+    });
     let chosen = match &backtest {
         Some(bt) if models.len() > 1 => choose(bt, &models, pp.model == ModelKind::Auto, &mut warnings),
         _ => models[0].clone(),

@@ -19,6 +19,11 @@ pub struct EventCalendar {
 }
 
 impl EventCalendar {
+    /// The columns a calendar file needs.
+    pub fn projection() -> aftercast_core::Projection {
+        aftercast_core::Projection::none().text("date").text("name")
+    }
+
     /// Read a calendar from a table with columns `date` and `name`.
     ///
     /// # Errors
@@ -28,11 +33,11 @@ impl EventCalendar {
         let ncol = table.column("name")?;
         let mut order: Vec<String> = Vec::new();
         let mut map: BTreeMap<String, Vec<TimePoint>> = BTreeMap::new();
-        for row in table.rows() {
-            let t = parse_time(&row.cells[dcol], &DateFormat::Iso, || table.at(row, dcol))?;
-            let name = row.cells[ncol].trim().to_string();
+        for r in 0..table.row_count() {
+            let t = parse_time(&table.text(r, dcol), &DateFormat::Iso, || table.at(r, dcol))?;
+            let name = table.text(r, ncol).trim().to_string();
             if name.is_empty() {
-                return Err(aftercast_core::error::DataError::MissingValue { at: table.at(row, ncol) }.into());
+                return Err(aftercast_core::error::DataError::MissingValue { at: table.at(r, ncol) }.into());
             }
             if !map.contains_key(&name) {
                 order.push(name.clone());
@@ -54,7 +59,7 @@ impl EventCalendar {
     /// # Errors
     /// As [`EventCalendar::from_table`], plus read errors.
     pub fn read(path: impl AsRef<std::path::Path>) -> ForecastResult<Self> {
-        Self::from_table(&RawTable::read(path)?)
+        Self::from_table(&RawTable::read_columns(path, &Self::projection())?)
     }
 
     /// One indicator per event over `axis`: 1 on the event's dates, 0 elsewhere. Dates off the

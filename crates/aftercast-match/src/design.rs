@@ -13,6 +13,7 @@
 //!
 //! `--squares age,educ` is shorthand for the terms `age^2,educ^2`; `--interact educ:re74` adds
 //! the product term.
+use rayon::prelude::*;
 
 use crate::error::{MatchError, MatchResult};
 use aftercast_core::units::UnitTable;
@@ -169,6 +170,87 @@ pub enum ColumnKind {
     Term,
 }
 
+/// Rows handled by one task when the design is filled and summed in parallel.
+const ROWS_PER_TASK: usize = 8192;
+
+/// Where a design column's values come from.
+enum Source<'a> {
+    Numeric(&'a [f64]),
+    Level(&'a [usize], usize),
+    Term(&'a Term, Vec<&'a [f64]>),
+}
+
+/// Work done over one column's values at given rows, with the source resolved once (not per
+/// value).
+trait OverValues {
+    type Out;
+    fn over(self, values: impl Iterator<Item = f64> + Clone) -> Self::Out;
+}
+
+impl Source<'_> {
+    fn over<O: OverValues>(&self, rows: &[usize], o: O) -> O::Out {
+        match self {
+            Source::Numeric(x) => o.over(rows.iter().map(|&i| x[i])),
+            Source::Level(codes, lv) => o.over(rows.iter().map(|&i| if codes[i] == *lv { 1.0 } else { 0.0 })),
+            Source::Term(t, src) => o.over(rows.iter().map(|&i| t.value(src, i))),
+        }
+    }
+
+    fn value(&self, i: usize) -> f64 {
+        match self {
+            Source::Numeric(x) => x[i],
+            Source::Level(codes, lv) => {
+                if codes[i] == *lv {
+                    1.0
+                } else {
+                    0.0
+                }
+            }
+            Source::Term(t, src) => t.value(src, i),
+        }
+    }
+}
+
+struct FirstNonFinite;
+
+impl OverValues for FirstNonFinite {
+    type Out = Option<usize>;
+    fn over(self, mut values: impl Iterator<Item = f64> + Clone) -> Option<usize> {
+        values.position(|v| !v.is_finite())
+    }
+}
+
+/// Mean and variance (n - 1 divisor), each a sum in row order.
+struct MeanVariance;
+
+impl OverValues for MeanVariance {
+    type Out = (f64, f64);
+    fn over(self, values: impl Iterator<Item = f64> + Clone) -> (f64, f64) {
+        let n = values.clone().count() as f64;
+        let m = values.clone().sum::<f64>() / n;
+        let v = values.map(|x| (x - m) * (x - m)).sum::<f64>() / (n - 1.0);
+        (m, v)
+    }
+}
+
+/// Standardised values into one column of a row-major block.
+struct Fill<'a> {
+    block: &'a mut [f64],
+    width: usize,
+    column: usize,
+    mean: f64,
+    sd: f64,
+}
+
+impl OverValues for Fill<'_> {
+    type Out = ();
+    fn over(self, values: impl Iterator<Item = f64> + Clone) {
+        for (row, v) in self.block.chunks_mut(self.width).zip(values) {
+            row[self.column] = (v - self.mean) / self.sd;
+        }
+    }
+}
+
 /// The specification of the propensity design.
 #[derive(Debug, Clone, Default, Serialize, Deserialize)]
 pub struct DesignSpec {
@@ -228,12 +310,14 @@ impl Design {
         };
         let mut names = Vec::new();
         let mut kinds = Vec::new();
-        let mut cols: Vec<Vec<f64>> = Vec::new();
+        // where each design column's values come from (read from the unit table's columns
+        // as needed, never copied whole)
+        let mut cols: Vec<Source> = Vec::new();
         for c in &spec.covariates {
             if let Some(x) = units.numeric(c) {
                 names.push(c.clone());
                 kinds.push(ColumnKind::Numeric);
-                cols.push(rows.iter().map(|&i| x[i]).collect());
+                cols.push(Source::Numeric(x));
             } else if let Some(cat) = units.categorical.iter().find(|k| &k.name == c) {
                 // one column per level: a covariate with about as many levels as units cannot
                 // be estimated and would make the propensity fit quadratically slow
@@ -252,7 +336,7 @@ impl Design {
                 for (lv, level) in cat.levels.iter().enumerate().skip(1) {
                     names.push(format!("{c}={level}"));
                     kinds.push(ColumnKind::Level);
-                    cols.push(rows.iter().map(|&i| if cat.codes[i] == lv { 1.0 } else { 0.0 }).collect());
+                    cols.push(Source::Level(&cat.codes, lv));
                 }
             } else {
                 return Err(MatchError::UnknownColumn { what: "covariate", name: c.clone(), available: available() });
@@ -281,7 +365,7 @@ impl Design {
             }
             names.push(label);
             kinds.push(ColumnKind::Term);
-            cols.push(rows.iter().map(|&i| t.value(&src, i)).collect());
+            cols.push(Source::Term(t, src));
         }
         let n = rows.len();
         if n < 2 {
@@ -290,36 +374,46 @@ impl Design {
         let p = names.len();
         let mut mean = vec![0.0; p];
         let mut sd = vec![0.0; p];
-        for j in 0..p {
-            let c = &cols[j];
-            for (r, &v) in c.iter().enumerate() {
-                if !v.is_finite() {
+        // columns in parallel, each checked and summed in row order
+        let moments: Vec<MatchResult<(f64, f64)>> = (0..p)
+            .into_par_iter()
+            .map(|j| {
+                let c = &cols[j];
+                if let Some(r) = c.over(rows, FirstNonFinite) {
                     let i = rows[r];
                     return Err(MatchError::NonFinite {
                         name: names[j].clone(),
-                        unit: units.ids[i].clone(),
+                        unit: units.id(i).into_owned(),
                         line: units.lines[i],
-                        value: v,
+                        value: c.value(i),
                     });
                 }
-            }
-            let m = c.iter().sum::<f64>() / n as f64;
-            let v = c.iter().map(|x| (x - m) * (x - m)).sum::<f64>() / (n as f64 - 1.0);
-            let s = v.sqrt();
-            if s.is_nan() || s <= 1e-12 * m.abs().max(1.0) {
-                return Err(MatchError::ConstantColumn { name: names[j].clone(), value: c[0], units: n });
-            }
-            mean[j] = m;
-            sd[j] = s;
+                let (m, v) = c.over(rows, MeanVariance);
+                let s = v.sqrt();
+                if s.is_nan() || s <= 1e-12 * m.abs().max(1.0) {
+                    return Err(MatchError::ConstantColumn {
+                        name: names[j].clone(),
+                        value: c.value(rows[0]),
+                        units: n,
+                    });
+                }
+                Ok((m, s))
+            })
+            .collect();
+        for (j, ms) in moments.into_iter().enumerate() {
+            (mean[j], sd[j]) = ms?;
         }
         let k = p + 1;
         let mut z = vec![0.0; n * k];
-        for r in 0..n {
-            z[r * k] = 1.0;
-            for j in 0..p {
-                z[r * k + j + 1] = (cols[j][r] - mean[j]) / sd[j];
+        z.par_chunks_mut(k * ROWS_PER_TASK).enumerate().for_each(|(b, block)| {
+            let at = &rows[b * ROWS_PER_TASK..(b * ROWS_PER_TASK + block.len() / k)];
+            for row in block.chunks_mut(k) {
+                row[0] = 1.0;
             }
-        }
+            for j in 0..p {
+                cols[j].over(at, Fill { block: &mut *block, width: k, column: j + 1, mean: mean[j], sd: sd[j] });
+            }
+        });
         let design = Design { names, kinds, mean, sd, n, z };
         design.check_collinear()?;
         Ok(design)
@@ -329,15 +423,29 @@ impl Design {
     /// vanishes is (numerically) a combination of the earlier ones.
     fn check_collinear(&self) -> MatchResult<()> {
         let p = self.names.len();
-        let mut c = vec![0.0; p * p];
         let k = self.width();
-        for r in 0..self.n {
-            let row = &self.z[r * k + 1..(r + 1) * k];
-            for a in 0..p {
-                let va = row[a];
-                for b in 0..=a {
-                    c[a * p + b] += va * row[b];
+        // cross products over fixed blocks of rows, added in block order (any thread count)
+        let parts: Vec<Vec<f64>> = self
+            .z
+            .par_chunks(k * ROWS_PER_TASK)
+            .map(|block| {
+                let mut c = vec![0.0; p * p];
+                for r in block.chunks(k) {
+                    let row = &r[1..];
+                    for a in 0..p {
+                        let va = row[a];
+                        for b in 0..=a {
+                            c[a * p + b] += va * row[b];
+                        }
+                    }
                 }
+                c
+            })
+            .collect();
+        let mut c = vec![0.0; p * p];
+        for part in parts {
+            for (x, y) in c.iter_mut().zip(part) {
+                *x += y;
             }
         }
         let denom = self.n as f64 - 1.0;

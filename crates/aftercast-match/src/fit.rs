@@ -14,8 +14,20 @@ use aftercast_core::result::{EffectDraws, SampleCounts};
 use aftercast_core::units::UnitTable;
 use aftercast_resample::rng::{child_seed, par_draws};
 use aftercast_resample::summary::quantile_sorted;
+use nalgebra::DVector;
 use rand_distr::{Distribution, StandardNormal};
 use serde::{Deserialize, Serialize};
+use std::borrow::Cow;
+
+/// Newton's stopping step for the bootstrap re-fits of the propensity model (the full-sample
+/// fit keeps 1e-9). Newton converges quadratically, so stopping at a step below 1e-6 leaves the
+/// coefficients about (1e-6)^2 = 1e-12 from where the next step would take them: far below
+/// anything a replicate's estimate can show, and it saves one pass over the data per replicate.
+const REFIT_TOL: f64 = 1e-6;
+
+/// One bootstrap replicate of a weighting method: (effect, baseline) when defined, the
+/// propensity coefficients of its re-fit, and whether the re-fit converged.
+type Replicate = (Option<(f64, f64)>, DVector<f64>, bool);
 
 /// Unit counts of an analysis.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -131,6 +143,7 @@ fn fit_propensity(
 ) -> MatchResult<Propensity> {
     let p = params.params();
     let opts = LogitOptions { penalty: p.penalty, ..LogitOptions::default() };
+    let _stage = aftercast_core::progress::stage(format!("fitting the propensity model ({} units)", design.n), None);
     let single = logit::single_column_separation(design, y);
     let mut fit = logit::fit(design, y, None, &opts, None);
     let eta = logit::linear_predictor(design, &fit.beta);
@@ -170,7 +183,8 @@ fn fit_propensity(
     if !fit.converged {
         return Err(MatchError::NotConverged { iterations: fit.iterations, last_step: fit.last_step });
     }
-    let eta = logit::linear_predictor(design, &fit.beta);
+    // the scores of the fit kept (computed again only after a penalised re-fit)
+    let eta = if separated { logit::linear_predictor(design, &fit.beta) } else { eta };
     let report = PropensityReport::new(design, &fit, separated, extreme(&eta));
     Ok(Propensity { fit, report, eta })
 }
@@ -192,20 +206,19 @@ impl ValidParams {
     pub fn fit(&self, units: &UnitTable, outcome: &str) -> MatchResult<Fitted> {
         let p = self.params();
         let mut warnings = Vec::new();
-        let col = |name: &str, what: &'static str| -> MatchResult<Vec<f64>> {
-            units.outcome(name).or_else(|| units.numeric(name)).map(|v| v.to_vec()).ok_or_else(|| {
-                MatchError::UnknownColumn {
-                    what,
-                    name: name.into(),
-                    available: units.outcomes.iter().chain(units.numeric.iter()).map(|(n, _)| n.clone()).collect(),
-                }
+        // columns are borrowed from the unit table; a copy is made only where rows are dropped
+        let col = |name: &str, what: &'static str| -> MatchResult<&[f64]> {
+            units.outcome(name).or_else(|| units.numeric(name)).ok_or_else(|| MatchError::UnknownColumn {
+                what,
+                name: name.into(),
+                available: units.outcomes.iter().chain(units.numeric.iter()).map(|(n, _)| n.clone()).collect(),
             })
         };
         let y_post = col(outcome, "outcome")?;
         let y_pre = p.pre_outcome.as_deref().map(|c| col(c, "pre-period outcome")).transpose()?;
-        let y_all: Vec<f64> = match &y_pre {
-            Some(pre) => y_post.iter().zip(pre).map(|(a, b)| a - b).collect(),
-            None => y_post.clone(),
+        let y_all: Cow<[f64]> = match &y_pre {
+            Some(pre) => Cow::Owned(y_post.iter().zip(pre.iter()).map(|(a, b)| a - b).collect()),
+            None => Cow::Borrowed(y_post),
         };
         let exact_cols: Vec<&aftercast_core::units::Categorical> = p
             .exact
@@ -314,10 +327,13 @@ impl ValidParams {
             trim_report = Some(TrimReport { rule: p.trim, limits });
         }
         let n = rows.len();
-        let y: Vec<f64> = rows.iter().map(|&i| y_all[i]).collect();
-        let ypost: Vec<f64> = rows.iter().map(|&i| y_post[i]).collect();
-        let eta = ps.eta.clone();
-        let e: Vec<f64> = eta.iter().map(|&v| logit::prob(v)).collect();
+        let trimmed = n < n_all;
+        let pick = |v: &[f64]| rows.iter().map(|&i| v[i]).collect::<Vec<f64>>();
+        let y: Cow<[f64]> = if trimmed { Cow::Owned(pick(&y_all)) } else { Cow::Borrowed(&y_all) };
+        let ypost: Cow<[f64]> = if trimmed { Cow::Owned(pick(y_post)) } else { Cow::Borrowed(y_post) };
+        let eta: &[f64] = &ps.eta;
+        let e: Cow<[f64]> =
+            if trimmed { Cow::Owned(eta.iter().map(|&v| logit::prob(v)).collect()) } else { Cow::Borrowed(&e_all) };
         let n1 = tr.iter().filter(|t| **t).count();
 
         let estimand = match (p.method, p.estimand) {
@@ -362,10 +378,10 @@ impl ValidParams {
                 let maha = inv.as_ref().map(|m| (&design, m));
                 let treated_idx: Vec<usize> = (0..n).filter(|&i| tr[i]).collect();
                 let control_idx: Vec<usize> = (0..n).filter(|&i| !tr[i]).collect();
-                let to_c = nearest::match_units(&eta, &treated_idx, &control_idx, keys.as_deref(), &rule, maha);
-                let to_t = (!att)
-                    .then(|| nearest::match_units(&eta, &control_idx, &treated_idx, keys.as_deref(), &rule, maha));
-                let sigma2 = nearest::conditional_variances(&eta, &tr, &y, p.variance_neighbours);
+                let to_c = nearest::match_units(eta, &treated_idx, &control_idx, keys.as_deref(), &rule, maha);
+                let to_t =
+                    (!att).then(|| nearest::match_units(eta, &control_idx, &treated_idx, keys.as_deref(), &rule, maha));
+                let sigma2 = nearest::conditional_variances(eta, &tr, &y, p.variance_neighbours);
                 let est = nearest::estimate(&y, &tr, &to_c, to_t.as_ref(), &sigma2, p.bias_adjust.then_some(&design))
                     .ok_or(MatchError::NoMatches { caliper: cal.unwrap_or(f64::INFINITY) })?;
                 if att && est.focal_matched == 0 {
@@ -422,6 +438,22 @@ impl ValidParams {
                     _ => Weighting::Aipw,
                 };
                 let ones = vec![1.0; n];
+                // one replicate's effect and baseline from its weights
+                let replicate = |r: &weighting::WeightedEstimate, omega: &[f64]| {
+                    let base = if att {
+                        let (mut sy, mut sw) = (0.0, 0.0);
+                        for i in 0..n {
+                            if tr[i] {
+                                sy += omega[i] * ypost[i];
+                                sw += omega[i];
+                            }
+                        }
+                        sy / sw - r.effect
+                    } else {
+                        r.baseline
+                    };
+                    (r.effect, base)
+                };
                 let point = weighting::evaluate(wm, att, &y, &tr, &e, &ones, &design)
                     .ok_or_else(|| MatchError::NoOverlap { detail: "a group receives no weight".into() })?;
                 estimate = point.effect;
@@ -440,27 +472,30 @@ impl ValidParams {
                 }
                 let penalty = ps.fit.penalty;
                 let start = ps.fit.beta.clone();
-                let reps: Vec<Option<(f64, f64, bool)>> = par_draws(draws_seed, p.inference.draws, |_, s| {
+                let key = refits::key(&design, &tr, penalty, &start, draws_seed, p.inference.draws);
+                let known = refits::lookup(key);
+                let reps: Vec<Replicate> = par_draws(draws_seed, p.inference.draws, |d, s| {
                     let omega: Vec<f64> = (0..n).map(|_| s.exp1()).collect();
-                    let opts = LogitOptions { penalty, parallel: false, ..LogitOptions::default() };
-                    let f = logit::fit(&design, &tr, Some(&omega), &opts, Some(&start));
-                    let er: Vec<f64> =
-                        logit::linear_predictor(&design, &f.beta).iter().map(|&v| logit::prob(v)).collect();
-                    let r = weighting::evaluate(wm, att, &y, &tr, &er, &omega, &design)?;
-                    let base = if att {
-                        let (mut sy, mut sw) = (0.0, 0.0);
-                        for i in 0..n {
-                            if tr[i] {
-                                sy += omega[i] * ypost[i];
-                                sw += omega[i];
-                            }
+                    let (beta, converged) = match &known {
+                        Some(k) => k[d].clone(),
+                        None => {
+                            let opts =
+                                LogitOptions { penalty, parallel: false, tol: REFIT_TOL, ..LogitOptions::default() };
+                            let f = logit::fit(&design, &tr, Some(&omega), &opts, Some(&start));
+                            (f.beta, f.converged)
                         }
-                        sy / sw - r.effect
-                    } else {
-                        r.baseline
                     };
-                    Some((r.effect, base, f.converged))
+                    let er: Vec<f64> =
+                        logit::linear_predictor(&design, &beta).iter().map(|&v| logit::prob(v)).collect();
+                    let r = weighting::evaluate(wm, att, &y, &tr, &er, &omega, &design);
+                    (r.map(|r| replicate(&r, &omega)), beta, converged)
                 });
+                if known.is_none() {
+                    refits::store(key, reps.iter().map(|(_, b, c)| (b.clone(), *c)).collect());
+                }
+                let reps: Vec<Option<(f64, f64, bool)>> =
+                    reps.into_iter().map(|(r, _, c)| r.map(|(e, b)| (e, b, c))).collect();
+
                 let undefined = reps.iter().filter(|r| r.is_none()).count();
                 let ok: Vec<(f64, f64, bool)> = reps.into_iter().flatten().collect();
                 if ok.len() < 10 {
@@ -564,7 +599,7 @@ impl Fitted {
     /// Equal-tailed interval of the draws at `level`.
     pub fn interval(&self, level: f64) -> (f64, f64) {
         let mut s = self.draws.clone();
-        s.sort_by(f64::total_cmp);
+        s.sort_unstable_by(f64::total_cmp);
         let tail = (1.0 - level) / 2.0;
         (quantile_sorted(&s, tail), quantile_sorted(&s, 1.0 - tail))
     }
@@ -575,7 +610,7 @@ impl Fitted {
         match (&self.baseline_draws, self.binary_outcome) {
             (Some(b), true) => {
                 let mut rr: Vec<f64> = self.draws.iter().zip(b).map(|(d, b)| (b + d) / b).collect();
-                rr.sort_by(f64::total_cmp);
+                rr.sort_unstable_by(f64::total_cmp);
                 let tail = (1.0 - level) / 2.0;
                 let bmean = b.iter().sum::<f64>() / b.len() as f64;
                 sensitivity::evalue_binary(
@@ -701,4 +736,54 @@ pub fn run(
     let fitted = params.check()?.fit(units, outcome)?;
     let est = fitted.estimate(level);
     Ok((fitted, est))
+}
+
+/// Bootstrap re-fits of the propensity model, kept for the other analyses of this process that
+/// fit the same model to the same units with the same replicate weights (ipw and aipw of one
+/// study; the weighting methods of a comparison, which share their replicate weights). Each
+/// replicate's coefficients are exactly what the re-fit would give again, so reusing them
+/// changes no number; it only saves the work.
+mod refits {
+    use crate::design::Design;
+    use nalgebra::DVector;
+    use std::collections::hash_map::DefaultHasher;
+    use std::hash::{Hash, Hasher};
+    use std::sync::{Arc, Mutex};
+
+    type Refits = Arc<Vec<(DVector<f64>, bool)>>;
+
+    /// Sets kept (a study runs a few weighting analyses; each set is small: draws x columns).
+    const KEPT: usize = 4;
+
+    static KNOWN: Mutex<Vec<(u64, Refits)>> = Mutex::new(Vec::new());
+
+    /// A fingerprint of everything a set of re-fits depends on.
+    pub(super) fn key(
+        design: &Design,
+        tr: &[bool],
+        penalty: f64,
+        start: &DVector<f64>,
+        seed: u64,
+        draws: usize,
+    ) -> u64 {
+        let mut h = DefaultHasher::new();
+        (design.n, design.width(), seed, draws, penalty.to_bits()).hash(&mut h);
+        design.z.iter().for_each(|v| v.to_bits().hash(&mut h));
+        tr.hash(&mut h);
+        start.iter().for_each(|v| v.to_bits().hash(&mut h));
+        h.finish()
+    }
+
+    pub(super) fn lookup(key: u64) -> Option<Refits> {
+        let known = KNOWN.lock().unwrap_or_else(|e| e.into_inner());
+        known.iter().find(|(k, _)| *k == key).map(|(_, r)| r.clone())
+    }
+
+    pub(super) fn store(key: u64, refits: Vec<(DVector<f64>, bool)>) {
+        let mut known = KNOWN.lock().unwrap_or_else(|e| e.into_inner());
+        if known.len() >= KEPT {
+            known.remove(0);
+        }
+        known.push((key, Arc::new(refits)));
+    }
 }

@@ -9,27 +9,9 @@ use nalgebra::{DMatrix, DVector};
 /// largest diagonal entry) keeps the solve defined when a column is constant within the subset.
 pub fn wls(design: &Design, rows: &[usize], y: &[f64], w: &[f64]) -> DVector<f64> {
     let k = design.width();
-    let mut xtx = DMatrix::<f64>::zeros(k, k);
-    let mut xty = DVector::<f64>::zeros(k);
-    for (r, &i) in rows.iter().enumerate() {
-        let wi = w[r];
-        if wi == 0.0 {
-            continue;
-        }
-        let row = design.row(i);
-        for a in 0..k {
-            let va = wi * row[a];
-            xty[a] += va * y[r];
-            for b in 0..=a {
-                xtx[(a, b)] += va * row[b];
-            }
-        }
-    }
-    for a in 0..k {
-        for b in 0..a {
-            xtx[(b, a)] = xtx[(a, b)];
-        }
-    }
+    let (lower, xty) = cross_products(k, rows.len(), |r| design.row(rows[r]), y, w);
+    let xty = DVector::from_vec(xty);
+    let mut xtx = DMatrix::<f64>::from_fn(k, k, |a, b| if b <= a { lower[a * k + b] } else { lower[b * k + a] });
     let scale = (0..k).map(|a| xtx[(a, a)]).fold(0.0, f64::max).max(1e-300);
     for a in 0..k {
         xtx[(a, a)] += 1e-8 * scale;
@@ -38,6 +20,76 @@ pub fn wls(design: &Design, rows: &[usize], y: &[f64], w: &[f64]) -> DVector<f64
         Some(c) => c.solve(&xty),
         None => xtx.lu().solve(&xty).unwrap_or_else(|| DVector::zeros(k)),
     }
+}
+
+/// Weighted cross products `X'WX` (lower triangle, row-major, `p * p`) and `X'Wy` over `n`
+/// rows given by `row(r)` (width `p`), weights `w[r]` (rows of weight 0 skipped). Every entry
+/// is summed over the rows in order; common widths use a kernel of fixed width, which the
+/// compiler unrolls (the same sums, so the same numbers).
+pub fn cross_products<'a>(
+    p: usize,
+    n: usize,
+    row: impl Fn(usize) -> &'a [f64],
+    y: &[f64],
+    w: &[f64],
+) -> (Vec<f64>, Vec<f64>) {
+    macro_rules! fixed {
+        ($($k:literal)*) => {
+            match p {
+                $($k => return cross_fixed::<$k>(n, row, y, w),)*
+                _ => {}
+            }
+        };
+    }
+    fixed!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16 17 18 19 20 21 22 23 24);
+    let mut lower = vec![0.0; p * p];
+    let mut xty = vec![0.0; p];
+    for r in 0..n {
+        let wi = w[r];
+        if wi == 0.0 {
+            continue;
+        }
+        let x = row(r);
+        for a in 0..p {
+            let va = wi * x[a];
+            xty[a] += va * y[r];
+            for (h, xb) in lower[a * p..a * p + a + 1].iter_mut().zip(&x[..=a]) {
+                *h += va * xb;
+            }
+        }
+    }
+    (lower, xty)
+}
+
+fn cross_fixed<'a, const K: usize>(
+    n: usize,
+    row: impl Fn(usize) -> &'a [f64],
+    y: &[f64],
+    w: &[f64],
+) -> (Vec<f64>, Vec<f64>) {
+    // the whole square is updated (it vectorises); only the lower triangle is returned
+    let mut h = [[0.0f64; K]; K];
+    let mut xty = [0.0f64; K];
+    for r in 0..n {
+        let wi = w[r];
+        if wi == 0.0 {
+            continue;
+        }
+        let mut x = [0.0f64; K];
+        x.copy_from_slice(row(r));
+        for a in 0..K {
+            let va = wi * x[a];
+            xty[a] += va * y[r];
+            for (hb, xb) in h[a].iter_mut().zip(&x) {
+                *hb += va * xb;
+            }
+        }
+    }
+    let mut lower = vec![0.0; K * K];
+    for a in 0..K {
+        lower[a * K..a * K + a + 1].copy_from_slice(&h[a][..=a]);
+    }
+    (lower, xty.to_vec())
 }
 
 /// Prediction of a linear model at design row `i`.

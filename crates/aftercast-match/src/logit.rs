@@ -53,6 +53,16 @@ fn sigmoid(eta: f64) -> f64 {
     }
 }
 
+/// The probability and log(1 + exp(eta)) from one exponential, exp(-|eta|); the same values as
+/// computing each on its own with its own exponential.
+#[inline]
+fn sigmoid_softplus(eta: f64) -> (f64, f64) {
+    let e = (-eta.abs()).exp();
+    let p = if eta >= 0.0 { 1.0 / (1.0 + e) } else { e / (1.0 + e) };
+    let sp = if eta > 0.0 { eta + e.ln_1p() } else { e.ln_1p() };
+    (p, sp)
+}
+
 /// log(1 + exp(x)), stable.
 #[inline]
 fn softplus(x: f64) -> f64 {
@@ -67,10 +77,33 @@ struct Acc {
     ll: f64,
 }
 
-fn accumulate(design: &Design, y: &[bool], w: Option<&[f64]>, beta: &[f64], lo: usize, hi: usize) -> Acc {
+/// Log-likelihood, gradient and (lower triangle of the) information over rows `lo..hi`; with
+/// `ll_only` the gradient and information are left at zero.
+#[allow(clippy::too_many_arguments)]
+fn accumulate(
+    design: &Design,
+    y: &[bool],
+    w: Option<&[f64]>,
+    beta: &[f64],
+    lo: usize,
+    hi: usize,
+    ll_only: bool,
+) -> Acc {
     let k = design.width();
-    let mut h = vec![0.0; k * k];
-    let mut g = vec![0.0; k];
+    if !ll_only {
+        // widths seen in practice get a kernel of fixed width, which the compiler unrolls
+        macro_rules! fixed {
+            ($($n:literal)*) => {
+                match k {
+                    $($n => return accumulate_fixed::<$n>(design, y, w, beta, lo, hi),)*
+                    _ => {}
+                }
+            };
+        }
+        fixed!(2 3 4 5 6 7 8 9 10 11 12 13 14 15 16 17 18 19 20 21 22 23 24);
+    }
+    let mut h = vec![0.0; if ll_only { 0 } else { k * k }];
+    let mut g = vec![0.0; if ll_only { 0 } else { k }];
     let mut ll = 0.0;
     for i in lo..hi {
         let row = design.row(i);
@@ -79,34 +112,80 @@ fn accumulate(design: &Design, y: &[bool], w: Option<&[f64]>, beta: &[f64], lo: 
             continue;
         }
         let eta: f64 = row.iter().zip(beta).map(|(a, b)| a * b).sum();
-        let p = sigmoid(eta);
+        let (p, sp) = sigmoid_softplus(eta);
         let yi = if y[i] { 1.0 } else { 0.0 };
-        ll += wi * (yi * eta - softplus(eta));
+        ll += wi * (yi * eta - sp);
+        if ll_only {
+            continue;
+        }
         let r = wi * (yi - p);
         let v = wi * p * (1.0 - p);
         for a in 0..k {
             g[a] += r * row[a];
             let va = v * row[a];
             let ha = &mut h[a * k..a * k + a + 1];
-            for (b, hb) in ha.iter_mut().enumerate() {
-                *hb += va * row[b];
+            for (hb, rb) in ha.iter_mut().zip(&row[..=a]) {
+                *hb += va * rb;
             }
         }
     }
     Acc { h, g, ll }
 }
 
+/// [`accumulate`] for a design of width `K`: the same sums in the same order for every entry of
+/// the lower triangle (the whole square is updated, which vectorises; only the lower triangle
+/// is read).
+fn accumulate_fixed<const K: usize>(
+    design: &Design,
+    y: &[bool],
+    w: Option<&[f64]>,
+    beta: &[f64],
+    lo: usize,
+    hi: usize,
+) -> Acc {
+    let mut h = [[0.0f64; K]; K];
+    let mut g = [0.0f64; K];
+    let mut ll = 0.0;
+    let mut b = [0.0f64; K];
+    b.copy_from_slice(beta);
+    for (i, row) in design.z[lo * K..hi * K].chunks_exact(K).enumerate().map(|(q, r)| (lo + q, r)) {
+        let wi = w.map_or(1.0, |w| w[i]);
+        if wi == 0.0 {
+            continue;
+        }
+        let mut x = [0.0f64; K];
+        x.copy_from_slice(row);
+        let eta: f64 = x.iter().zip(&b).map(|(a, c)| a * c).sum();
+        let (p, sp) = sigmoid_softplus(eta);
+        let yi = if y[i] { 1.0 } else { 0.0 };
+        ll += wi * (yi * eta - sp);
+        let r = wi * (yi - p);
+        let v = wi * p * (1.0 - p);
+        for a in 0..K {
+            g[a] += r * x[a];
+            let va = v * x[a];
+            for (hb, xb) in h[a].iter_mut().zip(&x) {
+                *hb += va * xb;
+            }
+        }
+    }
+    Acc { h: h.iter().flatten().copied().collect(), g: g.to_vec(), ll }
+}
+
 fn gradient_hessian(design: &Design, y: &[bool], w: Option<&[f64]>, beta: &[f64], parallel: bool) -> Acc {
+    chunked(design, y, w, beta, parallel, false)
+}
+
+/// Sums over fixed chunks of rows, added in chunk order (the same for any number of threads).
+fn chunked(design: &Design, y: &[bool], w: Option<&[f64]>, beta: &[f64], parallel: bool, ll_only: bool) -> Acc {
     let n = design.n;
-    let k = design.width();
+    let k = if ll_only { 0 } else { design.width() };
     let nchunks = n.div_ceil(CHUNK);
+    let part = |c: usize| accumulate(design, y, w, beta, c * CHUNK, ((c + 1) * CHUNK).min(n), ll_only);
     let parts: Vec<Acc> = if parallel && nchunks > 1 {
-        (0..nchunks)
-            .into_par_iter()
-            .map(|c| accumulate(design, y, w, beta, c * CHUNK, ((c + 1) * CHUNK).min(n)))
-            .collect()
+        (0..nchunks).into_par_iter().map(part).collect()
     } else {
-        (0..nchunks).map(|c| accumulate(design, y, w, beta, c * CHUNK, ((c + 1) * CHUNK).min(n))).collect()
+        (0..nchunks).map(part).collect()
     };
     let mut total = Acc { h: vec![0.0; k * k], g: vec![0.0; k], ll: 0.0 };
     for p in parts {
@@ -200,7 +279,10 @@ pub fn fit(
         let mut accepted = false;
         for _ in 0..30 {
             let cand = &beta + &step * t;
-            let a2 = gradient_hessian(design, y, w, cand.as_slice(), opts.parallel);
+            // a step below the tolerance ends the fit when accepted: only the log-likelihood
+            // is needed there (summed in the same chunks, so it is the same number)
+            let last = (&step * t).amax() < opts.tol;
+            let a2 = chunked(design, y, w, cand.as_slice(), opts.parallel, last);
             let o2 = a2.ll - pen(&cand);
             if o2.is_finite() && o2 >= obj - 1e-12 * obj.abs().max(1.0) {
                 last_step = (&step * t).amax();
@@ -278,7 +360,13 @@ impl PropensityReport {
 /// Linear predictor (logit of the propensity) of every unit.
 pub fn linear_predictor(design: &Design, beta: &DVector<f64>) -> Vec<f64> {
     let b = beta.as_slice();
-    (0..design.n).map(|i| design.row(i).iter().zip(b).map(|(a, c)| a * c).sum()).collect()
+    let one = |i: usize| -> f64 { design.row(i).iter().zip(b).map(|(a, c)| a * c).sum() };
+    // in parallel only where it pays (bootstrap replicates already run one per thread)
+    if design.n >= 8 * CHUNK {
+        (0..design.n).into_par_iter().with_min_len(CHUNK).map(one).collect()
+    } else {
+        (0..design.n).map(one).collect()
+    }
 }
 
 /// The probability from a logit.
@@ -290,19 +378,45 @@ pub fn prob(eta: f64) -> f64 {
 /// occurs in only one group, or a column whose treated and control ranges do not overlap.
 /// Returns the column name and what was seen.
 pub fn single_column_separation(design: &Design, y: &[bool]) -> Option<(String, String)> {
-    for (j, name) in design.names.iter().enumerate() {
-        let (mut tmin, mut tmax, mut cmin, mut cmax) =
-            (f64::INFINITY, f64::NEG_INFINITY, f64::INFINITY, f64::NEG_INFINITY);
-        for (i, &yi) in y.iter().enumerate().take(design.n) {
-            let v = design.at(i, j);
-            if yi {
-                tmin = tmin.min(v);
-                tmax = tmax.max(v);
-            } else {
-                cmin = cmin.min(v);
-                cmax = cmax.max(v);
-            }
+    let ranges = group_ranges(design, y);
+    (0..design.names.len()).find_map(|j| column_separation(design, y, j, ranges[j]))
+}
+
+/// Smallest and largest standardised value of each column among the treated and the controls
+/// (`[tmin, tmax, cmin, cmax]`), in one parallel pass over the rows (minima and maxima do not
+/// depend on the order they are taken in).
+fn group_ranges(design: &Design, y: &[bool]) -> Vec<[f64; 4]> {
+    let p = design.names.len();
+    let k = design.width();
+    let empty = vec![[f64::INFINITY, f64::NEG_INFINITY, f64::INFINITY, f64::NEG_INFINITY]; p];
+    let merge = |mut a: Vec<[f64; 4]>, b: Vec<[f64; 4]>| {
+        for (x, y) in a.iter_mut().zip(b) {
+            *x = [x[0].min(y[0]), x[1].max(y[1]), x[2].min(y[2]), x[3].max(y[3])];
         }
+        a
+    };
+    design
+        .z
+        .par_chunks(k * CHUNK)
+        .enumerate()
+        .map(|(b, block)| {
+            let mut r = empty.clone();
+            for (q, row) in block.chunks(k).enumerate() {
+                let (lo, hi) = if y[b * CHUNK + q] { (0, 1) } else { (2, 3) };
+                for (m, &v) in r.iter_mut().zip(&row[1..]) {
+                    m[lo] = m[lo].min(v);
+                    m[hi] = m[hi].max(v);
+                }
+            }
+            r
+        })
+        .reduce(|| empty.clone(), merge)
+}
+
+fn column_separation(design: &Design, y: &[bool], j: usize, range: [f64; 4]) -> Option<(String, String)> {
+    let name = &design.names[j];
+    {
+        let [tmin, tmax, cmin, cmax] = range;
         let raw = |v: f64| v * design.sd[j] + design.mean[j];
         if tmax < cmin || cmax < tmin {
             return Some((

@@ -10,6 +10,7 @@
 use crate::design::Design;
 use crate::linear;
 use nalgebra::{DMatrix, DVector};
+use rayon::prelude::*;
 use std::collections::{BTreeMap, BTreeSet};
 
 /// How to match.
@@ -83,12 +84,11 @@ pub fn match_units(
     }
     let mut matched = vec![Vec::new(); focal.len()];
     let cal = rule.caliper.unwrap_or(f64::INFINITY);
-    for (_, (fr, mut pl)) in groups {
+    for (_, (fr, pl)) in groups {
         if fr.is_empty() || pl.is_empty() {
             continue;
         }
-        pl.sort_by(|&a, &b| score[a].total_cmp(&score[b]).then(a.cmp(&b)));
-        let ps: Vec<f64> = pl.iter().map(|&j| score[j]).collect();
+        let (pl, ps) = sorted_by_score(score, pl);
         if rule.replace {
             for &r in &fr {
                 let i = focal[r];
@@ -98,8 +98,10 @@ pub fn match_units(
                     let hi = ps.partition_point(|&v| v <= s + cal);
                     let mut cand: Vec<(f64, usize)> =
                         (lo..hi).map(|q| (mahalanobis(design, inv, i, pl[q]), pl[q])).collect();
-                    cand.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
-                    cand.into_iter().take(rule.k).map(|c| c.1).collect()
+                    cand.sort_unstable_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+                    // collected by reference: an in-place collect would keep the whole
+                    // candidate list's allocation alive behind the k matches
+                    cand.iter().take(rule.k).map(|c| c.1).collect()
                 } else {
                     let pos = ps.partition_point(|&v| v < s);
                     let (mut l, mut h) = (pos, pos);
@@ -123,7 +125,7 @@ pub fn match_units(
             }
         } else {
             let mut order = fr.clone();
-            order.sort_by(|&a, &b| score[focal[b]].total_cmp(&score[focal[a]]).then(a.cmp(&b)));
+            order.par_sort_unstable_by(|&a, &b| score[focal[b]].total_cmp(&score[focal[a]]).then(a.cmp(&b)));
             let mut avail: BTreeSet<usize> = (0..pl.len()).collect();
             for r in order {
                 if avail.is_empty() {
@@ -137,7 +139,7 @@ pub fn match_units(
                     let hi = ps.partition_point(|&v| v <= s + cal);
                     let mut cand: Vec<(f64, usize)> =
                         avail.range(lo..hi).map(|&q| (mahalanobis(design, inv, i, pl[q]), q)).collect();
-                    cand.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+                    cand.sort_unstable_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
                     for (_, q) in cand.into_iter().take(rule.k) {
                         avail.remove(&q);
                         out.push(pl[q]);
@@ -173,33 +175,44 @@ pub fn conditional_variances(score: &[f64], treated: &[bool], y: &[f64], j: usiz
     let n = score.len();
     let mut out = vec![0.0; n];
     for grp in [true, false] {
-        let mut idx: Vec<usize> = (0..n).filter(|&i| treated[i] == grp).collect();
+        let idx: Vec<usize> = (0..n).filter(|&i| treated[i] == grp).collect();
         if idx.len() < 2 {
             continue;
         }
-        idx.sort_by(|&a, &b| score[a].total_cmp(&score[b]).then(a.cmp(&b)));
+        let (idx, ps) = sorted_by_score(score, idx);
+        // outcomes in score order: the neighbour search below then reads memory in sequence
+        let ys: Vec<f64> = idx.iter().map(|&i| y[i]).collect();
         let jj = j.min(idx.len() - 1);
         for q in 0..idx.len() {
-            let s = score[idx[q]];
+            let s = ps[q];
             let (mut l, mut h) = (q, q + 1);
             let mut sum = 0.0;
             for _ in 0..jj {
-                let dl = if l > 0 { s - score[idx[l - 1]] } else { f64::INFINITY };
-                let dh = if h < idx.len() { score[idx[h]] - s } else { f64::INFINITY };
+                let dl = if l > 0 { s - ps[l - 1] } else { f64::INFINITY };
+                let dh = if h < idx.len() { ps[h] - s } else { f64::INFINITY };
                 if dl <= dh {
                     l -= 1;
-                    sum += y[idx[l]];
+                    sum += ys[l];
                 } else {
-                    sum += y[idx[h]];
+                    sum += ys[h];
                     h += 1;
                 }
             }
             let m = sum / jj as f64;
-            let e = y[idx[q]] - m;
+            let e = ys[q] - m;
             out[idx[q]] = jj as f64 / (jj as f64 + 1.0) * e * e;
         }
     }
     out
+}
+
+/// Units in ascending order of score (ties by unit index, a total order, so the parallel
+/// unstable sort has one answer), with their scores: sorting (score, unit) pairs keeps the keys
+/// next to each other in memory.
+fn sorted_by_score(score: &[f64], units: Vec<usize>) -> (Vec<usize>, Vec<f64>) {
+    let mut pairs: Vec<(f64, usize)> = units.into_iter().map(|i| (score[i], i)).collect();
+    pairs.par_sort_unstable_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+    pairs.into_iter().map(|(s, i)| (i, s)).unzip()
 }
 
 /// Bias-correction regressions: (control model, treated model).

@@ -120,7 +120,7 @@ fn group_means(y: &[f64], treated: &[bool], w: &[f64]) -> Option<(f64, f64)> {
 /// (Rosenbaum & Rubin 1984).
 pub fn strata_of(e: &[f64], k: usize) -> Vec<usize> {
     let mut s: Vec<f64> = e.to_vec();
-    s.sort_by(f64::total_cmp);
+    s.sort_unstable_by(f64::total_cmp);
     let n = s.len();
     let cuts: Vec<f64> = (1..k).map(|q| s[((q * n) / k).min(n - 1)]).collect();
     e.iter().map(|&v| cuts.partition_point(|&c| c <= v)).collect()

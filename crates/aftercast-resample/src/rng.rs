@@ -110,11 +110,14 @@ where
     T: Send,
     F: Fn(usize, &mut Stream) -> T + Sync + Send,
 {
+    let stage = aftercast_core::progress::stage(format!("{n} draws"), Some(n as u64));
     (0..n)
         .into_par_iter()
         .map(|i| {
             let mut s = Stream::new(seed, i as u64);
-            f(i, &mut s)
+            let out = f(i, &mut s);
+            stage.advance(1);
+            out
         })
         .collect()
 }

@@ -230,7 +230,10 @@ pub fn run(
     params: &crate::ValidParams,
     opts: RunOptions,
 ) -> crate::SynthResult<(Fitted, Estimate<SynthDiagnostics>)> {
+    let stage = aftercast_core::progress::stage("fitting the synthetic control", None);
     let fit = params.fit(panel, treated, start)?;
+    drop(stage);
+    let _stage = aftercast_core::progress::stage("placebo checks", None);
     let mut rb = Robustness::default();
     if opts.robustness && fit.method != Method::Sdid {
         if treated.len() == 1 && matches!(fit.method, Method::Weights | Method::Intercept) {

@@ -229,16 +229,18 @@ impl Exposures {
             column: c + 1,
             column_name: table.header()[c].clone(),
         };
-        let mut rows = Vec::with_capacity(table.rows().len());
-        let mut first_line: HashMap<&str, u64> = HashMap::new();
-        for row in table.rows() {
-            let unit = row.cells[ucol].as_str();
+        let mut rows = Vec::with_capacity(table.row_count());
+        let mut first_line: HashMap<String, u64> = HashMap::new();
+        for r in 0..table.row_count() {
+            let row_line = table.line(r);
+            let unit_text = table.text(r, ucol);
+            let unit = unit_text.as_ref();
             if unit.is_empty() {
-                return Err(WindowsError::MissingCell { at: cell(row.line, ucol) });
+                return Err(WindowsError::MissingCell { at: cell(row_line, ucol) });
             }
-            if let Some(first) = first_line.insert(unit, row.line) {
+            if let Some(first) = first_line.insert(unit.to_string(), row_line) {
                 return Err(WindowsError::DuplicateUnit {
-                    at: cell(row.line, ucol),
+                    at: cell(row_line, ucol),
                     unit: unit.to_string(),
                     first_line: first,
                 });
@@ -246,15 +248,16 @@ impl Exposures {
             let exposure = match tcol {
                 None => options.launch,
                 Some(c) => {
-                    let text = row.cells[c].as_str();
+                    let text_cell = table.text(r, c);
+                    let text = text_cell.as_ref();
                     if text.is_empty() {
                         if options.reference.or(options.launch).is_none() {
-                            return Err(WindowsError::NoReference { at: cell(row.line, c), unit: unit.to_string() });
+                            return Err(WindowsError::NoReference { at: cell(row_line, c), unit: unit.to_string() });
                         }
                         None
                     } else {
                         Some(time::parse_timestamp(text, offset).ok_or_else(|| WindowsError::BadTimestamp {
-                            at: cell(row.line, c),
+                            at: cell(row_line, c),
                             text: text.to_string(),
                         })?)
                     }
@@ -263,9 +266,10 @@ impl Exposures {
             let group = match gcol {
                 None => "all".to_string(),
                 Some(c) => {
-                    let g = row.cells[c].as_str();
+                    let g_cell = table.text(r, c);
+                    let g = g_cell.as_ref();
                     if g.is_empty() {
-                        return Err(WindowsError::MissingCell { at: cell(row.line, c) });
+                        return Err(WindowsError::MissingCell { at: cell(row_line, c) });
                     }
                     g.to_string()
                 }

@@ -408,7 +408,7 @@ fn outputs_and_sidecar_are_written() {
     assert!(b_row.starts_with("b,north,1,2024-03-05T15:30:00+02:00,174,5,4,43.5,1,0,0,174,"), "{b_row}");
     // The table reads back through the core reader, as `match` would read it.
     let table = aftercast_core::RawTable::read(&csv_path).unwrap();
-    assert_eq!(table.rows().len(), 5);
+    assert_eq!(table.row_count(), 5);
     let pq = dir.path().join("units.parquet");
     output::write_units(&pq, &out.units, &spec).unwrap();
     let back = aftercast_core::RawTable::read(&pq).unwrap();

@@ -56,7 +56,13 @@ impl UnitEstimator for MatchEstimator {
         if p.covariates.is_empty() {
             p.covariates = covariates.to_vec();
         }
-        p = p.draws(opts.draws).seed(child_seed(opts.seed, &self.name()));
+        // The propensity-weighting methods share one seed, so they are judged on the same
+        // bootstrap replicates (and the propensity re-fits of a replicate are made once).
+        let tag = match p.method {
+            Method::Nearest => self.name(),
+            _ => "match:propensity-weighting".to_string(),
+        };
+        p = p.draws(opts.draws).seed(child_seed(opts.seed, &tag));
         let wrap = |e: aftercast_match::MatchError| CalibrateError::Method {
             method: self.name(),
             setting: s.input.path.clone(),

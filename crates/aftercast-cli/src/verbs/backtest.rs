@@ -98,7 +98,6 @@ fn run_plasmode(a: &Args, path: &std::path::Path) -> anyhow::Result<crate::verbs
     if covariates.is_empty() {
         return Err(bad_input_msg("--covariates is required with --plasmode"));
     }
-    let table = read_table(path)?;
     let spec = UnitSpec {
         treatment: a.treatment.clone(),
         outcomes: vec![a.outcome.clone()],
@@ -106,7 +105,7 @@ fn run_plasmode(a: &Args, path: &std::path::Path) -> anyhow::Result<crate::verbs
         missing: a.data_options.missing,
         ..Default::default()
     };
-    let units = UnitTable::from_table(&table, &spec)?;
+    let units = UnitTable::read(path, &spec)?;
     let methods = crate::verbs::compare::methods_from(&a.methods, &[])?;
     let refs: Vec<&dyn aftercast_calibrate::UnitEstimator> = methods.iter().map(|m| m.as_ref()).collect();
     let opts = a.common.inference();
@@ -149,7 +148,6 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         return run_plasmode(a, p);
     }
     let data_path = a.data.clone().ok_or_else(|| bad_input_msg("--data is required"))?;
-    let table = read_table(&data_path)?;
     let spec = SeriesSpec {
         time: a.time.clone().ok_or_else(|| bad_input_msg("--time is required"))?,
         outcome: a.outcome.clone(),
@@ -158,6 +156,7 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         missing: a.data_options.missing,
         gaps: a.data_options.gaps,
     };
+    let table = read_table(&data_path, &spec.projection())?;
     let series = Series::from_table(&table, &spec)?;
     let start = a.start.clone().ok_or_else(|| bad_input_msg("--start is required"))?;
     let split = series.split(&start, a.end.as_deref(), 0, 3)?;

@@ -147,7 +147,6 @@ fn compare_arm_series(a: &Args, path: &std::path::Path) -> anyhow::Result<crate:
     use aftercast_calibrate::backtest::PathModel;
     use aftercast_calibrate::series::{ArmSeries, compare_series};
     use aftercast_core::series::{Series, SeriesSpec};
-    let table = read_table(path)?;
     let controls = a.controls.clone();
     let donors = a.donors.clone();
     let mut cols = vec![a.control_arm.clone()];
@@ -161,6 +160,7 @@ fn compare_arm_series(a: &Args, path: &std::path::Path) -> anyhow::Result<crate:
         missing: a.data_options.missing,
         gaps: a.data_options.gaps,
     };
+    let table = read_table(path, &spec.projection())?;
     let series = Series::from_table(&table, &spec)?;
     let start = a.start.clone().ok_or_else(|| bad_input_msg("--start is required with --arms-data"))?;
     let split = series.split(&start, a.end.as_deref(), 0, 3)?;
@@ -247,10 +247,11 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         missing: a.data_options.missing,
     };
     let exp_path = a.experiment.clone().ok_or_else(|| bad_input_msg("--experiment is required"))?;
-    let experiment = read_experiment(&read_table(&exp_path)?, &spec).map_err(classify)?;
+    let experiment =
+        read_experiment(&read_table(&exp_path, &spec.experiment_projection())?, &spec).map_err(classify)?;
     let mut pools = Vec::new();
     for p in &a.pool {
-        pools.push(read_pool(&read_table(p)?, &spec, None).map_err(classify)?);
+        pools.push(read_pool(&read_table(p, &spec.pool_projection())?, &spec, None).map_err(classify)?);
     }
     let methods = methods_from(&a.methods, &a.terms)?;
     let refs: Vec<&dyn UnitEstimator> = methods.iter().map(|m| m.as_ref()).collect();

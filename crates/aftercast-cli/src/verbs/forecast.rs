@@ -98,7 +98,6 @@ fn classify(e: aftercast_forecast::ForecastError) -> anyhow::Error {
 /// pre-period, non-positive values under --log, an unidentified model; internal failures
 /// otherwise.
 pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
-    let table = read_table(&a.data)?;
     let spec = SeriesSpec {
         time: a.time.clone(),
         outcome: a.outcome.clone(),
@@ -107,6 +106,7 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         missing: a.data_options.missing,
         gaps: a.data_options.gaps,
     };
+    let table = read_table(&a.data, &spec.projection())?;
     let series = Series::from_table(&table, &spec).map_err(bad_input)?;
     let split = series.split(&a.start, a.end.as_deref(), a.washout, 8).map_err(bad_input)?;
     let model = a.model;
@@ -137,7 +137,7 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     let mut inputs = vec![table.info()];
     let events = match &a.events {
         Some(p) => {
-            let t = read_table(p)?;
+            let t = read_table(p, &EventCalendar::projection())?;
             inputs.push(t.info());
             Some(EventCalendar::from_table(&t).map_err(bad_input)?)
         }

@@ -2,8 +2,10 @@
 //! Every reader check runs here, so a file that inspects cleanly will load in an analysis.
 
 use crate::common::{DataOptions, comma_list, read_table};
+use aftercast_core::column::{Column, ColumnKind};
 use aftercast_core::panel::{LongPanelSpec, Panel};
 use aftercast_core::series::{Series, SeriesSpec};
+use aftercast_core::table::Projection;
 use aftercast_core::table::parse_number_text;
 use aftercast_core::units::{UnitSpec, UnitTable};
 use serde_json::json;
@@ -85,12 +87,56 @@ fn need<'a>(v: &'a Option<String>, flag: &str, shape: &str) -> anyhow::Result<&'
     v.as_deref().ok_or_else(|| crate::failure::bad_input_msg(format!("--shape {shape} needs {flag}")))
 }
 
+fn series_spec(a: &Args) -> anyhow::Result<SeriesSpec> {
+    Ok(SeriesSpec {
+        time: need(&a.time, "--time", "series")?.to_string(),
+        outcome: need(&a.outcome, "--outcome", "series")?.to_string(),
+        controls: comma_list(&a.controls),
+        date_format: a.data_options.date_format(),
+        missing: a.data_options.missing,
+        gaps: a.data_options.gaps,
+    })
+}
+
+fn panel_spec(a: &Args) -> anyhow::Result<LongPanelSpec> {
+    Ok(LongPanelSpec {
+        unit: need(&a.unit, "--unit", "panel")?.to_string(),
+        time: need(&a.time, "--time", "panel")?.to_string(),
+        outcome: need(&a.outcome, "--outcome", "panel")?.to_string(),
+        covariates: comma_list(&a.covariates),
+        date_format: a.data_options.date_format(),
+    })
+}
+
+fn unit_spec(a: &Args) -> anyhow::Result<UnitSpec> {
+    Ok(UnitSpec {
+        id: a.id.clone(),
+        treatment: need(&a.treatment, "--treatment", "units")?.to_string(),
+        outcomes: a.outcome.as_deref().map(comma_list).unwrap_or_default(),
+        numeric: comma_list(&a.covariates),
+        categorical: comma_list(&a.categorical),
+        missing: a.data_options.missing,
+    })
+}
+
+/// The columns each shape reads: the whole table as numbers (with every other cell's text kept)
+/// for `table`, only the named columns otherwise.
+fn projection(a: &Args) -> anyhow::Result<Projection> {
+    Ok(match a.shape {
+        Shape::Table => Projection::all(ColumnKind::Number),
+        Shape::Series => series_spec(a)?.projection(),
+        Shape::Panel => panel_spec(a)?.projection(),
+        Shape::WidePanel => Panel::wide_projection(need(&a.time, "--time", "wide-panel")?, None),
+        Shape::Units => unit_spec(a)?.projection(),
+    })
+}
+
 /// Run `inspect`.
 ///
 /// # Errors
 /// Bad input (exit 2) for every reader failure; write failures (exit 1).
 pub fn run(a: &Args) -> anyhow::Result<()> {
-    let table = read_table(&a.data)?;
+    let table = read_table(&a.data, &projection(a)?)?;
     let info = table.info();
     let mut lines =
         vec![format!("{}: {} rows, {} columns ({:?})", info.path, info.rows, table.header().len(), table.format())];
@@ -99,14 +145,17 @@ pub fn run(a: &Args) -> anyhow::Result<()> {
         Shape::Table => {
             let mut cols = Vec::new();
             for (c, name) in table.header().iter().enumerate() {
-                let mut numeric = 0usize;
+                let mut numeric = table.row_count();
                 let mut empty = 0usize;
                 let mut text = 0usize;
-                for row in table.rows() {
-                    match parse_number_text(&row.cells[c]) {
-                        Ok(Some(_)) => numeric += 1,
-                        Ok(None) => empty += 1,
-                        Err(_) => text += 1,
+                if let Column::Number(col) = table.data(c) {
+                    for (_, cell) in col.exceptions() {
+                        numeric -= 1;
+                        match parse_number_text(cell) {
+                            Ok(Some(_)) => numeric += 1,
+                            Ok(None) => empty += 1,
+                            Err(_) => text += 1,
+                        }
                     }
                 }
                 lines.push(format!("  {name}: {numeric} numeric, {text} text, {empty} empty"));
@@ -115,14 +164,7 @@ pub fn run(a: &Args) -> anyhow::Result<()> {
             doc["column_summary"] = json!(cols);
         }
         Shape::Series => {
-            let spec = SeriesSpec {
-                time: need(&a.time, "--time", "series")?.to_string(),
-                outcome: need(&a.outcome, "--outcome", "series")?.to_string(),
-                controls: comma_list(&a.controls),
-                date_format: a.data_options.date_format(),
-                missing: a.data_options.missing,
-                gaps: a.data_options.gaps,
-            };
+            let spec = series_spec(a)?;
             let s = Series::from_table(&table, &spec)?;
             let first = s.axis.points().first().map(|p| p.to_string()).unwrap_or_default();
             let last = s.axis.points().last().map(|p| p.to_string()).unwrap_or_default();
@@ -145,13 +187,7 @@ pub fn run(a: &Args) -> anyhow::Result<()> {
         }
         Shape::Panel | Shape::WidePanel => {
             let p = if a.shape == Shape::Panel {
-                let spec = LongPanelSpec {
-                    unit: need(&a.unit, "--unit", "panel")?.to_string(),
-                    time: need(&a.time, "--time", "panel")?.to_string(),
-                    outcome: need(&a.outcome, "--outcome", "panel")?.to_string(),
-                    covariates: comma_list(&a.covariates),
-                    date_format: a.data_options.date_format(),
-                };
+                let spec = panel_spec(a)?;
                 Panel::from_long(&table, &spec)?
             } else {
                 let time = need(&a.time, "--time", "wide-panel")?;
@@ -178,14 +214,7 @@ pub fn run(a: &Args) -> anyhow::Result<()> {
             doc["panel"] = json!({"units": p.units, "periods": p.periods(), "frequency": p.axis.frequency()});
         }
         Shape::Units => {
-            let spec = UnitSpec {
-                id: a.id.clone(),
-                treatment: need(&a.treatment, "--treatment", "units")?.to_string(),
-                outcomes: a.outcome.as_deref().map(comma_list).unwrap_or_default(),
-                numeric: comma_list(&a.covariates),
-                categorical: comma_list(&a.categorical),
-                missing: a.data_options.missing,
-            };
+            let spec = unit_spec(a)?;
             let u = UnitTable::from_table(&table, &spec)?;
             lines.push(format!(
                 "  units: {} ({} treated, {} untreated), {} dropped for empty cells",

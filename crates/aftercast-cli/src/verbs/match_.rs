@@ -1,6 +1,6 @@
 //! `aftercast match`: propensity-score matching and weighting on a unit table.
 
-use crate::common::{Common, DataOptions, read_table};
+use crate::common::{Common, DataOptions};
 use crate::failure::bad_input;
 use aftercast_core::units::UnitTable;
 use aftercast_match::{Caliper, Estimand, MatchParams, Method, SeparationPolicy, Trim};
@@ -88,7 +88,6 @@ pub struct Args {
 /// Bad input (exit 2) for unreadable data, unknown columns and options, separation with
 /// `--separation error`, no overlap, no match within the caliper; internal failures otherwise.
 pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
-    let table = read_table(&a.data)?;
     // a categorical column is a covariate even when only --categorical names it
     let mut covariates = a.covariates.clone();
     for c in &a.categorical {
@@ -107,7 +106,7 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         params = params.pre_outcome(p.clone());
     }
     let spec = params.unit_spec(&a.treatment, &a.outcome, &a.categorical.clone(), a.id.clone(), a.data_options.missing);
-    let units = UnitTable::from_table(&table, &spec)?;
+    let units = UnitTable::read(&a.data, &spec)?;
     let method = a.method;
     params = params
         .method(method)

@@ -84,7 +84,11 @@ fn write_study_parsed(study_path: &Path, study: &Study, dir: &OutDir, quiet: boo
     let base = study_path.parent().map(Path::to_path_buf).unwrap_or_else(|| PathBuf::from("."));
     let mut entries = Vec::new();
     let mut outcomes = Vec::new();
-    for a in &study.analyses {
+    for (k, a) in study.analyses.iter().enumerate() {
+        let _stage = aftercast_core::progress::stage(
+            format!("analysis {} of {}: {}", k + 1, study.analyses.len(), a.name),
+            None,
+        );
         let argv = study.argv(a, &base, out).map_err(|e| e.context(study_path.display().to_string()))?;
         let cli = crate::Cli::try_parse_from(&argv).map_err(|e| {
             let text = e.render().to_string();

@@ -67,7 +67,6 @@ pub struct Args {
 /// Bad input (exit 2) for unreadable data, unknown columns, units or options, too few donors or
 /// pre-periods, constant treated series; internal failures otherwise.
 pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
-    let table = read_table(&a.data)?;
     let mut covariates = a.predictors.clone();
     if let Some(s) = &a.size
         && !covariates.contains(s)
@@ -81,6 +80,7 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         covariates: covariates.clone(),
         date_format: a.data_options.date_format(),
     };
+    let table = read_table(&a.data, &spec.projection())?;
     let panel = Panel::from_long(&table, &spec)?;
     let treated = a.treated.clone();
     if treated.is_empty() {

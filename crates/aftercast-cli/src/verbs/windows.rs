@@ -264,9 +264,9 @@ pub fn run_verb(a: &Args) -> anyhow::Result<()> {
         Engine::Native => {
             let mut ex = Exposures::read(exposures_path, &opts, &spec).map_err(wbad)?;
             if let Some(list) = &a.unit_list {
-                let table = crate::common::read_table(list)?;
+                let table = crate::common::read_table(list, &aftercast_core::Projection::none().text(&a.unit))?;
                 let ids =
-                    table.text_column(&a.unit)?.into_iter().filter(|s| !s.is_empty()).map(str::to_string).collect();
+                    table.text_column(&a.unit)?.into_iter().filter(|s| !s.is_empty()).map(|s| s.into_owned()).collect();
                 ex.add_unlisted(ids).map_err(wbad)?;
             }
             let threads = a.threads.unwrap_or(0) as usize;
