@@ -73,3 +73,67 @@ impl Drop for Stage {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::sync::Mutex;
+
+    /// Records the events of one thread's stages; declines stages of every other thread.
+    struct Recorder {
+        owner: std::thread::ThreadId,
+        events: Mutex<Vec<String>>,
+    }
+
+    impl Reporter for Recorder {
+        fn begin(&self, what: &str, total: Option<u64>) -> bool {
+            if std::thread::current().id() != self.owner {
+                return false;
+            }
+            self.events.lock().unwrap().push(format!("begin {what} {total:?}"));
+            true
+        }
+        fn advance(&self, n: u64) {
+            self.events.lock().unwrap().push(format!("advance {n}"));
+        }
+        fn end(&self) {
+            self.events.lock().unwrap().push("end".into());
+        }
+    }
+
+    #[test]
+    fn stages_nest_report_counts_and_end_when_dropped() {
+        let recorder: &'static Recorder =
+            Box::leak(Box::new(Recorder { owner: std::thread::current().id(), events: Mutex::new(Vec::new()) }));
+        struct Forward(&'static Recorder);
+        impl Reporter for Forward {
+            fn begin(&self, what: &str, total: Option<u64>) -> bool {
+                self.0.begin(what, total)
+            }
+            fn advance(&self, n: u64) {
+                self.0.advance(n)
+            }
+            fn end(&self) {
+                self.0.end()
+            }
+        }
+        assert!(install(Box::new(Forward(recorder))));
+        {
+            let outer = stage("outer", None);
+            {
+                let inner = stage("inner", Some(3));
+                inner.advance(2);
+                // a stage begun on another thread is declined and reports nothing
+                std::thread::scope(|s| {
+                    s.spawn(|| {
+                        let other = stage("elsewhere", Some(1));
+                        other.advance(1);
+                    });
+                });
+            }
+            outer.advance(1);
+        }
+        let events = recorder.events.lock().unwrap().clone();
+        assert_eq!(events, ["begin outer None", "begin inner Some(3)", "advance 2", "end", "advance 1", "end"]);
+    }
+}

@@ -51,7 +51,8 @@ for name, rs in rows.items():
         walls = ", ".join(f"{w:.2f}" for w, _ in rs)
         print(f"{name:>20}: wall {walls} s (best {min(w for w, _ in rs):.2f}); peak {max(m for _, m in rs):.0f} MiB")
 o = json.load(open(os.path.join(tmp, "ours.json")))
-print("aftercast estimate:", o["estimate"]["point"] if "estimate" in o else "see", os.path.join(tmp, "ours.json"))
+avg = o["effect"]["average"]
+print(f"aftercast: ATT {avg['estimate']:.4f}, interval [{avg['lower']:.4f}, {avg['upper']:.4f}]")
 if rows["pandas+scikit-learn"]:
     print("scikit-learn:", json.load(open(os.path.join(tmp, "theirs.json"))))
     best = lambda k: min(w for w, _ in rows[k])

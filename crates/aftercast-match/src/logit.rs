@@ -133,8 +133,7 @@ fn accumulate(
 }
 
 /// [`accumulate`] for a design of width `K`: the same sums in the same order for every entry of
-/// the lower triangle (the whole square is updated, which vectorises; only the lower triangle
-/// is read).
+/// the lower triangle (with the width known, the compiler unrolls and vectorises the loops).
 fn accumulate_fixed<const K: usize>(
     design: &Design,
     y: &[bool],
@@ -164,7 +163,7 @@ fn accumulate_fixed<const K: usize>(
         for a in 0..K {
             g[a] += r * x[a];
             let va = v * x[a];
-            for (hb, xb) in h[a].iter_mut().zip(&x) {
+            for (hb, xb) in h[a][..=a].iter_mut().zip(&x[..=a]) {
                 *hb += va * xb;
             }
         }
