@@ -116,9 +116,11 @@ impl ReporterState {
         // the stages from the outside in: "analysis 3 of 8: loyalty-ipw · 1000 draws"
         let path: Vec<&str> = self.stack.iter().map(|f| f.what.as_str()).collect();
         bar.set_message(path.join(" · "));
+        // fixed parts first; the message takes what is left of the line and is cut to fit, so
+        // the line never wraps (a wrapped line could not be redrawn in place)
         let template = match top.total {
-            Some(_) => "{spinner} {msg} [{bar:24}] {percent}% ({elapsed})",
-            None => "{spinner} {msg} ({elapsed})",
+            Some(_) => "{spinner} [{bar:20}] {percent:>3}% {elapsed:>4} {wide_msg}",
+            None => "{spinner} {elapsed:>4} {wide_msg}",
         };
         if let Ok(style) = ProgressStyle::with_template(template) {
             bar.set_style(style);

@@ -247,36 +247,44 @@ fn field(rec: &csv::ByteRecord, i: usize) -> Result<&str, ShapeProblem> {
     std::str::from_utf8(&rec[i]).map(str::trim).map_err(|_| ShapeProblem)
 }
 
+/// Which columns to keep, and how, given the header (refusing a header that lacks one).
+pub(crate) type KindsOf<'a> = dyn Fn(&[String]) -> DataResult<Vec<Option<ColumnKind>>> + 'a;
+
 /// Read a CSV stream into the columns `wanted` picks from the header (`None` = not kept).
-/// `again` gives the whole file once more, for describing a problem in the file's shape.
 pub(crate) fn read_csv(
     path: &Path,
     mut input: impl Read + Send,
-    wanted: &dyn Fn(&[String]) -> Vec<Option<ColumnKind>>,
+    wanted: &KindsOf,
     chunking: CsvChunking,
-    again: &dyn Fn() -> DataResult<Vec<u8>>,
     size: Option<u64>,
 ) -> DataResult<CsvColumns> {
     let stage = crate::progress::stage(format!("reading {}", path.display()), size);
     let io = |source| DataError::Io { path: path.to_path_buf(), source };
-    let shape_error = || -> DataError {
-        match again().and_then(|bytes| sequential_records(path, &bytes).map(|_| ())) {
-            Err(e) => e,
-            Ok(()) => DataError::Malformed {
-                at: Location::file(path),
-                format: "CSV",
-                message: "the file changed while it was read".into(),
-            },
-        }
-    };
     let block = chunking.block.max(1);
     let mut hasher = Sha256::new();
     let mut buf: Vec<u8> = Vec::with_capacity(block + (block >> 2));
     let mut eof = read_more(&mut input, &mut buf, block, &mut hasher).map_err(io)?;
+    stage.advance(buf.len() as u64);
     while !eof && buf.len() < 3 {
+        let had = buf.len();
         eof = read_more(&mut input, &mut buf, block, &mut hasher).map_err(io)?;
+        stage.advance((buf.len() - had) as u64);
     }
     let bom = if buf.starts_with(&[0xEF, 0xBB, 0xBF]) { 3 } else { 0 };
+    if let Some(hint) = other_format(&buf) {
+        return Err(DataError::Malformed { at: Location::file(path), format: "CSV", message: hint.into() });
+    }
+    // a problem in the header: the sequential reader describes it from what has been read
+    let header_problem = |buf: &[u8]| -> DataError {
+        match sequential_records(path, buf) {
+            Err(e) => e,
+            Ok(_) => DataError::Malformed {
+                at: Location::line(path, 1),
+                format: "CSV",
+                message: "the header could not be read".into(),
+            },
+        }
+    };
     // The header: the first record that is not blank, complete in the buffer.
     let (header, mut consumed, mut lines_before) = loop {
         let body = &buf[bom..];
@@ -287,11 +295,11 @@ pub(crate) fn read_csv(
             match rdr.read_byte_record(&mut rec) {
                 Ok(true) => {}
                 Ok(false) => break,
-                Err(_) => return Err(shape_error()),
+                Err(_) => return Err(header_problem(&buf)),
             }
             let fields: Result<Vec<String>, ShapeProblem> =
                 (0..rec.len()).map(|i| field(&rec, i).map(str::to_string)).collect();
-            let Ok(fields) = fields else { return Err(shape_error()) };
+            let Ok(fields) = fields else { return Err(header_problem(&buf)) };
             if fields.len() == 1 && fields[0].is_empty() {
                 continue;
             }
@@ -303,11 +311,15 @@ pub(crate) fn read_csv(
             // a header that reaches the end of the buffer may continue past it
             Some((h, end, lines)) if eof || end < body.len() => break (h, bom + end, lines),
             None if eof => return Err(DataError::EmptyFile { path: path.to_path_buf() }),
-            _ => eof = read_more(&mut input, &mut buf, block, &mut hasher).map_err(io)?,
+            _ => {
+                let had = buf.len();
+                eof = read_more(&mut input, &mut buf, block, &mut hasher).map_err(io)?;
+                stage.advance((buf.len() - had) as u64);
+            }
         }
     };
     let width = header.len();
-    let kinds = wanted(&header);
+    let kinds = wanted(&header)?;
     let mut columns: Vec<Option<Column>> = kinds.iter().map(|k| k.map(Column::new)).collect();
     let mut lines = LineBuilder { first: None, n: 0, explicit: None };
     let threads = rayon::current_num_threads().max(1);
@@ -316,26 +328,21 @@ pub(crate) fn read_csv(
     const FRONT: usize = 256 << 10;
     let mut spare: Vec<u8> = Vec::with_capacity(FRONT + block);
     // chunks parsed but not yet appended (they are appended while the next block is parsed)
-    let mut parsed: Vec<Result<ChunkOut, ShapeProblem>> = Vec::new();
-    let merge = |parts: Vec<Result<ChunkOut, ShapeProblem>>,
-                 columns: &mut Vec<Option<Column>>,
-                 lines: &mut LineBuilder,
-                 lines_before: &mut u64|
-     -> Result<(), ShapeProblem> {
-        for part in parts {
-            let part = part?;
-            for l in part.lines {
-                lines.push(*lines_before + l);
-            }
-            *lines_before += part.line_ends;
-            for (col, piece) in columns.iter_mut().zip(part.columns) {
-                if let (Some(col), Some(piece)) = (col.as_mut(), piece) {
-                    col.append(piece);
+    let mut parsed: Vec<ChunkOut> = Vec::new();
+    let merge =
+        |parts: Vec<ChunkOut>, columns: &mut Vec<Option<Column>>, lines: &mut LineBuilder, lines_before: &mut u64| {
+            for part in parts {
+                for l in part.lines {
+                    lines.push(*lines_before + l);
+                }
+                *lines_before += part.line_ends;
+                for (col, piece) in columns.iter_mut().zip(part.columns) {
+                    if let (Some(col), Some(piece)) = (col.as_mut(), piece) {
+                        col.append(piece);
+                    }
                 }
             }
-        }
-        Ok(())
-    };
+        };
     loop {
         let pending = &buf[consumed..];
         // complete records in the buffer, cut into chunks
@@ -349,7 +356,9 @@ pub(crate) fn read_csv(
                 break;
             }
             // no record ends in the buffer yet: read on
+            let had = buf.len();
             eof = read_more(&mut input, &mut buf, block, &mut hasher).map_err(io)?;
+            stage.advance((buf.len() - had) as u64);
             continue;
         };
         let starts: Vec<usize> = std::iter::once(0).chain(ends.iter().copied()).take(ends.len()).collect();
@@ -358,7 +367,7 @@ pub(crate) fn read_csv(
         spare.clear();
         spare.resize(FRONT, 0);
         let previous = std::mem::take(&mut parsed);
-        let (now, (merged, read)) = rayon::join(
+        let (now, ((), read)) = rayon::join(
             || -> Vec<Result<ChunkOut, ShapeProblem>> {
                 if ends.len() > 1 {
                     use rayon::prelude::*;
@@ -368,16 +377,18 @@ pub(crate) fn read_csv(
                 }
             },
             || {
-                let merged = merge(previous, &mut columns, &mut lines, &mut lines_before);
+                merge(previous, &mut columns, &mut lines, &mut lines_before);
                 let read = if eof { Ok(true) } else { read_more(&mut input, &mut spare, block, &mut hasher) };
                 stage.advance((spare.len() - FRONT) as u64);
-                (merged, read)
+                ((), read)
             },
         );
-        if merged.is_err() {
-            return Err(shape_error());
+        // a chunk that could not be read: the first problem of the file is in it
+        if let Some(bad) = now.iter().position(Result::is_err) {
+            let before: u64 = lines_before + now[..bad].iter().flatten().map(|p| p.line_ends).sum::<u64>();
+            return Err(chunk_problem(path, &pending[starts[bad]..ends[bad]], before, &header));
         }
-        parsed = now;
+        parsed = now.into_iter().flatten().collect();
         eof = read.map_err(io)?;
         // the unfinished record goes in front of the next block
         let carry = &buf[consumed + done..];
@@ -396,14 +407,25 @@ pub(crate) fn read_csv(
             break;
         }
     }
-    if merge(parsed, &mut columns, &mut lines, &mut lines_before).is_err() {
-        return Err(shape_error());
-    }
+    merge(parsed, &mut columns, &mut lines, &mut lines_before);
     for c in columns.iter_mut().flatten() {
         c.seal();
     }
     let rows = lines.n;
     Ok(CsvColumns { header, columns, lines: lines.finish(), rows, sha256: hex(&hasher.finalize()) })
+}
+
+/// A hint when the bytes are plainly another format than CSV.
+fn other_format(head: &[u8]) -> Option<&'static str> {
+    if head.starts_with(b"PAR1") {
+        Some("this is a Parquet file: give it the extension .parquet (or .pq) to read it as one")
+    } else if head.starts_with(&[0x1f, 0x8b]) {
+        Some("this is a gzip-compressed file: decompress it first (gzip -d)")
+    } else if head.starts_with(b"PK\x03\x04") {
+        Some("this is a zip archive (an Excel workbook?): export the sheet as CSV first")
+    } else {
+        None
+    }
 }
 
 /// Append up to `want` bytes of `input` to `buf`, hashing them; `Ok(true)` at the end of input.
@@ -444,7 +466,7 @@ pub(crate) fn hex(digest: &[u8]) -> String {
 pub type TextRecord = (u64, Vec<String>);
 
 /// The plain sequential reader: header and every data row as text, with its line. It is the
-/// reference the fast reader is tested against, and it describes problems of the file's shape.
+/// reference the fast reader is tested against.
 ///
 /// # Errors
 /// [`DataError::EmptyFile`], [`DataError::Malformed`] (not UTF-8, CSV syntax),
@@ -455,9 +477,26 @@ pub fn sequential_records(path: &Path, bytes: &[u8]) -> DataResult<(Vec<String>,
     if body.iter().all(|b| b.is_ascii_whitespace()) {
         return Err(DataError::EmptyFile { path: path.to_path_buf() });
     }
-    let mut reader = csv::ReaderBuilder::new().has_headers(false).flexible(true).trim(csv::Trim::All).from_reader(body);
-    let mut header: Option<Vec<String>> = None;
     let mut rows = Vec::new();
+    let header = scan_records(path, body, 0, None, &mut |line, record| {
+        rows.push((line, record.iter().map(|s| s.to_string()).collect()));
+    })?;
+    let header = header.ok_or_else(|| DataError::EmptyFile { path: path.to_path_buf() })?;
+    Ok((header, rows))
+}
+
+/// Read records one by one as the sequential reader does, handing each data row to `row`, and
+/// stop at the first problem of shape. `lines_before` = line ends before `body` in the file;
+/// `header` = the file's header when `body` starts after it (otherwise the first record that is
+/// not blank is the header, and is returned).
+fn scan_records(
+    path: &Path,
+    body: &[u8],
+    lines_before: u64,
+    mut header: Option<Vec<String>>,
+    row: &mut dyn FnMut(u64, &csv::StringRecord),
+) -> DataResult<Option<Vec<String>>> {
+    let mut reader = csv::ReaderBuilder::new().has_headers(false).flexible(true).trim(csv::Trim::All).from_reader(body);
     let mut record = csv::StringRecord::new();
     let mut counter = LineCounter::new();
     loop {
@@ -465,15 +504,22 @@ pub fn sequential_records(path: &Path, bytes: &[u8]) -> DataResult<(Vec<String>,
             Ok(false) => break,
             Ok(true) => {}
             Err(e) => {
-                let line = e.position().map(|p| counter.record_line(body, p.byte() as usize)).unwrap_or(0);
-                let message = match e.kind() {
-                    csv::ErrorKind::Utf8 { .. } => "text is not valid UTF-8".to_string(),
-                    _ => e.to_string(),
-                };
-                return Err(DataError::Malformed { at: Location::line(path, line), format: "CSV", message });
+                let line =
+                    lines_before + e.position().map(|p| counter.record_line(body, p.byte() as usize)).unwrap_or(0);
+                return Err(match e.kind() {
+                    csv::ErrorKind::Utf8 { err, .. } => {
+                        // the column, when the header is known
+                        let at = match header.as_ref().and_then(|h| h.get(err.field()).map(|n| (err.field(), n))) {
+                            Some((c, name)) => Location::cell(path, line, c + 1, name),
+                            None => Location::line(path, line),
+                        };
+                        DataError::Malformed { at, format: "CSV", message: "text is not valid UTF-8".into() }
+                    }
+                    _ => DataError::Malformed { at: Location::line(path, line), format: "CSV", message: e.to_string() },
+                });
             }
         }
-        let line = record.position().map(|p| counter.record_line(body, p.byte() as usize)).unwrap_or(0);
+        let line = lines_before + record.position().map(|p| counter.record_line(body, p.byte() as usize)).unwrap_or(0);
         // Skip wholly blank lines.
         if record.len() == 1 && record[0].is_empty() {
             continue;
@@ -488,12 +534,25 @@ pub fn sequential_records(path: &Path, bytes: &[u8]) -> DataResult<(Vec<String>,
                         found: record.len(),
                     });
                 }
-                rows.push((line, record.iter().map(|s| s.to_string()).collect()));
+                row(line, &record);
             }
         }
     }
-    let header = header.ok_or_else(|| DataError::EmptyFile { path: path.to_path_buf() })?;
-    Ok((header, rows))
+    Ok(header)
+}
+
+/// The problem of shape in one chunk the fast reader refused: the chunk starts at a record
+/// boundary and every record before it was read, so the first problem in the file is the
+/// first one here.
+fn chunk_problem(path: &Path, chunk: &[u8], lines_before: u64, header: &[String]) -> DataError {
+    match scan_records(path, chunk, lines_before, Some(header.to_vec()), &mut |_, _| {}) {
+        Err(e) => e,
+        Ok(_) => DataError::Malformed {
+            at: Location::line(path, lines_before + 1),
+            format: "CSV",
+            message: "the file changed while it was read".into(),
+        },
+    }
 }
 
 #[cfg(test)]

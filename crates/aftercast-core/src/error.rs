@@ -165,7 +165,9 @@ pub enum DataError {
         expected: String,
     },
     /// A required value is empty and the missing-value policy is `Error`.
-    #[error("{at}: value is missing (empty cell); choose a missing-value policy to allow this")]
+    #[error(
+        "{at}: value is missing (an empty or NA cell); series and unit tables can leave such rows out with --missing drop-row"
+    )]
     MissingValue {
         /// Where.
         at: Location,
@@ -254,7 +256,7 @@ pub enum DataError {
     },
     /// A treatment cell is not one of the accepted spellings.
     #[error(
-        "{at}: '{}' is not a treatment value (use 1/0, true/false, yes/no or treated/control)",
+        "{at}: '{}' is not a treatment value (use 1/0, true/false, yes/no, treated/control or test/holdout)",
         crate::error::shown(text)
     )]
     BadTreatment {

@@ -53,7 +53,7 @@ pub(crate) fn read_columns(path: &Path, mut file: File, projection: &Projection)
     let builder = ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| malformed(path, e.to_string()))?;
     let schema = builder.schema().clone();
     let header: Vec<String> = schema.fields().iter().map(|f| f.name().clone()).collect();
-    let kinds = projection.kinds(&header);
+    let kinds = projection.checked_kinds(path, &header)?;
     let roots: Vec<usize> = kinds.iter().enumerate().filter(|(_, k)| k.is_some()).map(|(i, _)| i).collect();
     let mask = ProjectionMask::roots(builder.parquet_schema(), roots.iter().copied());
     let reader = builder.with_projection(mask).build().map_err(|e| malformed(path, e.to_string()))?;

@@ -23,6 +23,14 @@ pub enum Format {
 }
 
 impl Format {
+    /// The format's name as users write it.
+    pub fn name(self) -> &'static str {
+        match self {
+            Format::Csv => "CSV",
+            Format::Parquet => "Parquet",
+        }
+    }
+
     /// The format implied by a file name (`.parquet`/`.pq` is Parquet, anything else CSV).
     pub fn from_path(path: &Path) -> Self {
         match path.extension().and_then(|e| e.to_str()).map(|e| e.to_ascii_lowercase()) {
@@ -98,6 +106,23 @@ impl Projection {
         self
     }
 
+    /// The kind of each header column, refusing a header that lacks a column asked for (so a
+    /// misspelt column name is reported as soon as the header is read, not after the file).
+    ///
+    /// # Errors
+    /// [`DataError::MissingColumn`] for the first column asked for that the header lacks.
+    pub fn checked_kinds(&self, path: &Path, header: &[String]) -> DataResult<Vec<Option<ColumnKind>>> {
+        header_index(path, header)?;
+        if let Some((name, _)) = self.wanted.iter().find(|(n, _)| !header.contains(n)) {
+            return Err(DataError::MissingColumn {
+                path: path.to_path_buf(),
+                name: name.clone(),
+                available: header.to_vec(),
+            });
+        }
+        Ok(self.kinds(header))
+    }
+
     /// The kind of each header column (`None` = not kept).
     pub fn kinds(&self, header: &[String]) -> Vec<Option<ColumnKind>> {
         header.iter().map(|h| self.wanted.iter().find(|(n, _)| n == h).map(|w| w.1).or(self.all)).collect()
@@ -124,10 +149,9 @@ impl RawTable {
         let file = open_input(path)?;
         match Format::from_path(path) {
             Format::Csv => {
-                let again = || read_input(path);
                 let size = file.metadata().ok().map(|m| m.len());
-                let kinds = |h: &[String]| projection.kinds(h);
-                let parts = crate::csv_read::read_csv(path, file, &kinds, CsvChunking::default(), &again, size)?;
+                let kinds = |h: &[String]| projection.checked_kinds(path, h);
+                let parts = crate::csv_read::read_csv(path, file, &kinds, CsvChunking::default(), size)?;
                 Self::from_csv_parts(path, parts)
             }
             Format::Parquet => Self::from_parquet_file(path, file, projection),
@@ -155,13 +179,11 @@ impl RawTable {
         projection: &Projection,
         chunking: CsvChunking,
     ) -> DataResult<Self> {
-        let again = || Ok(bytes.to_vec());
         let parts = crate::csv_read::read_csv(
             path,
             bytes,
-            &|h| projection.kinds(h),
+            &|h| projection.checked_kinds(path, h),
             chunking,
-            &again,
             Some(bytes.len() as u64),
         )?;
         Self::from_csv_parts(path, parts)
@@ -180,21 +202,7 @@ impl RawTable {
         lines: Lines,
         rows: usize,
     ) -> DataResult<Self> {
-        let mut index = HashMap::new();
-        for (i, name) in header.iter().enumerate() {
-            if name.is_empty() {
-                return Err(DataError::Invalid {
-                    at: Location { file: path.to_path_buf(), line: Some(1), column: Some(i + 1), column_name: None },
-                    message: "header cell is empty; every column needs a name".into(),
-                });
-            }
-            if index.insert(name.clone(), i).is_some() {
-                return Err(DataError::DuplicateColumn {
-                    at: Location { file: path.to_path_buf(), line: Some(1), column: Some(i + 1), column_name: None },
-                    name: name.clone(),
-                });
-            }
-        }
+        let index = header_index(path, &header)?;
         if rows == 0 {
             return Err(DataError::NoRows { path: path.to_path_buf() });
         }
@@ -353,6 +361,26 @@ impl RawTable {
         let col = self.column(name)?;
         Ok((0..self.rows).map(|r| self.text(r, col)).collect())
     }
+}
+
+/// Position of each column name, refusing an empty or repeated name.
+fn header_index(path: &Path, header: &[String]) -> DataResult<HashMap<String, usize>> {
+    let mut index = HashMap::new();
+    for (i, name) in header.iter().enumerate() {
+        if name.is_empty() {
+            return Err(DataError::Invalid {
+                at: Location { file: path.to_path_buf(), line: Some(1), column: Some(i + 1), column_name: None },
+                message: "header cell is empty; every column needs a name".into(),
+            });
+        }
+        if index.insert(name.clone(), i).is_some() {
+            return Err(DataError::DuplicateColumn {
+                at: Location { file: path.to_path_buf(), line: Some(1), column: Some(i + 1), column_name: None },
+                name: name.clone(),
+            });
+        }
+    }
+    Ok(index)
 }
 
 /// Parse a number the way every reader does: empty or NA-like text is missing (`Ok(None)`);

@@ -143,7 +143,7 @@ fn fit_propensity(
 ) -> MatchResult<Propensity> {
     let p = params.params();
     let opts = LogitOptions { penalty: p.penalty, ..LogitOptions::default() };
-    let _stage = aftercast_core::progress::stage(format!("fitting the propensity model ({} units)", design.n), None);
+    let _stage = aftercast_core::progress::stage(format!("fitting the propensity model on {} units", design.n), None);
     let single = logit::single_column_separation(design, y);
     let mut fit = logit::fit(design, y, None, &opts, None);
     let eta = logit::linear_predictor(design, &fit.beta);

@@ -110,7 +110,7 @@ where
     T: Send,
     F: Fn(usize, &mut Stream) -> T + Sync + Send,
 {
-    let stage = aftercast_core::progress::stage(format!("{n} draws"), Some(n as u64));
+    let stage = aftercast_core::progress::stage(format!("making {n} draws"), Some(n as u64));
     (0..n)
         .into_par_iter()
         .map(|i| {

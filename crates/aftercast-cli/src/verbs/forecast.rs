@@ -11,7 +11,7 @@ use std::path::PathBuf;
 /// Arguments of `forecast` (flag names are the contract in ../shared/DESIGN.md).
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// Series file (CSV, or Parquet by extension .parquet): one row per period.
+    /// Series file (CSV, or Parquet by extension .parquet or .pq): one row per period.
     #[arg(long)]
     pub data: PathBuf,
     /// Time column (ISO dates or integer periods).

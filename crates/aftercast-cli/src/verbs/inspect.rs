@@ -29,7 +29,7 @@ pub enum Shape {
 /// Arguments of `inspect`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// Input file (CSV, or Parquet by extension .parquet).
+    /// Input file (CSV, or Parquet by extension .parquet or .pq).
     #[arg(long)]
     pub data: PathBuf,
     /// How to read it.
@@ -138,8 +138,13 @@ fn projection(a: &Args) -> anyhow::Result<Projection> {
 pub fn run(a: &Args) -> anyhow::Result<()> {
     let table = read_table(&a.data, &projection(a)?)?;
     let info = table.info();
-    let mut lines =
-        vec![format!("{}: {} rows, {} columns ({:?})", info.path, info.rows, table.header().len(), table.format())];
+    let mut lines = vec![format!(
+        "{}: {} rows, {} columns ({})",
+        info.path,
+        info.rows,
+        table.header().len(),
+        table.format().name()
+    )];
     let mut doc = json!({ "input": info, "columns": table.header() });
     match a.shape {
         Shape::Table => {

@@ -9,7 +9,7 @@ use std::path::PathBuf;
 /// Arguments of `match` (flag names are the contract in ../shared/DESIGN.md).
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// Unit table (CSV, or Parquet by extension .parquet): one row per unit.
+    /// Unit table (CSV, or Parquet by extension .parquet or .pq): one row per unit.
     #[arg(long)]
     pub data: PathBuf,
     /// Treatment column (1/0, true/false, yes/no, treated/control).

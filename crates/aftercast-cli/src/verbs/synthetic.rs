@@ -9,7 +9,7 @@ use std::path::PathBuf;
 /// Arguments of `synthetic` (flag names are the contract in ../shared/DESIGN.md).
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// Panel in long format (CSV, or Parquet by extension .parquet): one row per unit and period.
+    /// Panel in long format (CSV, or Parquet by extension .parquet or .pq): one row per unit and period.
     #[arg(long)]
     pub data: PathBuf,
     /// Unit column.
