@@ -210,7 +210,33 @@ fn not_utf8_anywhere_is_located_as_before_even_in_a_column_not_read() {
         .expect_err("not UTF-8")
         .to_string();
         assert_eq!(got, want);
-        assert!(got.contains("line 4") && got.contains("not valid UTF-8"), "{got}");
+        assert!(got.contains("line 4, column 2 ('b')") && got.contains("not valid UTF-8"), "{got}");
+    }
+}
+
+#[test]
+fn a_missing_column_is_refused_when_the_header_is_read() {
+    // the ragged row further down is never reached: the header already says what is wrong
+    let bytes = b"date,orders\n2024-01-01,1\n2024-01-02,2,3\n";
+    let err = RawTable::from_csv_bytes_with(
+        Path::new("s.csv"),
+        bytes,
+        &Projection::none().text("date").number("order"),
+        CsvChunking::default(),
+    )
+    .map(|_| ())
+    .expect_err("no such column")
+    .to_string();
+    assert!(err.contains("no column named 'order'") && err.contains("date, orders"), "{err}");
+}
+
+#[test]
+fn other_formats_given_as_csv_are_recognised() {
+    for (bytes, hint) in
+        [(&b"PAR1\x15\x04"[..], ".parquet"), (&b"\x1f\x8b\x08\x00"[..], "gzip"), (&b"PK\x03\x04"[..], "zip")]
+    {
+        let err = RawTable::from_csv_bytes(Path::new("x.csv"), bytes).map(|_| ()).expect_err("not CSV").to_string();
+        assert!(err.contains(hint), "{err}");
     }
 }
 
