@@ -272,15 +272,6 @@ impl Column {
             Column::Text(c) => parse_number_text(c.get(r)),
         }
     }
-
-    /// Bytes held, roughly (for the memory accounting in benchmarks and `inspect`).
-    pub fn heap_bytes(&self) -> usize {
-        let dict = |d: &Dictionary| d.levels.iter().map(|l| l.len() + 16).sum::<usize>();
-        match self {
-            Column::Number(c) => c.values.capacity() * 8 + c.exceptions.capacity() * 8 + dict(&c.texts),
-            Column::Text(c) => c.codes.capacity() * 4 + dict(&c.dict),
-        }
-    }
 }
 
 /// A finite number in its shortest exact form (`1`, `0.1`, `2.5e-8`); other values by name.

@@ -11,8 +11,9 @@
 //!
 //! The fast path only checks what it must to stay correct. When a chunk meets anything wrong
 //! with the file's shape (a row with the wrong number of fields, text that is not UTF-8, a CSV
-//! syntax error, a bad header), the file is read a second time by the plain sequential reader,
-//! [`sequential_records`], which finds and describes the first problem exactly as it always has.
+//! syntax error), that chunk is read again by the plain sequential reader, which describes the
+//! problem exactly as it always has: every chunk before it was read, so it is the file's first
+//! such problem. A problem in the header is described from the bytes read so far.
 
 use crate::column::{Column, ColumnKind};
 use crate::error::{DataError, DataResult, Location};

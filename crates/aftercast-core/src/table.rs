@@ -203,6 +203,13 @@ impl RawTable {
         rows: usize,
     ) -> DataResult<Self> {
         let index = header_index(path, &header)?;
+        // columns address their rows with 32-bit numbers
+        if rows > u32::MAX as usize {
+            return Err(DataError::Invalid {
+                at: Location::file(path),
+                message: format!("{rows} rows: at most {} rows can be read from one file", u32::MAX),
+            });
+        }
         if rows == 0 {
             return Err(DataError::NoRows { path: path.to_path_buf() });
         }

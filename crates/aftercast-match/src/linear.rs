@@ -24,8 +24,8 @@ pub fn wls(design: &Design, rows: &[usize], y: &[f64], w: &[f64]) -> DVector<f64
 
 /// Weighted cross products `X'WX` (lower triangle, row-major, `p * p`) and `X'Wy` over `n`
 /// rows given by `row(r)` (width `p`), weights `w[r]` (rows of weight 0 skipped). Every entry
-/// is summed over the rows in order; common widths use a kernel of fixed width, which the
-/// compiler unrolls (the same sums, so the same numbers).
+/// is summed over the rows in order; common widths use the kernel compiled for their width,
+/// which the compiler unrolls (the same sums, so the same numbers).
 pub fn cross_products<'a>(
     p: usize,
     n: usize,
@@ -36,20 +36,37 @@ pub fn cross_products<'a>(
     macro_rules! fixed {
         ($($k:literal)*) => {
             match p {
-                $($k => return cross_fixed::<$k>(n, row, y, w),)*
-                _ => {}
+                $($k => cross_width::<$k>(p, n, row, y, w),)*
+                _ => cross_width::<0>(p, n, row, y, w),
             }
         };
     }
-    fixed!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16 17 18 19 20 21 22 23 24);
+    fixed!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16 17 18 19 20 21 22 23 24)
+}
+
+/// [`cross_products`] for width `K` (0: `p`, not known when compiling).
+fn cross_width<'a, const K: usize>(
+    p: usize,
+    n: usize,
+    row: impl Fn(usize) -> &'a [f64],
+    y: &[f64],
+    w: &[f64],
+) -> (Vec<f64>, Vec<f64>) {
+    let p = if K > 0 { K } else { p };
     let mut lower = vec![0.0; p * p];
     let mut xty = vec![0.0; p];
+    let mut fixed_row = [0.0f64; K];
     for r in 0..n {
         let wi = w[r];
         if wi == 0.0 {
             continue;
         }
-        let x = row(r);
+        let x: &[f64] = if K > 0 {
+            fixed_row.copy_from_slice(row(r));
+            &fixed_row
+        } else {
+            row(r)
+        };
         for a in 0..p {
             let va = wi * x[a];
             xty[a] += va * y[r];
@@ -59,37 +76,6 @@ pub fn cross_products<'a>(
         }
     }
     (lower, xty)
-}
-
-fn cross_fixed<'a, const K: usize>(
-    n: usize,
-    row: impl Fn(usize) -> &'a [f64],
-    y: &[f64],
-    w: &[f64],
-) -> (Vec<f64>, Vec<f64>) {
-    // the whole square is updated (it vectorises); only the lower triangle is returned
-    let mut h = [[0.0f64; K]; K];
-    let mut xty = [0.0f64; K];
-    for r in 0..n {
-        let wi = w[r];
-        if wi == 0.0 {
-            continue;
-        }
-        let mut x = [0.0f64; K];
-        x.copy_from_slice(row(r));
-        for a in 0..K {
-            let va = wi * x[a];
-            xty[a] += va * y[r];
-            for (hb, xb) in h[a].iter_mut().zip(&x) {
-                *hb += va * xb;
-            }
-        }
-    }
-    let mut lower = vec![0.0; K * K];
-    for a in 0..K {
-        lower[a * K..a * K + a + 1].copy_from_slice(&h[a][..=a]);
-    }
-    (lower, xty.to_vec())
 }
 
 /// Prediction of a linear model at design row `i`.

@@ -77,6 +77,15 @@ struct Acc {
     ll: f64,
 }
 
+/// One row's terms at linear predictor `eta`: its log-likelihood, its gradient weight
+/// `w (y - p)` and its information weight `w p (1 - p)`.
+#[inline(always)]
+fn row_terms(eta: f64, treated: bool, wi: f64) -> (f64, f64, f64) {
+    let (p, sp) = sigmoid_softplus(eta);
+    let yi = if treated { 1.0 } else { 0.0 };
+    (wi * (yi * eta - sp), wi * (yi - p), wi * p * (1.0 - p))
+}
+
 /// Log-likelihood, gradient and (lower triangle of the) information over rows `lo..hi`; with
 /// `ll_only` the gradient and information are left at zero.
 #[allow(clippy::too_many_arguments)]
@@ -112,14 +121,11 @@ fn accumulate(
             continue;
         }
         let eta: f64 = row.iter().zip(beta).map(|(a, b)| a * b).sum();
-        let (p, sp) = sigmoid_softplus(eta);
-        let yi = if y[i] { 1.0 } else { 0.0 };
-        ll += wi * (yi * eta - sp);
+        let (l, r, v) = row_terms(eta, y[i], wi);
+        ll += l;
         if ll_only {
             continue;
         }
-        let r = wi * (yi - p);
-        let v = wi * p * (1.0 - p);
         for a in 0..k {
             g[a] += r * row[a];
             let va = v * row[a];
@@ -155,11 +161,8 @@ fn accumulate_fixed<const K: usize>(
         let mut x = [0.0f64; K];
         x.copy_from_slice(row);
         let eta: f64 = x.iter().zip(&b).map(|(a, c)| a * c).sum();
-        let (p, sp) = sigmoid_softplus(eta);
-        let yi = if y[i] { 1.0 } else { 0.0 };
-        ll += wi * (yi * eta - sp);
-        let r = wi * (yi - p);
-        let v = wi * p * (1.0 - p);
+        let (l, r, v) = row_terms(eta, y[i], wi);
+        ll += l;
         for a in 0..K {
             g[a] += r * x[a];
             let va = v * x[a];
