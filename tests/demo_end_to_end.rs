@@ -67,6 +67,7 @@ fn demo_writes_everything_and_covers_every_true_effect() {
             "synthetic" => &["posterior", "treated-vs-synthetic", "effect", "running-total", "placebo-gaps", "weights"],
             "match" => &["posterior", "propensity", "balance"],
             "compare" => &["posterior", "versus-truth"],
+            "plan" => &["posterior", "power", "mde"],
             _ => &["posterior"],
         };
         for view in views {
@@ -95,6 +96,7 @@ fn demo_writes_everything_and_covers_every_true_effect() {
     let truth: serde_json::Value =
         serde_json::from_slice(&std::fs::read(out.join("truth.json")).expect("truth")).expect("truth.json");
     issue_11_one_estimate_everywhere(&out, &doc, &terminal, &html, &truth);
+    issue_15_the_plan_before_the_launch(&doc, &terminal, &html, &truth);
     for needle in ["<html", "randomized", "aftercast run"] {
         assert!(html.contains(needle), "report.html lacks {needle}");
     }
@@ -102,6 +104,27 @@ fn demo_writes_everything_and_covers_every_true_effect() {
 
     let again = Command::new(env!("CARGO_BIN_EXE_aftercast")).args(["demo", "--out"]).arg(&out).output().expect("run");
     assert_eq!(again.status.code(), Some(2), "a non-empty --out must be refused without --force");
+}
+
+/// Issue 15: the demo's plan of the app launch (the structural forecast's own set-up, placebo
+/// dates before the launch): the smallest visible change falls with the wait, and after the
+/// whole post-period it is below the launch's true effect; its answer is in every output.
+fn issue_15_the_plan_before_the_launch(doc: &StudyDoc, terminal: &str, html: &str, truth: &serde_json::Value) {
+    let a = doc.analyses.iter().find(|a| a.result.verb == "plan").expect("the demo plans the launch");
+    let p = a.result.planning.as_ref().expect("planning section");
+    let mde: Vec<(usize, f64)> = p.mde.iter().map(|m| (m.wait, m.mde.unwrap_or(f64::INFINITY))).collect();
+    assert!(mde.windows(2).all(|w| w[1].1 < w[0].1), "the MDE must fall with the wait: {mde:?}");
+    let true_effect = truth["app_launch"]["orders"]["relative_effect"].as_f64().expect("true relative effect");
+    let post_days = truth["app_launch"]["post_days"].as_u64().expect("post days") as usize;
+    let (longest, at_full) = *mde.last().expect("waits");
+    assert_eq!(longest, post_days, "the longest wait is the post-period's length");
+    assert!(at_full < true_effect, "MDE after {longest} days {at_full} is not below the true {true_effect}");
+    // placebo windows end before the launch and false positives are counted
+    assert!(p.false_positive_rate.placebos >= 30);
+    let sentence = aftercast_report::numbers::plan_sentence(p);
+    assert!(terminal.contains(&sentence), "terminal lacks the plan's answer: {sentence}");
+    let escaped = sentence.replace('&', "&amp;").replace('\'', "&#39;");
+    assert!(html.contains(&sentence) || html.contains(&escaped), "report lacks the plan's answer: {sentence}");
 }
 
 /// Issue 11: the terminal, result.json and report.html show the same point and the same

@@ -1,6 +1,6 @@
 //! Issue 11 (one estimate from every estimator to every output), through the real binary:
 //! the ROPE's units are applied once, on the right summary (hand-computed verdicts for
-//! `compare --summarize` and `backtest --plasmode`); negative values parse; a single verb's
+//! `compare --summarize` and `compare --plasmode`); negative values parse; a single verb's
 //! `--out` keeps its draws, and the terminal, result.json and report.html show the same point
 //! and interval.
 
@@ -77,7 +77,7 @@ fn issue_11_plasmode_judges_the_rope_in_its_own_units() {
     let dir = tempfile::tempdir().expect("tempdir");
     let u = units(dir.path());
     let base = [
-        "backtest",
+        "compare",
         "--plasmode",
         u.as_str(),
         "--outcome",

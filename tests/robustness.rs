@@ -149,7 +149,7 @@ fn issue_14_case_1_an_output_never_replaces_an_input() {
 fn issue_14_case_1_a_study_never_writes_outside_its_output_folder() {
     let s = Scratch::new();
     std::fs::write(s.p("precious.txt"), b"keep me").expect("write");
-    let study = "title = \"t\"\n[[analysis]]\nname = \"b\"\nverb = \"backtest\"\n[analysis.flags]\ndata = \"app_daily.csv\"\ntime = \"date\"\noutcome = \"app_orders\"\nstart = \"2026-03-02\"\npartial = \"../precious.txt\"\n";
+    let study = "title = \"t\"\n[[analysis]]\nname = \"b\"\nverb = \"plan forecast\"\n[analysis.flags]\ndata = \"app_daily.csv\"\ntime = \"date\"\noutcome = \"app_orders\"\nstart = \"2026-03-02\"\npartial = \"../precious.txt\"\n";
     std::fs::write(s.p("study.toml"), study).expect("study");
     let out = run(&["run", &s.s("study.toml"), "--out", &s.s("out")]);
     assert_refused(&out, 2, &["study.toml", "'partial'", "inside the output folder"]);
@@ -162,7 +162,7 @@ fn issue_14_case_2_requests_beyond_memory_are_refused_with_the_largest_value_tha
     let s = Scratch::new();
     let plasmode = |n: &str| {
         run(&[
-            "backtest",
+            "compare",
             "--plasmode",
             &s.s("members.csv"),
             "--treatment",
@@ -405,7 +405,8 @@ fn issue_14_case_10_ctrl_c_on_a_backtest_exits_130_and_keeps_what_is_done() {
     let partial = s.p("partial.jsonl");
     let child = Command::new(env!("CARGO_BIN_EXE_aftercast"))
         .args([
-            "backtest",
+            "plan",
+            "forecast",
             "--data",
             &s.s("app_daily.csv"),
             "--time",
@@ -414,6 +415,10 @@ fn issue_14_case_10_ctrl_c_on_a_backtest_exits_130_and_keeps_what_is_done() {
             "app_orders",
             "--start",
             "2026-03-02",
+            "--trend",
+            "level",
+            "--season",
+            "7",
             "--placebos",
             "400",
             "--threads",

@@ -1,48 +1,43 @@
 //! Placebo backtests of a counterfactual model: false positives, coverage, accuracy, and the
-//! power to see an injected lift, per post-period length, with the minimum detectable effect.
+//! power to see an injected lift after each wait, with the minimum detectable effect.
 //!
 //! **Placebo origins.** Inside the pre-period `y[0..n]` (the caller cuts the series before the
-//! real change), `K` pseudo-intervention origins `o_k` are spread evenly over
-//! `min_train ..= n - H_max`, where `H_max` is the longest window asked for (at least the real
-//! post length `H`). At each origin the model is fitted on `y[0..o_k]` and draws counterfactual
-//! paths for `y[o_k .. o_k + H_max]`, where nothing happened.
+//! real change, so no placebo window reaches the real post-period), `K` pseudo-intervention
+//! origins `o_k` are spread evenly over `min_train ..= n - W`, where `W` is the longest wait.
+//! The caller sets `min_train` so that every fit sees at least one full cycle of the model's
+//! longest season. At each origin the model is fitted on `y[0..o_k]` and draws counterfactual
+//! paths for `y[o_k .. o_k + W]`, where nothing happened.
 //!
-//! **Per origin and window length `L`** (sums skip missing observations):
+//! **Per origin and wait `L`** (sums skip missing observations):
 //! `A_d = sum_{t<L} y[o+t] / sum_{t<L} cf_d[t]` per path draw `d`, and the HDI `[a_lo, a_hi]` of
-//! `A` at the level. The relative effect of a window with no change is `A - 1`; with an
-//! injected multiplicative lift `δ` (every observed value times `1 + δ`) it is
-//! `(1 + δ) A - 1`, an increasing affine map of `A`, so its HDI is `[(1+δ) a_lo - 1,
+//! `A` at the level. The relative effect of a window with no change is `A_d - 1` per draw; with
+//! an injected multiplicative lift `δ` (every observed value times `1 + δ`) it is
+//! `(1 + δ) A_d - 1`, an increasing affine map of `A_d`, so its HDI is `[(1+δ) a_lo - 1,
 //! (1+δ) a_hi - 1]` exactly; the injected windows need no refit (the model only sees data
-//! before the origin).
+//! before the origin). The lift is seen when that HDI excludes zero on its side, so the
+//! smallest increase seen is `1 / a_lo - 1` and the smallest decrease `1 - 1 / a_hi`: the
+//! thresholds [`crate::plan`] turns into power, minimum detectable effects and waits, for every
+//! wait from 1 to `W`.
 //!
-//! - *false positive* (at the real post length `H`): the HDI of the relative effect excludes 0
-//!   (the verdict would be gain, gain-but-small, loss-but-small or loss);
-//! - *detected* lift `δ > 0`: `(1+δ) a_lo > 1` (the verdict would say the metric rose);
-//!   for `δ < 0`: `(1+δ) a_hi < 1`;
+//! - *false positive* (at the longest wait): the HDI of the relative effect excludes 0;
 //! - *window coverage*: the equal-tailed interval of the summed counterfactual holds the
 //!   observed sum; *pointwise coverage*: share of periods whose observation lies inside that
 //!   period's equal-tailed counterfactual interval; *RMSE*: of `y - mean cf` over periods.
 //!
-//! **Minimum detectable effect.** At origin `k` the smallest detected increase is
-//! `δ_k = 1 / a_lo - 1` (when `a_lo > 0`), so the empirical power at any `δ` is the share of
-//! origins with `δ_k < δ`, a step function. The MDE at power `p` is the `ceil(p K)`-th smallest
-//! `δ_k`: the smallest lift whose empirical power reaches `p`. It is the exact inverse of the
-//! empirical power curve (what linear interpolation of the power at the requested sizes tends to
-//! as the grid gets finer), so no interpolation between grid sizes is needed. Decreases use
-//! `δ_k = 1 - 1 / a_hi`.
-//!
-//! Runs are parallel over origins ([`par_draws`], one stream per origin, so the finished
-//! results do not depend on the thread count), report their progress to a [`Progress`] the
-//! caller supplies (the binary draws a bar on a terminal), write each finished origin to a
-//! JSON-lines file at once, and stop cleanly when a stop flag is raised (the binary raises it
-//! on Ctrl-C).
+//! A placebo date whose fit fails is reported by its date and message and left out of every
+//! number, never averaged in. Runs are parallel over origins ([`par_draws`], one stream per
+//! origin, so the finished results do not depend on the thread count), report their progress
+//! to a [`Progress`] the caller supplies (the binary draws a bar on a terminal), write each
+//! finished origin to a JSON-lines file at once, and stop cleanly when a stop flag is raised
+//! (the binary raises it on Ctrl-C).
 
 use crate::error::{CalibrateError, CalibrateResult};
-use aftercast_core::estimate::{Estimate, MdePoint, Per, Point, PowerPoint, Scope};
-use aftercast_core::result::EffectDraws;
+use crate::plan::{PlanQuestion, Thresholds};
+use aftercast_core::estimate::{Estimate, Per, Point, Scope};
+use aftercast_core::result::{EffectDraws, Planning};
 use aftercast_core::time::TimePoint;
 use aftercast_resample::rng::{child_seed, par_draws};
-use aftercast_resample::summary::{hdi, quantile_sorted, summarize};
+use aftercast_resample::summary::{hdi, quantile_sorted};
 use serde::{Deserialize, Serialize};
 use serde_json::{Value, json};
 use std::io::Write;
@@ -79,22 +74,20 @@ pub trait PathModel: Send + Sync {
 /// | field | default | meaning | allowed |
 /// | --- | --- | --- | --- |
 /// | `placebos` | 50 | number of placebo origins K | 1..=100000 |
-/// | `post_length` | (required) | real post-period length H | >= 1 |
-/// | `lengths` | H/4, H/2, H | window lengths for power and MDE | 1..=any |
-/// | `lifts` | -5%, 1%, 2%, 5%, 10% | injected multiplicative lifts | > -1, non-zero |
-/// | `min_train` | 2 H (at least 10) | shortest fitting span | >= 2 |
+/// | `waits` | (required) | waits shown in the power and MDE tables | 1..=any |
+/// | `lifts` | 1%, 2%, 5%, 10% | injected multiplicative lifts | > -1, non-zero |
+/// | `min_train` | (required) | shortest fitting span | >= 2 |
 /// | `draws` | 500 | counterfactual paths per origin | >= 20 |
 /// | `level` | 0.9 | interval level | (0, 1) |
-/// | `power` | 0.8 | target power of the MDE | (0, 1) |
+/// | `power` | 0.8 | target power | (0, 1) |
 /// | `seed` | 20240601 (`aftercast_core::DEFAULT_SEED`) | seed | any |
+/// | `wait_unit` | "periods" | what one step of wait is | any |
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct BacktestSpec {
     /// Number of placebo origins.
     pub placebos: usize,
-    /// Real post-period length.
-    pub post_length: usize,
-    /// Window lengths for power.
-    pub lengths: Vec<usize>,
+    /// Waits shown in the tables (the longest sets the placebo window).
+    pub waits: Vec<usize>,
     /// Injected lifts (fractions: 0.02 = +2%).
     pub lifts: Vec<f64>,
     /// Shortest fitting span.
@@ -103,27 +96,33 @@ pub struct BacktestSpec {
     pub draws: usize,
     /// Interval level.
     pub level: f64,
-    /// Target power of the MDE.
+    /// Target power.
     pub power: f64,
     /// Seed.
     pub seed: u64,
+    /// What one step of wait is ("days", "weeks", ...).
+    pub wait_unit: String,
 }
 
+/// The lifts a plan asks about unless told otherwise: +1%, +2%, +5%, +10%.
+pub const DEFAULT_LIFTS: [f64; 4] = [0.01, 0.02, 0.05, 0.10];
+
 impl BacktestSpec {
-    /// Defaults for a real post length `h`.
-    pub fn new(post_length: usize) -> Self {
-        let mut lengths = vec![(post_length / 4).max(1), (post_length / 2).max(1), post_length.max(1)];
-        lengths.dedup();
+    /// Defaults for the given waits and shortest fitting span.
+    pub fn new(waits: Vec<usize>, min_train: usize) -> Self {
+        let mut waits = waits;
+        waits.sort_unstable();
+        waits.dedup();
         BacktestSpec {
             placebos: 50,
-            post_length,
-            lengths,
-            lifts: vec![-0.05, 0.01, 0.02, 0.05, 0.10],
-            min_train: (2 * post_length).max(10),
+            waits,
+            lifts: DEFAULT_LIFTS.to_vec(),
+            min_train,
             draws: 500,
             level: 0.9,
             power: 0.8,
             seed: aftercast_core::DEFAULT_SEED,
+            wait_unit: "periods".into(),
         }
     }
 
@@ -131,17 +130,17 @@ impl BacktestSpec {
         let bad = |name: &'static str, value: String, detail: &str| {
             Err(CalibrateError::BadParameter { name, value, detail: detail.into() })
         };
-        if self.post_length == 0 {
-            return bad("--end", "0".into(), "the post-period needs at least one period");
-        }
         if !(1..=100_000).contains(&self.placebos) {
             return bad("--placebos", self.placebos.to_string(), "between 1 and 100000");
         }
-        if self.lengths.is_empty() || self.lengths.contains(&0) {
-            return bad("--lengths", format!("{:?}", self.lengths), "positive window lengths");
+        if self.waits.is_empty() || self.waits.contains(&0) {
+            return bad("--waits", format!("{:?}", self.waits), "positive waits");
         }
         if let Some(l) = self.lifts.iter().find(|l| !(l.is_finite() && **l > -1.0 && **l != 0.0)) {
             return bad("--lifts", l.to_string(), "finite, above -100%, not zero");
+        }
+        if self.lifts.is_empty() {
+            return bad("--lifts", String::new(), "at least one lift");
         }
         if self.min_train < 2 {
             return bad("--min-train", self.min_train.to_string(), "at least 2");
@@ -158,9 +157,9 @@ impl BacktestSpec {
         Ok(())
     }
 
-    /// Longest window.
+    /// Longest wait: the placebo window.
     pub fn horizon(&self) -> usize {
-        self.lengths.iter().copied().max().unwrap_or(0).max(self.post_length)
+        self.waits.iter().copied().max().unwrap_or(0)
     }
 }
 
@@ -200,11 +199,11 @@ pub trait Progress: Sync {
     fn finish(&self);
 }
 
-/// Per-window numbers of one origin.
+/// Per-wait numbers of one origin.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct WindowRatio {
-    /// Window length.
-    pub length: usize,
+    /// The wait.
+    pub wait: usize,
     /// Lower end of the HDI of observed sum / counterfactual sum.
     pub ratio_lower: f64,
     /// Upper end.
@@ -221,56 +220,66 @@ pub struct OriginResult {
     /// Its time, when known.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub time: Option<TimePoint>,
-    /// Mean relative placebo effect over the real post length.
-    pub relative_mean: f64,
-    /// HDI of the relative placebo effect.
+    /// The placebo unit of a panel plan (placebo in space), if any.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub label: Option<String>,
+    /// Median over draws of the relative placebo effect over the longest wait.
+    pub relative_median: f64,
+    /// HDI of the relative placebo effect (it holds the median).
     pub relative_hdi: (f64, f64),
-    /// Mean average-per-period placebo effect (outcome units).
-    pub average_mean: f64,
+    /// Median average-per-period placebo effect (outcome units).
+    pub average_median: f64,
+    /// Mean counterfactual level per period over the window (outcome units).
+    pub counterfactual_level: f64,
     /// The HDI of the relative effect excludes zero.
     pub false_positive: bool,
     /// The equal-tailed interval of the counterfactual sum holds the observed sum.
     pub window_covered: bool,
-    /// Periods (of H) whose observation lies inside the pointwise interval.
+    /// Periods whose observation lies inside the pointwise interval.
     pub periods_covered: usize,
-    /// Observed periods in the window of length H.
+    /// Observed periods in the window.
     pub periods_observed: usize,
-    /// Sum of squared errors `y - mean cf` over the window of length H.
+    /// Sum of squared errors `y - mean cf` over the window.
     pub squared_error: f64,
-    /// Sum of |y| over the window of length H.
+    /// Sum of |y| over the window.
     pub abs_observed: f64,
-    /// Per window length.
+    /// Per shown wait.
     pub windows: Vec<WindowRatio>,
+    /// Thresholds (smallest increase, smallest decrease seen) at every wait 1..=W.
+    #[serde(skip)]
+    pub thresholds: Vec<(f64, f64)>,
 }
 
-/// Power at one window length and lift.
+/// A placebo date whose fit failed: reported, left out of every number.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct PowerRow {
-    /// Window length.
-    pub length: usize,
-    /// Lift (fraction).
-    pub lift: f64,
-    /// Share of origins where the lift was detected.
-    pub power: f64,
-    /// Origins where it was detected.
-    pub detected: usize,
-    /// Origins.
-    pub origins: usize,
+pub struct PlaceboFailure {
+    /// Index among the planned origins.
+    pub index: usize,
+    /// Position of the origin in the series.
+    pub origin: usize,
+    /// Its time, when known.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub time: Option<TimePoint>,
+    /// The placebo unit, if any.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub label: Option<String>,
+    /// What went wrong.
+    pub message: String,
 }
 
-/// Minimum detectable effect at one window length.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct MdeRow {
-    /// Window length.
-    pub length: usize,
-    /// Smallest increase detected at the target power (fraction), if any.
-    pub increase: Option<f64>,
-    /// Smallest decrease (as a positive fraction) detected at the target power, if any.
-    pub decrease: Option<f64>,
+impl PlaceboFailure {
+    /// Where it failed, in words: "placebo date 2025-02-01", "unit r07 from 2026-03-02".
+    pub fn place(&self) -> String {
+        let when = self.time.map_or_else(|| format!("position {}", self.origin), |t| t.to_string());
+        match &self.label {
+            Some(u) => format!("placebo unit {u} from {when}"),
+            None => format!("placebo date {when}"),
+        }
+    }
 }
 
 /// A finished (or interrupted) backtest.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct BacktestReport {
     /// Model.
     pub model: String,
@@ -284,10 +293,6 @@ pub struct BacktestReport {
     pub origins_completed: usize,
     /// Whether the run was stopped early.
     pub interrupted: bool,
-    /// Share of finished origins with a false positive.
-    pub false_positive_rate: f64,
-    /// Binomial standard error of that share (optimistic when windows overlap).
-    pub false_positive_se: f64,
     /// Share of origins whose window sum was covered.
     pub window_coverage: f64,
     /// Share of periods covered pointwise.
@@ -296,14 +301,13 @@ pub struct BacktestReport {
     pub rmse: f64,
     /// RMSE divided by the mean |y| of the windows.
     pub rmse_relative: f64,
-    /// Power per length and lift.
-    pub power: Vec<PowerRow>,
-    /// MDE per length.
-    pub mde: Vec<MdeRow>,
+    /// Power, minimum detectable effects, waits and false positives.
+    #[serde(skip)]
+    pub planning: Planning,
     /// Finished origins.
     pub origins: Vec<OriginResult>,
-    /// Origins whose fit failed (index, message).
-    pub failures: Vec<(usize, String)>,
+    /// Origins whose fit failed.
+    pub failures: Vec<PlaceboFailure>,
     /// Plain-language warnings.
     pub warnings: Vec<String>,
 }
@@ -324,44 +328,65 @@ pub fn placebo_origins(n: usize, min_train: usize, horizon: usize, k: usize) -> 
     v
 }
 
-fn evaluate_origin(
-    index: usize,
-    origin: usize,
-    data: &BacktestData<'_>,
-    spec: &BacktestSpec,
-    paths: &[Vec<f64>],
-) -> OriginResult {
-    let h = spec.post_length;
-    let y = &data.y[origin..origin + spec.horizon()];
+/// Thresholds `(1 / a_lo - 1, 1 - 1 / a_hi)` of a ratio HDI (infinite where no lift is seen).
+pub fn ratio_thresholds(lo: f64, hi: f64) -> (f64, f64) {
+    let up = if lo > 0.0 { 1.0 / lo - 1.0 } else { f64::INFINITY };
+    let down = if hi > 0.0 && hi.is_finite() { 1.0 - 1.0 / hi } else { f64::INFINITY };
+    (up, down)
+}
+
+/// The median of a sorted, non-empty slice.
+fn median_sorted(v: &[f64]) -> f64 {
+    quantile_sorted(v, 0.5)
+}
+
+fn evaluate_origin(index: usize, job: &PlaceboJob, spec: &BacktestSpec, w: &PlaceboWindow) -> OriginResult {
+    let h = spec.horizon();
+    let y = &w.observed;
+    let paths = &w.paths;
     let tail = (1.0 - spec.level) / 2.0;
-    let sums = |len: usize| -> (f64, Vec<f64>) {
-        let sy: f64 = y[..len].iter().filter(|v| v.is_finite()).sum();
-        let scf: Vec<f64> =
-            paths.iter().map(|p| (0..len).filter(|&t| y[t].is_finite()).map(|t| p[t]).sum::<f64>()).collect();
-        (sy, scf)
-    };
-    let ratio_hdi = |len: usize| -> (f64, f64) {
-        let (sy, scf) = sums(len);
-        let mut a: Vec<f64> = scf.iter().map(|s| sy / s).filter(|v| v.is_finite()).collect();
-        a.sort_by(f64::total_cmp);
-        hdi(&a, spec.level)
-    };
-    let (sy, scf) = sums(h);
-    let rel: Vec<f64> = scf.iter().map(|s| sy / s - 1.0).collect();
-    let rs = summarize(&rel, spec.level, None);
-    let nobs = y[..h].iter().filter(|v| v.is_finite()).count();
-    let avg: Vec<f64> = scf.iter().map(|s| (sy - s) / nobs.max(1) as f64).collect();
+    // running sums per draw over observed periods, so every wait costs one pass
+    let mut scf = vec![0.0; paths.len()];
+    let mut sy = 0.0;
+    let mut thresholds = Vec::with_capacity(h);
+    let mut shown = Vec::new();
+    let mut ratios = Vec::with_capacity(paths.len());
+    for t in 0..h {
+        if y[t].is_finite() {
+            sy += y[t];
+            for (s, p) in scf.iter_mut().zip(paths) {
+                *s += p[t];
+            }
+        }
+        ratios.clear();
+        ratios.extend(scf.iter().map(|s| sy / s).filter(|v| v.is_finite()));
+        ratios.sort_by(f64::total_cmp);
+        let (lo, hi) = if ratios.is_empty() { (f64::NAN, f64::NAN) } else { hdi(&ratios, spec.level) };
+        thresholds.push(if lo.is_nan() { (f64::INFINITY, f64::INFINITY) } else { ratio_thresholds(lo, hi) });
+        if spec.waits.contains(&(t + 1)) {
+            shown.push(WindowRatio { wait: t + 1, ratio_lower: lo, ratio_upper: hi });
+        }
+    }
+    let nobs = y.iter().filter(|v| v.is_finite()).count();
+    let mut rel: Vec<f64> = scf.iter().map(|s| sy / s - 1.0).filter(|v| v.is_finite()).collect();
+    rel.sort_by(f64::total_cmp);
+    let (rlo, rhi) = if rel.is_empty() { (f64::NAN, f64::NAN) } else { hdi(&rel, spec.level) };
+    let rmed = if rel.is_empty() { f64::NAN } else { median_sorted(&rel) };
+    let mut avg: Vec<f64> = scf.iter().map(|s| (sy - s) / nobs.max(1) as f64).collect();
+    avg.sort_by(f64::total_cmp);
     let mut scf_sorted = scf.clone();
     scf_sorted.sort_by(f64::total_cmp);
     let window_covered = quantile_sorted(&scf_sorted, tail) <= sy && sy <= quantile_sorted(&scf_sorted, 1.0 - tail);
     let mut periods_covered = 0;
     let mut sq = 0.0;
     let mut abs_obs = 0.0;
+    let mut col = Vec::with_capacity(paths.len());
     for t in 0..h {
         if !y[t].is_finite() {
             continue;
         }
-        let mut col: Vec<f64> = paths.iter().map(|p| p[t]).collect();
+        col.clear();
+        col.extend(paths.iter().map(|p| p[t]));
         col.sort_by(f64::total_cmp);
         let mean = col.iter().sum::<f64>() / col.len() as f64;
         if quantile_sorted(&col, tail) <= y[t] && y[t] <= quantile_sorted(&col, 1.0 - tail) {
@@ -370,45 +395,29 @@ fn evaluate_origin(
         sq += (y[t] - mean).powi(2);
         abs_obs += y[t].abs();
     }
-    let windows = spec
-        .lengths
-        .iter()
-        .map(|&len| {
-            let (lo, hi) = ratio_hdi(len);
-            WindowRatio { length: len, ratio_lower: lo, ratio_upper: hi }
-        })
-        .collect();
     OriginResult {
         index,
-        origin,
-        time: data.times.and_then(|t| t.get(origin).copied()),
-        relative_mean: rs.mean,
-        relative_hdi: (rs.hdi_lower, rs.hdi_upper),
-        average_mean: avg.iter().sum::<f64>() / avg.len().max(1) as f64,
-        false_positive: rs.hdi_lower > 0.0 || rs.hdi_upper < 0.0,
+        origin: job.origin,
+        time: job.time,
+        label: job.label.clone(),
+        relative_median: rmed,
+        relative_hdi: (rlo, rhi),
+        average_median: median_sorted(&avg),
+        counterfactual_level: median_sorted(&scf_sorted) / nobs.max(1) as f64,
+        false_positive: rlo > 0.0 || rhi < 0.0,
         window_covered,
         periods_covered,
         periods_observed: nobs,
         squared_error: sq,
         abs_observed: abs_obs,
-        windows,
+        windows: shown,
+        thresholds,
     }
 }
 
 /// Whether a lift is detected at one origin and window (see the module docs).
 pub fn detected(w: &WindowRatio, lift: f64) -> bool {
-    if lift > 0.0 { (1.0 + lift) * w.ratio_lower > 1.0 } else { (1.0 + lift) * w.ratio_upper < 1.0 }
-}
-
-/// The `ceil(p n)`-th smallest value (None if it is not finite or there are no values).
-fn order_stat(mut v: Vec<f64>, p: f64) -> Option<f64> {
-    if v.is_empty() {
-        return None;
-    }
-    v.sort_by(f64::total_cmp);
-    let k = ((p * v.len() as f64) - 1e-9).ceil().clamp(1.0, v.len() as f64) as usize;
-    let x = v[k - 1];
-    x.is_finite().then_some(x)
+    crate::plan::seen(lift, ratio_thresholds(w.ratio_lower, w.ratio_upper))
 }
 
 /// Aggregate finished origins into the report's numbers.
@@ -418,58 +427,55 @@ pub fn aggregate(
     spec: &BacktestSpec,
     planned: usize,
     mut origins: Vec<OriginResult>,
-    failures: Vec<(usize, String)>,
+    failures: Vec<PlaceboFailure>,
     interrupted: bool,
 ) -> BacktestReport {
     origins.sort_by_key(|o| o.index);
     let k = origins.len();
     let kf = k.max(1) as f64;
-    let fp = origins.iter().filter(|o| o.false_positive).count() as f64 / kf;
     let covered: usize = origins.iter().map(|o| o.periods_covered).sum();
     let observed: usize = origins.iter().map(|o| o.periods_observed).sum();
     let sq: f64 = origins.iter().map(|o| o.squared_error).sum();
     let abs: f64 = origins.iter().map(|o| o.abs_observed).sum();
     let rmse = (sq / observed.max(1) as f64).sqrt();
-    let mut power = Vec::new();
-    let mut mde = Vec::new();
-    for (j, &len) in spec.lengths.iter().enumerate() {
-        for &lift in &spec.lifts {
-            let d = origins.iter().filter(|o| detected(&o.windows[j], lift)).count();
-            power.push(PowerRow { length: len, lift, power: d as f64 / kf, detected: d, origins: k });
-        }
-        let inc: Vec<f64> = origins
-            .iter()
-            .map(|o| if o.windows[j].ratio_lower > 0.0 { 1.0 / o.windows[j].ratio_lower - 1.0 } else { f64::INFINITY })
-            .collect();
-        let dec: Vec<f64> = origins
-            .iter()
-            .map(|o| if o.windows[j].ratio_upper > 1.0 { 1.0 - 1.0 / o.windows[j].ratio_upper } else { f64::INFINITY })
-            .collect();
-        mde.push(MdeRow {
-            length: len,
-            increase: order_stat(inc, spec.power).map(|v| v.max(0.0)),
-            decrease: order_stat(dec, spec.power).map(|v| v.max(0.0)),
-        });
-    }
+    let thresholds = Thresholds {
+        waits: (1..=spec.horizon()).collect(),
+        runs: origins.iter().map(|o| o.thresholds.clone()).collect(),
+    };
+    let question = PlanQuestion {
+        shown: spec.waits.clone(),
+        lifts: spec.lifts.clone(),
+        level: spec.level,
+        target: spec.power,
+        judged_wait: spec.horizon(),
+        wait_unit: spec.wait_unit.clone(),
+    };
+    let planning = crate::plan::planning(&thresholds, &question);
     let mut warnings = Vec::new();
     if planned < spec.placebos {
         warnings.push(format!(
-            "only {planned} distinct placebo origins fit in the pre-period (asked for {})",
+            "only {planned} distinct placebo dates fit in the pre-period (asked for {}): the rates below rest on fewer runs",
             spec.placebos
         ));
     }
     if interrupted {
-        warnings.push(format!("interrupted: {k} of {planned} placebo origins finished; the numbers use those only"));
+        warnings.push(format!("interrupted: {k} of {planned} placebo dates finished; the numbers use those only"));
     }
-    if !failures.is_empty() {
-        warnings.push(format!("{} placebo fits failed and are left out", failures.len()));
+    if let Some(f) = failures.first() {
+        let at = f.place();
+        warnings.push(format!(
+            "{} of {planned} placebo fits failed and are left out of every number (first: {at}: {}); if many fail, the plan is unreliable: check the model on that stretch of the series",
+            failures.len(),
+            f.message
+        ));
     }
     if k > 0 && k < 30 {
         warnings.push(format!(
-            "{k} placebo origins give rates with a standard error near {:.0}%",
+            "{k} placebo dates give rates with a standard error near {:.0} percentage points: treat power and false positives as rough",
             50.0 / (k as f64).sqrt()
         ));
     }
+    warnings.extend(crate::plan::warnings(&planning));
     BacktestReport {
         model: model.into(),
         series: series.into(),
@@ -477,14 +483,11 @@ pub fn aggregate(
         origins_planned: planned,
         origins_completed: k,
         interrupted,
-        false_positive_rate: fp,
-        false_positive_se: (fp * (1.0 - fp) / kf).sqrt(),
         window_coverage: origins.iter().filter(|o| o.window_covered).count() as f64 / kf,
         pointwise_coverage: covered as f64 / observed.max(1) as f64,
         rmse,
         rmse_relative: if abs > 0.0 { rmse / (abs / observed.max(1) as f64) } else { f64::NAN },
-        power,
-        mde,
+        planning,
         origins,
         failures,
         warnings,
@@ -507,15 +510,35 @@ impl Partial {
     }
 }
 
-/// Run a backtest.
+/// One placebo run of a plan: where its window starts.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PlaceboJob {
+    /// Position of the window's first period in its series.
+    pub origin: usize,
+    /// Its time, when known.
+    pub time: Option<TimePoint>,
+    /// The placebo unit (placebo in space), if any.
+    pub label: Option<String>,
+}
+
+/// What a placebo run's model gives: the observed window (the longest wait's length) and
+/// counterfactual paths of it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PlaceboWindow {
+    /// Observed values of the window (NaN = missing).
+    pub observed: Vec<f64>,
+    /// Counterfactual paths, one per draw.
+    pub paths: Vec<Vec<f64>>,
+}
+
+/// The window of one placebo run: `(job index, draws, seed)` to its observed values and paths.
+pub type PathsOf<'a> = dyn Fn(usize, usize, u64) -> Result<PlaceboWindow, ModelError> + Sync + 'a;
+
+/// Run a backtest of a model over the evenly spread placebo origins of a series' pre-period.
 ///
 /// # Errors
 /// [`CalibrateError::BadParameter`] for bad settings, [`CalibrateError::TooShort`] when no
-/// origin fits, [`CalibrateError::Io`] for the partial-results file,
-/// [`CalibrateError::Interrupted`] when stopped before any origin finished,
-/// [`CalibrateError::BadPaths`] when the model returns paths of the wrong shape. A model that
-/// fails to fit at an origin is recorded in [`BacktestReport::failures`]; if every origin fails
-/// the first failure is returned as [`CalibrateError::Method`].
+/// origin fits, and the errors of [`run_jobs`].
 pub fn run(
     model: &dyn PathModel,
     data: &BacktestData<'_>,
@@ -540,9 +563,42 @@ pub fn run(
             series: data.name.into(),
             periods: n,
             needed: spec.min_train + horizon,
-            detail: format!("{} to fit on plus a window of {horizon}", spec.min_train),
+            detail: format!(
+                "{} to fit on (at least one full cycle of the longest season) plus the longest wait of {horizon}",
+                spec.min_train
+            ),
         });
     }
+    let jobs: Vec<PlaceboJob> = origins
+        .iter()
+        .map(|&o| PlaceboJob { origin: o, time: data.times.and_then(|t| t.get(o).copied()), label: None })
+        .collect();
+    let paths = |i: usize, draws: usize, seed: u64| {
+        let o = origins[i];
+        let ctrl: Vec<Vec<f64>> = data.controls.iter().map(|c| c[..o + horizon].to_vec()).collect();
+        let paths = model.paths(&data.y[..o], &ctrl, horizon, draws, seed)?;
+        Ok(PlaceboWindow { observed: data.y[o..o + horizon].to_vec(), paths })
+    };
+    run_jobs(&model.name(), data.name, &jobs, &paths, spec, control)
+}
+
+/// Run placebo jobs in parallel and aggregate them.
+///
+/// # Errors
+/// [`CalibrateError::BadParameter`] for bad settings, [`CalibrateError::Io`] for the
+/// partial-results file, [`CalibrateError::Interrupted`] when stopped before any run finished.
+/// A model that fails on a run is recorded in [`BacktestReport::failures`]; if every run fails
+/// the first failure is returned as [`CalibrateError::Method`].
+pub fn run_jobs(
+    model: &str,
+    series: &str,
+    jobs: &[PlaceboJob],
+    paths_of: &PathsOf<'_>,
+    spec: &BacktestSpec,
+    control: &RunControl<'_>,
+) -> CalibrateResult<BacktestReport> {
+    spec.check()?;
+    let horizon = spec.horizon();
     let partial = match control.partial {
         Some(p) => {
             // written line by line so that an interruption keeps what is done; never over an
@@ -550,38 +606,48 @@ pub fn run(
             aftercast_core::output::check_output(p)?;
             let file = std::fs::File::create(p).map_err(|e| aftercast_core::output::output_error(p, e))?;
             let mut w = Partial { file, path: p.to_path_buf() };
-            w.write(&json!({"record": "header", "model": model.name(), "series": data.name, "origins": origins.len(), "spec": spec}))?;
+            w.write(&json!({"record": "header", "model": model, "series": series, "runs": jobs.len(), "spec": spec}))?;
             Some(Mutex::new(w))
         }
         None => None,
     };
     if let Some(p) = control.progress {
-        p.start(origins.len() as u64, "placebo origins");
+        p.start(jobs.len() as u64, "placebo runs");
     }
     let seed = child_seed(spec.seed, "backtest-origins");
     let write_error: Mutex<Option<CalibrateError>> = Mutex::new(None);
-    type Outcome = Option<Result<OriginResult, (usize, String)>>;
-    let outcomes: Vec<Outcome> = par_draws(seed, origins.len(), |i, rng| {
+    type Outcome = Option<Result<OriginResult, PlaceboFailure>>;
+    let outcomes: Vec<Outcome> = par_draws(seed, jobs.len(), |i, rng| {
         if control.stop.is_some_and(|s| s.load(Ordering::SeqCst)) {
             return None;
         }
-        let o = origins[i];
+        let job = &jobs[i];
         let model_seed = rng.next_u64();
-        let ctrl: Vec<Vec<f64>> = data.controls.iter().map(|c| c[..o + horizon].to_vec()).collect();
-        let out = match model.paths(&data.y[..o], &ctrl, horizon, spec.draws, model_seed) {
-            Ok(p) => {
-                if p.is_empty() || p.iter().any(|x| x.len() != horizon || x.iter().any(|v| !v.is_finite())) {
-                    Err((i, format!("expected {} finite paths of length {horizon}", spec.draws)))
+        let fail = |message: String| PlaceboFailure {
+            index: i,
+            origin: job.origin,
+            time: job.time,
+            label: job.label.clone(),
+            message,
+        };
+        let out = match paths_of(i, spec.draws, model_seed) {
+            Ok(w) => {
+                let p = &w.paths;
+                if w.observed.len() != horizon
+                    || p.is_empty()
+                    || p.iter().any(|x| x.len() != horizon || x.iter().any(|v| !v.is_finite()))
+                {
+                    Err(fail(format!("the model gave no usable paths (expected finite paths of length {horizon})")))
                 } else {
-                    Ok(evaluate_origin(i, o, data, spec, &p))
+                    Ok(evaluate_origin(i, job, spec, &w))
                 }
             }
-            Err(e) => Err((i, e.to_string())),
+            Err(e) => Err(fail(e.to_string())),
         };
         if let Some(pw) = &partial {
             let v = match &out {
                 Ok(r) => json!({"record": "origin", "result": r}),
-                Err((i, m)) => json!({"record": "failure", "index": i, "message": m}),
+                Err(f) => json!({"record": "failure", "failure": f}),
             };
             let res = pw.lock().map_err(|_| ()).map(|mut w| w.write(&v));
             if let Ok(Err(e)) = res
@@ -614,14 +680,16 @@ pub fn run(
         if interrupted && failures.is_empty() {
             return Err(CalibrateError::Interrupted);
         }
-        let (i, m) = failures.first().cloned().unwrap_or((0, "no origin finished".into()));
+        let f = failures.first().cloned();
+        let at = f.as_ref().map_or_else(String::new, PlaceboFailure::place);
+        let m = f.map_or_else(|| "no placebo run finished".to_string(), |f| f.message);
         return Err(CalibrateError::Method {
-            method: model.name(),
-            setting: format!("{} (placebo origin {})", data.name, origins.get(i).copied().unwrap_or(0)),
+            method: model.to_string(),
+            setting: format!("{series} ({at}); every placebo fit failed"),
             source: m.into(),
         });
     }
-    let report = aggregate(&model.name(), data.name, spec, origins.len(), done, failures, interrupted);
+    let report = aggregate(model, series, spec, jobs.len(), done, failures, interrupted);
     if let Some(pw) = &partial
         && let Ok(mut w) = pw.lock()
     {
@@ -633,53 +701,47 @@ pub fn run(
 }
 
 impl BacktestReport {
-    /// The one estimate of a backtest: the draws are the mean placebo effects of the origins
-    /// (what the model reports where nothing happened; centred near zero for a well-calibrated
-    /// model); the planning table is the typed diagnostics and the power and MDE figures.
+    /// The one estimate of a backtest: the draws are the placebo effects of the origins (what
+    /// the model reports where nothing happened; centred near zero for a well-calibrated model),
+    /// one per origin: its median average effect and its counterfactual level, so the relative
+    /// effect of a draw is that origin's own. The point is the median over origins of both the
+    /// average and the relative effect, so it lies inside their intervals. The plan (power,
+    /// minimum detectable effects, waits, false positives) is its own section.
     pub fn estimate(&self) -> Estimate<BacktestDiagnostics> {
-        let avg: Vec<f64> = self.origins.iter().map(|o| o.average_mean).collect();
-        // counterfactual level of each origin: average effect / relative effect
-        let base: Vec<f64> = self.origins.iter().map(|o| o.average_mean / o.relative_mean).collect();
-        let finite = |v: &[f64]| {
-            let f: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
-            f.iter().sum::<f64>() / f.len().max(1) as f64
+        let avg: Vec<f64> = self.origins.iter().map(|o| o.average_median).collect();
+        let base: Vec<f64> = self.origins.iter().map(|o| o.counterfactual_level).collect();
+        let sorted_median = |v: Vec<f64>| {
+            let mut f: Vec<f64> = v.into_iter().filter(|x| x.is_finite()).collect();
+            f.sort_by(f64::total_cmp);
+            if f.is_empty() { f64::NAN } else { median_sorted(&f) }
         };
-        let point = finite(&avg);
-        let base_point = finite(&base);
-        let mut table = self.clone();
-        let warnings = std::mem::take(&mut table.warnings);
-        let power = self
-            .power
-            .iter()
-            .map(|p| PowerPoint { post_length: p.length as f64, effect: p.lift, power: p.power })
-            .collect();
-        let mde = self
-            .mde
-            .iter()
-            .filter_map(|m| m.increase.or(m.decrease).map(|v| MdePoint { post_length: m.length as f64, mde: v }))
-            .collect();
+        let point = sorted_median(avg.clone());
+        let rel = sorted_median(avg.iter().zip(&base).map(|(a, b)| a / b).collect());
+        // the baseline that makes point / baseline the median relative effect
+        let base_point =
+            if rel != 0.0 && rel.is_finite() && point != 0.0 { point / rel } else { sorted_median(base.clone()) };
+        let table = self.clone();
         let mut est = Estimate::new(
-            "backtest",
+            "plan",
             &self.model,
             "placebo effect (no change happened)",
             Point::Scalar { effect: point, baseline: Some(base_point) },
             EffectDraws::Scalar { effect: avg, baseline: Some(base) },
             Scope { per: Per::Period, units: 1 },
             BacktestDiagnostics {
-                effect_is: "distribution over placebo origins of the mean placebo effect per period".into(),
+                effect_is: "distribution over placebo dates of the placebo effect per period".into(),
                 backtest: table,
             },
         );
-        est.figures.power = power;
-        est.figures.mde = mde;
-        est.figures.lifts_are_relative = true;
-        for w in warnings {
-            est.warn(w);
+        est.sections.planning = Some(self.planning.clone());
+        for w in &self.warnings {
+            est.warn(w.clone());
         }
         est.assumptions = vec![
             "Nothing changed at the placebo dates, so any effect found there is an error of the model.".into(),
-            "The pre-period behaves like the post-period would have without the change.".into(),
-            "Injected lifts multiply every observed value of the window by the same factor.".into(),
+            "The stretch after the change behaves like the stretches before it: a plan from the past holds only if the series keeps its noise and season.".into(),
+            "A change multiplies every observed value of the window by the same factor.".into(),
+            "A randomized test with a holdout is stronger evidence than any plan of an observational analysis, where one is possible.".into(),
         ];
         est
     }
@@ -690,6 +752,6 @@ impl BacktestReport {
 pub struct BacktestDiagnostics {
     /// What the effect summaries describe.
     pub effect_is: String,
-    /// The planning table (false positives, coverage, power, MDE, origins).
+    /// The placebo runs (coverage, accuracy, origins, failures).
     pub backtest: BacktestReport,
 }

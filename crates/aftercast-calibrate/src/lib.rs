@@ -13,6 +13,7 @@
 //! - [`backtest`]: placebo origins, false-positive rate, coverage, power and minimum
 //!   detectable effect for any [`PathModel`]; [`adapters::forecast`] and
 //!   [`adapters::synthetic`] are the estimator crates' models behind it;
+//! - [`plan`]: power, minimum detectable effects and waits from any placebo runs' thresholds;
 //! - [`plasmode`]: simulated outcomes on real covariates and treatment for matching methods.
 //!
 //! ```
@@ -32,6 +33,7 @@ pub mod compare;
 pub mod error;
 pub mod estimators;
 pub mod history;
+pub mod plan;
 pub mod plasmode;
 pub mod sample;
 pub mod series;

@@ -71,6 +71,20 @@ fn outcome_model(units: &UnitTable, outcome: &str, covariates: &[String]) -> Cal
     let y = outcome_of(units, outcome)?;
     let n = units.len();
     let mut cols = vec![vec![1.0; n]];
+    // a categorical covariate enters as one indicator per level but the first
+    let categorical: Vec<&aftercast_core::units::Categorical> =
+        units.categorical.iter().filter(|c| covariates.contains(&c.name)).collect();
+    let covariates: Vec<String> =
+        covariates.iter().filter(|c| !categorical.iter().any(|k| &k.name == *c)).cloned().collect();
+    let covariates = covariates.as_slice();
+    for c in &categorical {
+        for level in 1..c.levels.len() {
+            let col: Vec<f64> = c.codes.iter().map(|&k| if k == level { 1.0 } else { 0.0 }).collect();
+            if col.iter().any(|v| *v != 0.0) {
+                cols.push(col);
+            }
+        }
+    }
     for c in covariates {
         let v = units.numeric(c).ok_or_else(|| CalibrateError::MissingColumn {
             path: units.input.path.clone().into(),
@@ -183,6 +197,174 @@ pub fn plasmode(
     Ok(reports)
 }
 
+/// A plan of a unit-level analysis by plasmode simulation at several sample sizes.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SizePlan {
+    /// Per simulated data set, per size: the smallest increase and decrease seen (fractions of
+    /// `base`); NaN where the method failed on that data set.
+    pub thresholds: crate::plan::Thresholds,
+    /// The treated units' mean outcome without the change under the outcome model (the level
+    /// lifts are fractions of).
+    pub base: f64,
+    /// Residual sd of the outcome model.
+    pub sigma: f64,
+    /// Failures: (size, message), one per failed data set.
+    pub failures: Vec<(usize, String)>,
+    /// Whether the run was stopped early.
+    pub interrupted: bool,
+}
+
+/// What a unit-table plan asks: the sample sizes and the simulated data sets per size.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SizeQuestion {
+    /// Sample sizes (units).
+    pub sizes: Vec<usize>,
+    /// Simulated data sets (each analysed at every size).
+    pub runs: usize,
+}
+
+/// Stratified resample of `n` units keeping the share treated (at least two of each group).
+fn resample_rows(
+    treated: &[usize],
+    controls: &[usize],
+    n: usize,
+    rng: &mut aftercast_resample::rng::Stream,
+) -> Vec<usize> {
+    let share = treated.len() as f64 / (treated.len() + controls.len()) as f64;
+    let nt = ((n as f64 * share).round() as usize).clamp(2, n.saturating_sub(2).max(2));
+    let nc = n.saturating_sub(nt).max(2);
+    let mut rows = Vec::with_capacity(nt + nc);
+    rows.extend((0..nt).map(|_| treated[rng.random_range(0..treated.len())]));
+    rows.extend((0..nc).map(|_| controls[rng.random_range(0..controls.len())]));
+    rows
+}
+
+/// Plan a unit-level analysis: at each sample size, `runs` simulated data sets with no effect
+/// (units drawn with replacement from the real table, keeping the share treated; outcomes from
+/// the outcome model of [`plasmode`]), each analysed by `method`. The HDI `[lo, hi]` of its
+/// estimate gives the thresholds `(-lo / base, hi / base)`: a constant effect `δ · base` added
+/// to every treated outcome shifts the estimate and every draw of the methods here by exactly
+/// that amount (their weights and matches depend on the covariates only; checked in the
+/// tests), so the lift is seen when `lo + δ · base > 0`.
+///
+/// # Errors
+/// Bad settings, errors of the outcome model, [`CalibrateError::BadParameter`] when the
+/// treated units' level is not positive (lifts in percent need one), and
+/// [`CalibrateError::Interrupted`] when stopped before any data set finished.
+pub fn plan_sizes(
+    units: &UnitTable,
+    outcome: &str,
+    covariates: &[String],
+    method: &dyn UnitEstimator,
+    question: &SizeQuestion,
+    opts: &Inference,
+    control: &crate::backtest::RunControl<'_>,
+) -> CalibrateResult<SizePlan> {
+    use std::sync::atomic::Ordering;
+    opts.check()?;
+    let (sizes, runs) = (&question.sizes, question.runs);
+    if runs == 0 || sizes.is_empty() || sizes.iter().any(|n| *n < 4) {
+        return Err(CalibrateError::BadParameter {
+            name: "--sizes/--placebos",
+            value: format!("{sizes:?} / {runs}"),
+            detail: "at least one size of 4 units or more, and at least one simulated data set".into(),
+        });
+    }
+    let model = outcome_model(units, outcome, covariates)?;
+    let n = units.len();
+    let fitted: Vec<f64> =
+        (0..n).map(|i| model.cols.iter().zip(&model.beta).map(|(c, b)| c[i] * b).sum::<f64>()).collect();
+    let treated: Vec<usize> = (0..n).filter(|&i| units.treated[i]).collect();
+    let controls: Vec<usize> = (0..n).filter(|&i| !units.treated[i]).collect();
+    if treated.len() < 2 || controls.len() < 2 {
+        return Err(CalibrateError::EmptyGroup {
+            what: if treated.len() < 2 { "treated units (two are needed)" } else { "control units (two are needed)" },
+            path: units.input.path.clone().into(),
+        });
+    }
+    let base = treated.iter().map(|&i| fitted[i]).sum::<f64>() / treated.len() as f64;
+    if !(base.is_finite() && base > 0.0) {
+        return Err(CalibrateError::BadParameter {
+            name: "--lifts",
+            value: format!("{base}"),
+            detail: format!(
+                "lifts are percentages of the treated units' level of '{outcome}' without the change, which the outcome model puts at {base:.4}; a plan in percent needs a positive level"
+            ),
+        });
+    }
+    let mut sizes = sizes.to_vec();
+    sizes.sort_unstable();
+    sizes.dedup();
+    if let Some(p) = control.progress {
+        p.start(runs as u64, "simulated data sets");
+    }
+    let seed = child_seed(opts.seed, "plan-sizes");
+    type Run = Option<Vec<Result<(f64, f64), String>>>;
+    let results: Vec<Run> = par_draws(seed, runs, |r, rng| {
+        if control.stop.is_some_and(|s| s.load(Ordering::SeqCst)) {
+            return None;
+        }
+        let per_size = sizes
+            .iter()
+            .map(|&size| {
+                let rows = resample_rows(&treated, &controls, size, rng);
+                let mut sim = units.take(&rows);
+                sim.ids.clear();
+                let y: Vec<f64> = rows
+                    .iter()
+                    .map(|&i| {
+                        let z: f64 = rng.sample(StandardNormal);
+                        fitted[i] + model.sigma * z
+                    })
+                    .collect();
+                sim.outcomes = vec![(outcome.to_string(), y)];
+                let o = Inference { seed: child_seed(opts.seed, &format!("plan-{r}-{size}")), ..*opts };
+                let est = method.estimate(&sim, outcome, covariates, &o).map_err(|e| e.to_string())?;
+                let s = summarize(&est.draws, opts.level, None);
+                if !(s.hdi_lower.is_finite() && s.hdi_upper.is_finite()) {
+                    return Err("the method gave no interval".to_string());
+                }
+                Ok((-s.hdi_lower / base, s.hdi_upper / base))
+            })
+            .collect();
+        if let Some(p) = control.progress {
+            p.step();
+        }
+        Some(per_size)
+    });
+    if let Some(p) = control.progress {
+        p.finish();
+    }
+    let interrupted = results.iter().any(Option::is_none);
+    let done: Vec<Vec<Result<(f64, f64), String>>> = results.into_iter().flatten().collect();
+    if done.is_empty() {
+        return Err(CalibrateError::Interrupted);
+    }
+    let mut failures = Vec::new();
+    let runs: Vec<Vec<(f64, f64)>> = done
+        .into_iter()
+        .map(|per| {
+            per.into_iter()
+                .zip(&sizes)
+                .map(|(r, &size)| match r {
+                    Ok(t) => t,
+                    Err(m) => {
+                        failures.push((size, m));
+                        (f64::NAN, f64::NAN)
+                    }
+                })
+                .collect()
+        })
+        .collect();
+    Ok(SizePlan {
+        thresholds: crate::plan::Thresholds { waits: sizes, runs },
+        base,
+        sigma: model.sigma,
+        failures,
+        interrupted,
+    })
+}
+
 /// The typed diagnostics of a plasmode simulation.
 #[derive(Debug, Clone, Serialize)]
 pub struct PlasmodeDiagnostics {
@@ -215,7 +397,7 @@ pub fn estimate(
     let finite: Vec<f64> = first.estimates.iter().copied().filter(|v| v.is_finite()).collect();
     let point = finite.iter().sum::<f64>() / finite.len().max(1) as f64;
     let mut est = aftercast_core::Estimate::new(
-        "backtest",
+        "compare",
         "plasmode",
         "ATT of the simulated outcomes",
         Point::Scalar { effect: point, baseline: None },

@@ -8,14 +8,10 @@ use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 fn spec() -> BacktestSpec {
     BacktestSpec {
         placebos: 120,
-        post_length: 14,
-        lengths: vec![7, 14, 28],
         lifts: vec![-0.05, 0.01, 0.02, 0.03, 0.05, 0.10],
-        min_train: 40,
         draws: 400,
-        level: 0.9,
-        power: 0.8,
         seed: 7,
+        ..BacktestSpec::new(vec![7, 14, 28], 40)
     }
 }
 
@@ -27,22 +23,19 @@ fn no_effect_series_false_positive_rate_power_and_mde() {
     let r = backtest::run(&model, &data, &spec(), &RunControl::default()).unwrap();
     assert_eq!(r.origins_completed, 120);
     assert!(!r.interrupted);
-    eprintln!(
-        "fpr {} window cov {} pointwise {} rmse {}",
-        r.false_positive_rate, r.window_coverage, r.pointwise_coverage, r.rmse
-    );
+    let fpr = r.planning.false_positive_rate.rate;
+    eprintln!("fpr {fpr} window cov {} pointwise {} rmse {}", r.window_coverage, r.pointwise_coverage, r.rmse);
     // Nominal 10% at level 0.9 (exact predictive intervals): within 4%-16% over 120 placebo dates.
-    assert!(
-        r.false_positive_rate >= tol::FPR_RANGE.0 && r.false_positive_rate <= tol::FPR_RANGE.1,
-        "false-positive rate {}",
-        r.false_positive_rate
-    );
+    assert!(fpr >= tol::FPR_RANGE.0 && fpr <= tol::FPR_RANGE.1, "false-positive rate {fpr}");
+    let f = &r.planning.false_positive_rate;
+    assert!(f.lower <= fpr && fpr <= f.upper && f.placebos == 120);
     assert!(r.pointwise_coverage > 0.85 && r.pointwise_coverage < 0.95, "{}", r.pointwise_coverage);
     // RMSE of a mean forecast of N(100, 5^2): about 5 * sqrt(1 + 1/40)
     assert!((r.rmse - 5.0).abs() < 0.6, "{}", r.rmse);
-    let power = |len: usize, lift: f64| r.power.iter().find(|p| p.length == len && p.lift == lift).unwrap().power;
-    for p in &r.power {
-        eprintln!("length {:2} lift {:+.2}: power {:.3}", p.length, p.lift, p.power);
+    let power =
+        |len: usize, lift: f64| r.planning.power.iter().find(|p| p.wait == len && p.lift == lift).unwrap().power;
+    for p in &r.planning.power {
+        eprintln!("wait {:2} lift {:+.2}: power {:.3}", p.wait, p.lift, p.power);
     }
     let ups = [0.01, 0.02, 0.03, 0.05, 0.10];
     for len in [7, 14, 28] {
@@ -59,26 +52,36 @@ fn no_effect_series_false_positive_rate_power_and_mde() {
     assert!(power(7, 0.02) < power(14, 0.02) && power(14, 0.02) < power(28, 0.02));
     // MDE at 80% power: the ceil(0.8 K)-th smallest per-origin threshold; it must lie where the
     // power curve crosses 0.8, and fall with the length.
-    let mde: Vec<f64> = r.mde.iter().map(|m| m.increase.unwrap()).collect();
+    let mde: Vec<f64> = r.planning.mde.iter().map(|m| m.mde.unwrap()).collect();
     eprintln!("mde {mde:?}");
     assert!(mde[0] > mde[1] && mde[1] > mde[2]);
     for (m, len) in mde.iter().zip([7, 14, 28]) {
         let d = r
             .origins
             .iter()
-            .filter(|o| backtest::detected(o.windows.iter().find(|w| w.length == len).unwrap(), m * 1.000001))
+            .filter(|o| backtest::detected(o.windows.iter().find(|w| w.wait == len).unwrap(), m * 1.000001))
             .count();
         assert!(d as f64 / 120.0 >= 0.8, "power just above the MDE {m} at {len}: {d}");
         let d = r
             .origins
             .iter()
-            .filter(|o| backtest::detected(o.windows.iter().find(|w| w.length == len).unwrap(), m * 0.999))
+            .filter(|o| backtest::detected(o.windows.iter().find(|w| w.wait == len).unwrap(), m * 0.999))
             .count();
         assert!((d as f64 / 120.0) < 0.8, "power just below the MDE {m} at {len}: {d}");
     }
     // Analytic check of the scale: sd of a 28-day relative mean error ~ 5/100 * sqrt(1/28 + 1/40),
     // so the 80%-power MDE is near (z_0.95 + z_0.8) * sd = (1.645 + 0.842) * 0.0124 = 3.1%.
     assert!(mde[2] > 0.02 && mde[2] < 0.045, "{}", mde[2]);
+    // the shortest wait reaching 80% power lies between the grid waits where the power
+    // crosses 0.8 (computed on every wait from 1 to 28)
+    let w2 = r.planning.wait_for.iter().find(|w| w.lift == 0.02).unwrap().wait;
+    let w10 = r.planning.wait_for.iter().find(|w| w.lift == 0.10).unwrap().wait.unwrap();
+    assert!(w10 <= 7, "{w10}");
+    if let Some(w) = w2 {
+        assert!(power(28, 0.02) >= 0.8 && w <= 28, "{w}");
+    } else {
+        assert!(power(28, 0.02) < 0.8 + 1e-9 || r.planning.longest_wait == 28);
+    }
 }
 
 #[test]

@@ -84,12 +84,12 @@ fn structural_model_backtest_runs_and_is_calibrated_on_a_local_level_series() {
         })
         .collect();
     let data = BacktestData { name: "ll", y: &y, controls: &[], times: None };
-    let spec = BacktestSpec { placebos: 12, draws: 200, min_train: 60, ..BacktestSpec::new(10) };
+    let spec = BacktestSpec { placebos: 12, draws: 200, ..BacktestSpec::new(vec![10], 60) };
     let r = backtest::run(&StructuralModel::local_level(), &data, &spec, &RunControl::default()).unwrap();
     assert_eq!(r.origins_completed, 12, "{:?}", r.failures);
-    eprintln!("fpr {} pointwise {}", r.false_positive_rate, r.pointwise_coverage);
+    eprintln!("fpr {} pointwise {}", r.planning.false_positive_rate.rate, r.pointwise_coverage);
     assert!(r.pointwise_coverage > 0.75, "{}", r.pointwise_coverage);
-    assert!(r.false_positive_rate <= 0.35, "{}", r.false_positive_rate);
+    assert!(r.planning.false_positive_rate.rate <= 0.35, "{}", r.planning.false_positive_rate.rate);
 }
 
 #[test]

@@ -35,11 +35,11 @@ fn panel(seed: u64, n: usize) -> (Vec<f64>, Vec<Vec<f64>>) {
 fn synthetic_model_backtest_tracks_a_convex_mix_of_donors() {
     let (y, donors) = panel(4, 90);
     let data = BacktestData { name: "mix", y: &y, controls: &donors, times: None };
-    let spec = BacktestSpec { placebos: 8, min_train: 40, ..BacktestSpec::new(10) };
+    let spec = BacktestSpec { placebos: 8, ..BacktestSpec::new(vec![10], 40) };
     let model = SyntheticModel::default();
     let r = backtest::run(&model, &data, &spec, &RunControl::default()).unwrap();
     assert_eq!(r.origins_completed, 8, "{:?}", r.failures);
-    eprintln!("rmse {} fpr {} pointwise {}", r.rmse, r.false_positive_rate, r.pointwise_coverage);
+    eprintln!("rmse {} fpr {} pointwise {}", r.rmse, r.planning.false_positive_rate.rate, r.pointwise_coverage);
     // the counterfactual is the donor mix: its error is near the target's own noise (0.3) plus
     // the donors' (0.5 weighted), far below the series' spread over time
     assert!(r.rmse < 1.5, "{}", r.rmse);

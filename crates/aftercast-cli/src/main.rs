@@ -37,8 +37,10 @@ pub(crate) enum Verb {
     Synthetic(verbs::synthetic::Args),
     /// Observational estimates against a randomized experiment's answer; history of comparisons.
     Compare(verbs::compare::Args),
-    /// Placebo dates before a change: false positives, coverage, power and minimum detectable effect.
-    Backtest(verbs::backtest::Args),
+    /// How long to wait (or how many units to have) to see a change of a given size: placebo
+    /// runs of the analysis's own set-up (power, minimum detectable effect, false positives).
+    #[command(visible_alias = "backtest")]
+    Plan(verbs::plan::Args),
     /// Turn an event log into per-unit metric windows and per-group series (native or Spark).
     Windows(verbs::windows::Args),
 }
@@ -53,7 +55,7 @@ fn threads_of(verb: &Verb) -> Option<u64> {
         Verb::Match(a) => a.common.threads,
         Verb::Synthetic(a) => a.common.threads,
         Verb::Compare(a) => a.common.threads,
-        Verb::Backtest(a) => a.common.threads,
+        Verb::Plan(a) => verbs::plan::common(a).and_then(|c| c.threads),
     }
 }
 
@@ -67,7 +69,7 @@ fn quiet_of(verb: &Verb) -> bool {
         Verb::Match(a) => a.common.quiet,
         Verb::Synthetic(a) => a.common.quiet,
         Verb::Compare(a) => a.common.quiet,
-        Verb::Backtest(a) => a.common.quiet,
+        Verb::Plan(a) => verbs::plan::quiet(a),
     }
 }
 
@@ -80,7 +82,7 @@ pub(crate) fn analyze(verb: &Verb) -> Option<anyhow::Result<verbs::Outcome>> {
         Verb::Match(a) => Some(verbs::match_::run(a)),
         Verb::Synthetic(a) => Some(verbs::synthetic::run(a)),
         Verb::Compare(a) => Some(verbs::compare::run(a)),
-        Verb::Backtest(a) => Some(verbs::backtest::run(a)),
+        Verb::Plan(a) => Some(verbs::plan::run(a)),
     }
 }
 
@@ -94,7 +96,7 @@ fn dispatch(verb: &Verb) -> anyhow::Result<()> {
         Verb::Match(a) => verbs::finish(&a.common, verbs::match_::run(a)?),
         Verb::Synthetic(a) => verbs::finish(&a.common, verbs::synthetic::run(a)?),
         Verb::Compare(a) => verbs::finish(&a.common, verbs::compare::run(a)?),
-        Verb::Backtest(a) => verbs::finish(&a.common, verbs::backtest::run(a)?),
+        Verb::Plan(a) => verbs::plan::run_verb(a),
     }
 }
 
@@ -146,8 +148,9 @@ fn main() {
             // depend on the thread count, so that is harmless.
             let _ = rayon::ThreadPoolBuilder::new().num_threads(n as usize).build_global();
         }
-        // the backtest draws its own bar; every other verb shows the libraries' stages
-        if !quiet_of(&cli.verb) && !matches!(cli.verb, Verb::Backtest(_)) {
+        // a plan draws its own bar over the placebo runs; every other verb shows the libraries'
+        // stages
+        if !quiet_of(&cli.verb) && !matches!(cli.verb, Verb::Plan(_)) {
             progress::show_stages();
         }
         dispatch(&cli.verb)

@@ -138,7 +138,9 @@ impl Study {
     /// Bad input for flag values of an unsupported type, and for an output path that would
     /// leave `out`.
     pub fn argv(&self, a: &AnalysisSpec, base: &Path, out: &Path) -> anyhow::Result<Vec<String>> {
-        let mut argv = vec!["aftercast".to_string(), a.verb.clone()];
+        // a verb of two words ("plan forecast") is a verb and its kind
+        let mut argv = vec!["aftercast".to_string()];
+        argv.extend(a.verb.split_whitespace().map(String::from));
         let mut merged: BTreeMap<&str, &toml::Value> = BTreeMap::new();
         for (k, v) in &self.defaults {
             merged.insert(k, v);

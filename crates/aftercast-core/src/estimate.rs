@@ -9,7 +9,7 @@
 
 use crate::error::DataError;
 use crate::result::{
-    BalanceRow, EffectDraws, EstimateRow, PathPoint, PlaceboSummary, Rope, SampleCounts, Summary, UnitWeight,
+    BalanceRow, EffectDraws, EstimateRow, PathPoint, PlaceboSummary, Planning, Rope, SampleCounts, Summary, UnitWeight,
 };
 use serde::{Deserialize, Serialize};
 
@@ -201,26 +201,6 @@ pub struct SensitivityCurve {
     pub alpha: f64,
 }
 
-/// One point of a power grid.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
-pub struct PowerPoint {
-    /// Number of post-periods.
-    pub post_length: f64,
-    /// Effect injected (a fraction when `Figures::lifts_are_relative`, outcome units otherwise).
-    pub effect: f64,
-    /// Share of placebo runs that detected it.
-    pub power: f64,
-}
-
-/// Minimum detectable effect for one post-period length.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
-pub struct MdePoint {
-    /// Number of post-periods.
-    pub post_length: f64,
-    /// Minimum detectable effect (same units as the power grid's effects).
-    pub mde: f64,
-}
-
 /// Typed data for the figures of a result, beyond its summaries and draws.
 #[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
 pub struct Figures {
@@ -230,12 +210,6 @@ pub struct Figures {
     pub propensity: Option<PropensityHistogram>,
     /// Rosenbaum sensitivity curve.
     pub sensitivity: Option<SensitivityCurve>,
-    /// Power grid of a placebo backtest.
-    pub power: Vec<PowerPoint>,
-    /// Minimum detectable effect per post-period length.
-    pub mde: Vec<MdePoint>,
-    /// Whether the power grid's effects are fractions of the counterfactual.
-    pub lifts_are_relative: bool,
 }
 
 /// Sections of the result that only some verbs fill.
@@ -255,6 +229,8 @@ pub struct Sections {
     pub truth: Option<Summary>,
     /// A comparison's rows, one per method and setting.
     pub estimates: Option<Vec<EstimateRow>>,
+    /// A plan's power, minimum detectable effects and waits.
+    pub planning: Option<Planning>,
 }
 
 /// What every estimator returns: one typed value from which every output is built.

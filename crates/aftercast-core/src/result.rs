@@ -292,6 +292,92 @@ pub struct PlaceboSummary {
     pub units: usize,
 }
 
+/// The false-positive rate of a plan: the share of placebo runs (where nothing happened) whose
+/// interval excluded zero, with its binomial interval.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FalsePositiveRate {
+    /// Share of placebo runs with a false positive.
+    #[serde(deserialize_with = "nullable_f64")]
+    pub rate: f64,
+    /// Lower end of its Wilson score interval at the plan's level.
+    #[serde(deserialize_with = "nullable_f64")]
+    pub lower: f64,
+    /// Upper end.
+    #[serde(deserialize_with = "nullable_f64")]
+    pub upper: f64,
+    /// Placebo runs behind the rate.
+    pub placebos: usize,
+}
+
+/// Power to see one lift after one wait.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct PlanPower {
+    /// The wait (periods of the series, or units for a unit table).
+    pub wait: usize,
+    /// The lift (a fraction of the counterfactual: 0.02 = +2%).
+    #[serde(deserialize_with = "nullable_f64")]
+    pub lift: f64,
+    /// Share of placebo runs in which the lift would be seen.
+    #[serde(deserialize_with = "nullable_f64")]
+    pub power: f64,
+}
+
+/// The smallest lift seen at the target power after one wait.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct PlanMde {
+    /// The wait.
+    pub wait: usize,
+    /// Minimum detectable increase (a fraction), `None` when no lift reaches the target power.
+    pub mde: Option<f64>,
+}
+
+/// The shortest wait after which a lift is seen at the target power.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct WaitFor {
+    /// The lift (a fraction).
+    #[serde(deserialize_with = "nullable_f64")]
+    pub lift: f64,
+    /// Shortest wait from which on the power stays at or above the target, `None` when it is
+    /// not reached within the longest wait the data allow.
+    pub wait: Option<usize>,
+}
+
+/// A lift as a short signed percent: 0.02 is "+2%", 0.005 "+0.5%", -0.05 "-5%".
+pub fn lift_text(l: f64) -> String {
+    if !l.is_finite() {
+        return "n/a".into();
+    }
+    let pct = 100.0 * l;
+    let text = if (pct - pct.round()).abs() < 1e-9 { format!("{:.0}", pct.abs()) } else { format!("{:.1}", pct.abs()) };
+    format!("{}{text}%", if l < 0.0 { "-" } else { "+" })
+}
+
+/// The answer of a plan: how long to wait (or how many units to have) to see a change of a
+/// given size, from placebo runs of the analysis's own set-up.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Planning {
+    /// Interval level of the analysis being planned.
+    #[serde(deserialize_with = "nullable_f64")]
+    pub level: f64,
+    /// Target power.
+    #[serde(deserialize_with = "nullable_f64")]
+    pub target_power: f64,
+    /// What one step of `wait` is: "days", "weeks", "months", "quarters", "periods" or "units".
+    pub wait_unit: String,
+    /// The false-positive rate at the level.
+    pub false_positive_rate: FalsePositiveRate,
+    /// Power per wait and lift.
+    pub power: Vec<PlanPower>,
+    /// Minimum detectable increase per wait.
+    pub mde: Vec<PlanMde>,
+    /// Shortest wait per lift.
+    pub wait_for: Vec<WaitFor>,
+    /// The longest wait the placebo runs could check.
+    pub longest_wait: usize,
+    /// The answer in plain words, one sentence per lift.
+    pub answer: Vec<String>,
+}
+
 /// One covariate's balance before and after adjustment.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct BalanceRow {
@@ -414,6 +500,9 @@ pub struct AnalysisResult {
     /// `compare`: one row per observational method.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub estimates: Option<Vec<EstimateRow>>,
+    /// `plan`: power, minimum detectable effects and waits.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub planning: Option<Planning>,
     /// The assumptions the estimate rests on, in plain words.
     #[serde(default)]
     pub assumptions: Vec<String>,

@@ -283,6 +283,29 @@ impl UnitTable {
     pub fn numeric(&self, name: &str) -> Option<&[f64]> {
         self.numeric.iter().find(|(n, _)| n == name).map(|(_, v)| v.as_slice())
     }
+
+    /// The units at `rows` (repeats allowed, as in a resample), in that order.
+    pub fn take(&self, rows: &[usize]) -> UnitTable {
+        let pick = |v: &[f64]| rows.iter().map(|&r| v[r]).collect::<Vec<f64>>();
+        UnitTable {
+            ids: if self.ids.is_empty() { Vec::new() } else { rows.iter().map(|&r| self.ids[r].clone()).collect() },
+            lines: rows.iter().map(|&r| self.lines[r]).collect(),
+            treated: rows.iter().map(|&r| self.treated[r]).collect(),
+            outcomes: self.outcomes.iter().map(|(n, v)| (n.clone(), pick(v))).collect(),
+            numeric: self.numeric.iter().map(|(n, v)| (n.clone(), pick(v))).collect(),
+            categorical: self
+                .categorical
+                .iter()
+                .map(|c| Categorical {
+                    name: c.name.clone(),
+                    levels: c.levels.clone(),
+                    codes: rows.iter().map(|&r| c.codes[r]).collect(),
+                })
+                .collect(),
+            input: self.input.clone(),
+            dropped_rows: 0,
+        }
+    }
 }
 
 /// A checked numeric column's values over the kept rows.

@@ -1,7 +1,7 @@
 //! `app_daily.csv` and `calendar.csv`: Fernhill's daily app orders and revenue, two control
 //! series the launch cannot touch, and the holiday calendar.
 //!
-//! Model (natural logs, day `t` counted from 2024-01-01, `theta = 2 pi t / 365.25`):
+//! Model (natural logs, day `t` counted from 2024-01-01 (negative before it), `theta = 2 pi t / 365.25`):
 //! counterfactual app revenue
 //! `= exp(level + trend t + yearly + weekly + holiday + 0.004 (weather - 50) + common + own)`,
 //! where `common` is an AR(1) market-demand shock
@@ -212,7 +212,10 @@ fn weather_season(t: f64) -> f64 {
 /// Generates `app_daily.csv` and `calendar.csv`.
 pub fn generate(seed: u64, stream: u64) -> DemoResult<AppData> {
     let mut rng = Stream::new(seed, stream);
-    let first = date(2024, 1, 1)?;
+    // three years and two months of history before the launch: two full yearly cycles for
+    // the placebo dates of a plan, and room for windows as long as the post-period
+    let first = date(2023, 1, 1)?;
+    let t0 = date(2024, 1, 1)?;
     let last = date(2026, 6, 30)?;
     let launch = date(2026, 3, 2)?;
     let hol = holidays(first, last)?;
@@ -232,7 +235,7 @@ pub fn generate(seed: u64, stream: u64) -> DemoResult<AppData> {
 
     for i in 0..n_days {
         let d = first + Duration::days(i);
-        let t = i as f64;
+        let t = (d - t0).num_days() as f64;
         // Draws in a fixed order per day.
         let z_weather = std_normal(&mut rng);
         let z_common = std_normal(&mut rng);

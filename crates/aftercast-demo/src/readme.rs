@@ -101,7 +101,7 @@ pub fn render(t: &ScenarioTruth) -> String {
     ));
     line("back. Question: what did it do to app revenue and orders?");
     line("");
-    line("Columns of `app_daily.csv`, one row per day from 2024-01-01 to 2026-06-30:");
+    line("Columns of `app_daily.csv`, one row per day from 2023-01-01 to 2026-06-30:");
     line("- `date`: ISO date.");
     line("- `app_orders`: orders placed in the app (affected by the launch).");
     line("- `app_revenue`: app revenue in dollars (affected by the launch).");

@@ -653,19 +653,56 @@ impl ValidParams {
     /// # Errors
     /// Preparation and fitting errors.
     pub fn fit(&self, series: &Series, split: Split, events: Option<&EventCalendar>) -> ForecastResult<Fitted> {
+        self.fit_from(series, split, events, None)
+    }
+
+    /// As [`ValidParams::fit`], the structural optimiser starting from `warm` (a fit of the
+    /// same model on a nearby span, e.g. the whole pre-period for a placebo date of a plan).
+    ///
+    /// # Errors
+    /// Preparation and fitting errors.
+    pub fn fit_from(
+        &self,
+        series: &Series,
+        split: Split,
+        events: Option<&EventCalendar>,
+        warm: Option<&FittedModel>,
+    ) -> ForecastResult<Fitted> {
         let (prepared, mut warnings, control_breaks) = prepare(series, &split, self, events)?;
-        let cands = candidates(self);
-        let chosen = if cands.len() > 1 {
-            let bt = run_backtest(&prepared, &split, self, &cands);
-            choose(&bt, &cands, self.get().model == ModelKind::Auto, &mut warnings)
-        } else {
-            cands[0].clone()
-        };
+        let chosen = self.choose_on(&prepared, &split, &mut warnings);
         let stage = aftercast_core::progress::stage(format!("fitting the {} model", chosen.name), None);
-        let model = fit_model(chosen.kind, &prepared, &chosen.params, split.pre_end)?;
+        let warm = match warm {
+            Some(FittedModel::Structural(f)) => Some(f),
+            _ => None,
+        };
+        let model = fit_model_from(chosen.kind, &prepared, &chosen.params, split.pre_end, warm)?;
         drop(stage);
         warnings.extend(model.warnings().iter().cloned());
         Ok(Fitted { model, prepared, split, params: chosen.params, warnings, control_breaks })
+    }
+}
+
+impl ValidParams {
+    /// The candidate an analysis with these parameters runs on `prepared`: the one asked for,
+    /// or (trend or model left to the data) the one with the lowest backtest CRPS.
+    fn choose_on(&self, prepared: &Prepared, split: &Split, warnings: &mut Vec<String>) -> Candidate {
+        let cands = candidates(self);
+        if cands.len() > 1 {
+            let bt = run_backtest(prepared, split, self, &cands);
+            choose(&bt, &cands, self.get().model == ModelKind::Auto, warnings)
+        } else {
+            cands[0].clone()
+        }
+    }
+
+    /// The model an analysis of `series` with this split would run (see [`candidates`]): its
+    /// name and its parameters, with the model family and trend fixed.
+    ///
+    /// # Errors
+    /// Preparation errors.
+    pub fn chosen(&self, series: &Series, split: Split, events: Option<&EventCalendar>) -> ForecastResult<Candidate> {
+        let (prepared, mut warnings, _) = prepare(series, &split, self, events)?;
+        Ok(self.choose_on(&prepared, &split, &mut warnings))
     }
 }
 

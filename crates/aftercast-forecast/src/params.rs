@@ -403,4 +403,15 @@ impl ValidParams {
     pub fn get(&self) -> &ForecastParams {
         &self.0
     }
+
+    /// The same parameters with the seasons fixed (as the analysis resolved them on its whole
+    /// pre-period, so a shorter placebo fit keeps them) and another number of draws and seed:
+    /// what a placebo fit of a plan runs with.
+    pub fn for_placebo(&self, seasons: Vec<Season>, draws: usize, seed: u64) -> ValidParams {
+        let mut p = self.0.clone();
+        p.seasons = Some(seasons);
+        p.inference.draws = draws;
+        p.inference.seed = seed;
+        ValidParams(p)
+    }
 }

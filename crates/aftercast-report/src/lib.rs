@@ -204,6 +204,14 @@ pub fn terminal_summary(r: &AnalysisResult, headline: &str, tables: &[Table]) ->
                 out.push(t.to_text("  "));
             }
         }
+        numbers::Kind::Plan => {
+            let line = numbers::judged_line(r);
+            let (p, i) = numbers::point_and_interval(&line.summary, line.percent);
+            out.push(format!(
+                "  placebo effect where nothing happened (median over placebo runs): {p}, {} {i}",
+                numbers::interval_name(r.level)
+            ));
+        }
         _ => {}
     }
     for t in tables {

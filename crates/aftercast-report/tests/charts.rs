@@ -223,6 +223,22 @@ fn odd_data_draws_notes_and_never_panics() {
     r.effect.relative = Some(nan_summary());
     r.weights = Some(vec![]);
     r.balance = Some(vec![]);
+    r.planning = Some(aftercast_core::result::Planning {
+        level: 0.9,
+        target_power: 0.8,
+        wait_unit: "days".into(),
+        false_positive_rate: aftercast_core::result::FalsePositiveRate {
+            rate: f64::NAN,
+            lower: f64::NAN,
+            upper: f64::NAN,
+            placebos: 0,
+        },
+        power: vec![aftercast_core::result::PlanPower { wait: 7, lift: f64::NAN, power: f64::NAN }],
+        mde: vec![aftercast_core::result::PlanMde { wait: 7, mde: None }],
+        wait_for: vec![],
+        longest_wait: 7,
+        answer: vec![],
+    });
     let figures = Figures {
         propensity: Some(aftercast_core::estimate::PropensityHistogram {
             edges: vec![0.0, 0.5],
@@ -234,7 +250,6 @@ fn odd_data_draws_notes_and_never_panics() {
             p_upper: vec![f64::NAN],
             alpha: 0.05,
         }),
-        power: vec![aftercast_core::estimate::PowerPoint { post_length: f64::NAN, effect: f64::NAN, power: f64::NAN }],
         ..Figures::default()
     };
     let draws = KeptDraws { relative: vec![0.02], ..KeptDraws::default() };

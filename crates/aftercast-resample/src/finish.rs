@@ -270,6 +270,7 @@ pub fn finish<D: Serialize>(
         sample: s.sample,
         truth: s.truth,
         estimates: s.estimates,
+        planning: s.planning,
         assumptions: est.assumptions,
     };
     Ok(Finished { result, draws: kept, figures: est.figures })

@@ -268,4 +268,18 @@ impl ValidParams {
     pub fn get(&self) -> &SynthParams {
         &self.0
     }
+
+    /// The same parameters for a placebo run of a plan: the window ends at `end`, the units
+    /// in `exclude` also leave the donor pool, and the draws use `seed`.
+    pub fn for_placebo(&self, end: TimePoint, exclude: &[String], seed: u64) -> ValidParams {
+        let mut p = self.0.clone();
+        p.end = Some(end);
+        for u in exclude {
+            if !p.exclude.contains(u) {
+                p.exclude.push(u.clone());
+            }
+        }
+        p.inference.seed = seed;
+        ValidParams(p)
+    }
 }

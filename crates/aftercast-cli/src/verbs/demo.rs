@@ -43,6 +43,23 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
     );
     let _ = writeln!(s, "loyalty = \"How much more do loyalty members spend because of the scheme?\"");
     let _ = writeln!(s);
+    if has_verb("forecast") && has_verb("plan") {
+        // the plan an analyst makes before the launch: the structural set-up below, placebo
+        // dates before 2026-03-02 only
+        let _ = writeln!(s, "[[analysis]]\nname = \"app-launch-plan\"\nverb = \"plan forecast\"");
+        let _ = writeln!(
+            s,
+            "describe = \"Before the launch: how long must we wait to see a 2% change in daily app orders? (placebo dates of the structural forecast below)\""
+        );
+        let _ =
+            writeln!(s, "[analysis.flags]\ndata = \"data/app_daily.csv\"\ntime = \"date\"\noutcome = \"app_orders\"");
+        let _ = writeln!(s, "controls = \"catalogue_orders,weather_index\"\nevents = \"data/calendar.csv\"");
+        let _ = writeln!(
+            s,
+            "start = {}\nmodel = \"structural\"\nlog = true\nlog_controls = \"catalogue_orders\"\n\n",
+            q(&t.app_launch.launch_date)
+        );
+    }
     if has_verb("forecast") {
         for (name, model) in [("app-launch-structural", "structural"), ("app-launch-harmonic", "harmonic")] {
             let _ = writeln!(s, "[[analysis]]\nname = {}\nquestion = \"app-orders\"\nverb = \"forecast\"", q(name));

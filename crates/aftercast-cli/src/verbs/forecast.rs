@@ -83,7 +83,7 @@ pub struct Args {
 }
 
 /// Errors of the model caused by the input exit 2; optimiser and linear-algebra failures exit 1.
-fn classify(e: aftercast_forecast::ForecastError) -> anyhow::Error {
+pub(crate) fn classify(e: aftercast_forecast::ForecastError) -> anyhow::Error {
     use aftercast_forecast::ForecastError as E;
     match e {
         E::Optimiser { .. } | E::Singular { .. } => anyhow::Error::new(e),
@@ -91,13 +91,29 @@ fn classify(e: aftercast_forecast::ForecastError) -> anyhow::Error {
     }
 }
 
-/// Run the verb and return the result document plus a one-line headline for the terminal.
+/// An analysis set-up read from the flags: the series, its split, the checked parameters and
+/// the event calendar. `forecast` analyses it; `plan forecast` runs placebo dates of it.
+pub struct Setup {
+    /// The series.
+    pub series: Series,
+    /// Pre-period, washout and post-period.
+    pub split: aftercast_core::series::Split,
+    /// The checked parameters.
+    pub params: aftercast_forecast::ValidParams,
+    /// The event calendar, if given.
+    pub events: Option<EventCalendar>,
+    /// Input files read.
+    pub inputs: Vec<aftercast_core::InputInfo>,
+}
+
+/// Read the inputs and check the flags of a forecast analysis. With `before_data_end` false,
+/// a --start after the last period is allowed (a plan made before the change: the whole
+/// series is the pre-period).
 ///
 /// # Errors
 /// Bad input (exit 2) for unreadable data, unknown columns, bad options, too short a
-/// pre-period, non-positive values under --log, an unidentified model; internal failures
-/// otherwise.
-pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
+/// pre-period.
+pub fn setup(a: &Args, before_data_end: bool) -> anyhow::Result<Setup> {
     let spec = SeriesSpec {
         time: a.time.clone(),
         outcome: a.outcome.clone(),
@@ -108,7 +124,20 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     };
     let table = read_table(&a.data, &spec.projection())?;
     let series = Series::from_table(&table, &spec).map_err(bad_input)?;
-    let split = series.split(&a.start, a.end.as_deref(), a.washout, 8).map_err(bad_input)?;
+    let split = match series.split(&a.start, a.end.as_deref(), a.washout, 8) {
+        Ok(s) => s,
+        Err(aftercast_core::DataError::NoPostPeriod { .. })
+            if !before_data_end
+                && series
+                    .axis
+                    .parse_user_time("--start", &a.start)
+                    .is_ok_and(|t| series.axis.points().last().is_some_and(|last| t > *last)) =>
+        {
+            let n = series.len();
+            aftercast_core::series::Split { pre_end: n.saturating_sub(a.washout), post_start: n, post_end: n }
+        }
+        Err(e) => return Err(bad_input(e)),
+    };
     let model = a.model;
     let inf = a.common.inference();
     let mut params = ForecastParams::builder()
@@ -143,6 +172,18 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         }
         None => None,
     };
+    Ok(Setup { series, split, params, events, inputs })
+}
+
+/// Run the verb and return the result document plus a one-line headline for the terminal.
+///
+/// # Errors
+/// Bad input (exit 2) for unreadable data, unknown columns, bad options, too short a
+/// pre-period, non-positive values under --log, an unidentified model; internal failures
+/// otherwise.
+pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
+    let Setup { series, split, params, events, inputs } = setup(a, true)?;
+    let inf = a.common.inference();
     let run = analyse(&series, split, &params, events.as_ref()).map_err(classify)?;
     let mut est = run.estimate();
     est.warnings.splice(0..0, series.notes.iter().cloned());

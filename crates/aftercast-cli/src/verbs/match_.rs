@@ -82,12 +82,12 @@ pub struct Args {
     pub common: Common,
 }
 
-/// Run the verb and return the result document plus a one-line headline for the terminal.
+/// Read the unit table and check the flags of a matching analysis: the table and the
+/// parameters `match` fits and `plan match` simulates with.
 ///
 /// # Errors
-/// Bad input (exit 2) for unreadable data, unknown columns and options, separation with
-/// `--separation error`, no overlap, no match within the caliper; internal failures otherwise.
-pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
+/// Bad input (exit 2) for unreadable data, unknown columns and bad options.
+pub fn setup(a: &Args) -> anyhow::Result<(UnitTable, MatchParams)> {
     // a categorical column is a covariate even when only --categorical names it
     let mut covariates = a.covariates.clone();
     for c in &a.categorical {
@@ -107,9 +107,8 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     }
     let spec = params.unit_spec(&a.treatment, &a.outcome, &a.categorical.clone(), a.id.clone(), a.data_options.missing);
     let units = UnitTable::read(&a.data, &spec)?;
-    let method = a.method;
     params = params
-        .method(method)
+        .method(a.method)
         .estimand(a.estimand)
         .k(a.k)
         .replace(a.replace)
@@ -121,6 +120,17 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         .penalty(a.penalty)
         .separation(a.separation)
         .inference(a.common.inference());
+    Ok((units, params))
+}
+
+/// Run the verb and return the result document plus a one-line headline for the terminal.
+///
+/// # Errors
+/// Bad input (exit 2) for unreadable data, unknown columns and options, separation with
+/// `--separation error`, no overlap, no match within the caliper; internal failures otherwise.
+pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
+    let (units, params) = setup(a)?;
+    let method = a.method;
     let inf = params.inference;
     let (fitted, est) = aftercast_match::run(&units, &a.outcome, params).map_err(bad_input)?;
     let headline = format!(

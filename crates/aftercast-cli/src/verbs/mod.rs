@@ -1,11 +1,12 @@
 //! One module per verb. See README.md in this folder for the pattern a verb follows.
 
-pub mod backtest;
 pub mod compare;
 pub mod demo;
 pub mod forecast;
 pub mod inspect;
 pub mod match_;
+pub mod plan;
+pub mod plan_panel;
 pub mod run;
 pub mod synthetic;
 pub mod windows;

@@ -61,12 +61,26 @@ pub struct Args {
     pub common: Common,
 }
 
-/// Run the verb and return the result document plus a one-line headline for the terminal.
+/// A synthetic-control set-up read from the flags. `synthetic` fits it; `plan synthetic`
+/// runs placebo dates and placebo units of it.
+pub struct Setup {
+    /// The panel.
+    pub panel: Panel,
+    /// The treated units.
+    pub treated: Vec<String>,
+    /// The first period of the change.
+    pub start: aftercast_core::TimePoint,
+    /// The checked parameters.
+    pub params: aftercast_synth::ValidParams,
+    /// The input file.
+    pub input: aftercast_core::InputInfo,
+}
+
+/// Read the panel and check the flags of a synthetic-control analysis.
 ///
 /// # Errors
-/// Bad input (exit 2) for unreadable data, unknown columns, units or options, too few donors or
-/// pre-periods, constant treated series; internal failures otherwise.
-pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
+/// Bad input (exit 2) for unreadable data, unknown columns, bad times or options.
+pub fn setup(a: &Args) -> anyhow::Result<Setup> {
     let mut covariates = a.predictors.clone();
     if let Some(s) = &a.size
         && !covariates.contains(s)
@@ -91,34 +105,48 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         Some(e) => Some(panel.axis.parse_user_time("--end", e)?),
         None => None,
     };
-    let method = a.method;
     let aggregate = match &a.size {
         None => Aggregation::Mean,
         Some(col) => Aggregation::BySize(col.clone()),
     };
-    let predictors: Vec<String> = a.predictors.clone();
-    let inf = a.common.inference();
     let params = SynthParams::new()
-        .method(method)
-        .inference(inf)
+        .method(a.method)
+        .inference(a.common.inference())
         .end(end)
         .exclude(a.exclude.clone())
         .placebo_exclude_factor(a.placebo_exclude)
-        .predictors(predictors)
+        .predictors(a.predictors.clone())
         .predictor_outcome_blocks(a.outcome_blocks)
         .ridge_lambda(a.ridge_lambda)
         .aggregate(aggregate)
         .sdid_placebo_reps(usize::try_from(a.common.draws).unwrap_or(usize::MAX).clamp(20, 500))
         .check()
         .map_err(bad_input)?;
-    let opts = RunOptions { robustness: !a.no_robustness };
-    let (fit, est) = aftercast_synth::run(&panel, &treated, start, &params, opts).map_err(|e| match e {
-        // a solver that could not reach a usable answer is our failure, not the user's
+    Ok(Setup { panel, treated, start, params, input: table.info() })
+}
+
+/// Errors of a synthetic fit: a solver that could not reach a usable answer is our failure
+/// (exit 1), everything else the input's (exit 2).
+pub(crate) fn classify(e: aftercast_synth::SynthError) -> anyhow::Error {
+    match e {
         aftercast_synth::SynthError::NotConverged { .. } | aftercast_synth::SynthError::Numerical { .. } => {
             anyhow::Error::new(e)
         }
         other => bad_input(other),
-    })?;
+    }
+}
+
+/// Run the verb and return the result document plus a one-line headline for the terminal.
+///
+/// # Errors
+/// Bad input (exit 2) for unreadable data, unknown columns, units or options, too few donors or
+/// pre-periods, constant treated series; internal failures otherwise.
+pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
+    let Setup { panel, treated, start, params, input } = setup(a)?;
+    let method = a.method;
+    let inf = a.common.inference();
+    let opts = RunOptions { robustness: !a.no_robustness };
+    let (fit, est) = aftercast_synth::run(&panel, &treated, start, &params, opts).map_err(classify)?;
     let d = &est.diagnostics;
     let rmspe = d.pre_rmspe;
     let who = if treated.len() == 1 {
@@ -136,5 +164,5 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         aftercast_report::numbers::signed(rmspe, aftercast_report::numbers::decimals_for(&[rmspe]))
             .trim_start_matches('+'),
     );
-    crate::verbs::Outcome::new(est, &inf, vec![table.info()], headline)
+    crate::verbs::Outcome::new(est, &inf, vec![input], headline)
 }

@@ -948,18 +948,16 @@ pub fn estimates_chart(
     c
 }
 
-/// Power of the placebo backtest by true effect size, one line per post-period length, with a
-/// dashed rule at `target` (0.8 is common practice).
-pub fn power_chart(
-    name: &str,
-    curves: &[(String, Vec<f64>, Vec<f64>)],
-    target: f64,
-    effect_format: ValueFormat,
-) -> Chart {
+/// Power against the wait, one line per lift, with a dashed rule at the target power (0.8 is
+/// common practice): where a line crosses the rule is how long that lift needs.
+pub fn power_chart(name: &str, curves: &[(String, Vec<f64>, Vec<f64>)], target: f64, wait_unit: &str) -> Chart {
+    let drawn = |(_, (_, x, y)): &(usize, &(String, Vec<f64>, Vec<f64>))| {
+        x.iter().zip(y).any(|(a, b)| a.is_finite() && b.is_finite())
+    };
     let lines: Vec<Line> = curves
         .iter()
         .enumerate()
-        .filter(|(_, (_, x, y))| x.iter().zip(y).any(|(a, b)| a.is_finite() && b.is_finite()))
+        .filter(drawn)
         .map(|(i, (_, x, y))| Line {
             x: x.clone(),
             y: pad_to(y, x.len()),
@@ -973,53 +971,73 @@ pub fn power_chart(
     if lines.is_empty() {
         return Chart::note(name, "Power", "No power estimates to draw.");
     }
+    let target_pct = format!("{:.0}%", 100.0 * target);
     let mut c = Chart::new(
         name,
-        "Power by effect size and post-period length",
+        "How soon each change would be seen",
         &format!(
-            "Share of placebo backtests in which an effect of the given size is detected, one line per post-period length; the dashed rule marks {target:.0$} power.",
-            if target < 1.0 { 1 } else { 0 }
+            "Share of placebo runs in which a change of each size would be seen, by how long one waits; one line per size; the dashed rule marks the target power of {target_pct}."
         ),
         Body::Lines(LinePlot {
             xkind: XKind::Numbers,
             bands: vec![],
             lines,
-            refs: vec![RefLine { value: target, label: format!("power {target}"), color: theme::BRICK }],
+            refs: vec![RefLine { value: target, label: format!("target {target_pct}"), color: theme::BRICK }],
             change: None,
-            x_label: "true effect size".into(),
+            x_label: wait_label(wait_unit),
             y_label: "power".into(),
             y_format: ValueFormat::Share,
-            x_format: effect_format,
+            x_format: ValueFormat::Number,
             y_range: Some((0.0, 1.0)),
         }),
     );
     c.legend = curves
         .iter()
         .enumerate()
-        .filter(|(_, (_, x, y))| x.iter().zip(y).any(|(a, b)| a.is_finite() && b.is_finite()))
+        .filter(drawn)
         .map(|(i, (l, _, _))| (l.clone(), theme::SEQUENCE[i % theme::SEQUENCE.len()], Swatch::Line))
         .collect();
     c
 }
 
-/// Minimum detectable effect per post-period length.
-pub fn mde_chart(name: &str, lengths: &[f64], mde: &[f64], effect_format: ValueFormat) -> Chart {
-    if lengths.iter().zip(mde).all(|(a, b)| !(a.is_finite() && b.is_finite())) {
-        return Chart::note(name, "Minimum detectable effect", "No minimum detectable effects to draw.");
+/// "wait (days)", or "units in the analysis" for a unit-table plan.
+fn wait_label(unit: &str) -> String {
+    if unit == "units" { "units in the analysis".into() } else { format!("wait ({unit})") }
+}
+
+/// The smallest change seen at the target power, by wait.
+pub fn mde_chart(name: &str, waits: &[f64], mde: &[f64], target: f64, wait_unit: &str) -> Chart {
+    if waits.iter().zip(mde).all(|(a, b)| !(a.is_finite() && b.is_finite())) {
+        return Chart::note(
+            name,
+            "Smallest change seen",
+            "No wait reaches the target power for any change, so there is no smallest change to draw.",
+        );
     }
     Chart::new(
         name,
-        "Minimum detectable effect by post-period length",
-        "The smallest effect the backtests detect with the target power, for each length of the period after the change; longer waits detect smaller effects.",
+        "Smallest change seen, by wait",
+        &format!(
+            "The smallest increase the placebo runs see with {:.0}% power after each wait (the minimum detectable effect); smaller is better.",
+            100.0 * target
+        ),
         Body::Lines(LinePlot {
             xkind: XKind::Numbers,
             bands: vec![],
-            lines: vec![Line { x: lengths.to_vec(), y: pad_to(mde, lengths.len()), color: theme::TEAL, alpha: 1.0, width: 3, dashed: false, points: true }],
+            lines: vec![Line {
+                x: waits.to_vec(),
+                y: pad_to(mde, waits.len()),
+                color: theme::TEAL,
+                alpha: 1.0,
+                width: 3,
+                dashed: false,
+                points: true,
+            }],
             refs: vec![],
             change: None,
-            x_label: "periods after the change".into(),
+            x_label: wait_label(wait_unit),
             y_label: "minimum detectable effect".into(),
-            y_format: effect_format,
+            y_format: ValueFormat::Percent,
             x_format: ValueFormat::Number,
             y_range: None,
         }),

@@ -8,7 +8,7 @@ use super::{
     running_total_chart, weights_chart, x_values,
 };
 use crate::ReportError;
-use aftercast_core::estimate::{Figures, KeptDraws, PowerPoint};
+use aftercast_core::estimate::{Figures, KeptDraws};
 use aftercast_core::result::{AnalysisResult, Judged};
 use std::path::{Path, PathBuf};
 
@@ -92,31 +92,28 @@ pub fn charts_for(r: &AnalysisResult, draws: &KeptDraws, figures: &Figures, stem
             est.iter().map(|e| EstimateBar { label: e.method.clone(), summary: e.summary }).collect();
         out.push(estimates_chart(&name("versus-truth"), &rows, Some(truth), r.level, "effect", ValueFormat::Number));
     }
-    let effect_format = if figures.lifts_are_relative { ValueFormat::Percent } else { ValueFormat::Number };
-    if !figures.power.is_empty() {
-        let mut lengths: Vec<f64> = figures.power.iter().map(|p| p.post_length).filter(|v| v.is_finite()).collect();
-        lengths.sort_by(f64::total_cmp);
-        lengths.dedup();
-        let curves: Vec<(String, Vec<f64>, Vec<f64>)> = lengths
+    if let Some(p) = r.planning.as_ref() {
+        let mut lifts: Vec<f64> = p.power.iter().map(|x| x.lift).filter(|v| v.is_finite()).collect();
+        lifts.sort_by(f64::total_cmp);
+        lifts.dedup();
+        let curves: Vec<(String, Vec<f64>, Vec<f64>)> = lifts
             .iter()
-            .map(|len| {
-                let mut pts: Vec<&PowerPoint> = figures.power.iter().filter(|p| p.post_length == *len).collect();
-                pts.sort_by(|a, b| a.effect.total_cmp(&b.effect));
+            .map(|lift| {
+                let mut pts: Vec<_> = p.power.iter().filter(|x| x.lift == *lift).collect();
+                pts.sort_by_key(|x| x.wait);
                 (
-                    format!("{len} periods"),
-                    pts.iter().map(|p| p.effect).collect(),
-                    pts.iter().map(|p| p.power).collect(),
+                    format!("{} change", aftercast_core::result::lift_text(*lift)),
+                    pts.iter().map(|x| x.wait as f64).collect(),
+                    pts.iter().map(|x| x.power).collect(),
                 )
             })
             .collect();
-        out.push(power_chart(&name("power"), &curves, 0.8, effect_format));
-    }
-    if !figures.mde.is_empty() {
-        let mut m = figures.mde.clone();
-        m.sort_by(|a, b| a.post_length.total_cmp(&b.post_length));
-        let l: Vec<f64> = m.iter().map(|p| p.post_length).collect();
-        let v: Vec<f64> = m.iter().map(|p| p.mde).collect();
-        out.push(mde_chart(&name("mde"), &l, &v, effect_format));
+        out.push(power_chart(&name("power"), &curves, p.target_power, &p.wait_unit));
+        let mut m = p.mde.clone();
+        m.sort_by_key(|x| x.wait);
+        let l: Vec<f64> = m.iter().map(|x| x.wait as f64).collect();
+        let v: Vec<f64> = m.iter().map(|x| x.mde.unwrap_or(f64::NAN)).collect();
+        out.push(mde_chart(&name("mde"), &l, &v, p.target_power, &p.wait_unit));
     }
     if let Some(c) = posterior_for(r, draws, &name("posterior")) {
         out.push(c);

@@ -4,9 +4,7 @@
 //! experiment and a backtest grid.
 #![allow(dead_code)]
 
-use aftercast_core::estimate::{
-    Figures, KeptDraws, MdePoint, NamedCurve, Per, PowerPoint, PropensityHistogram, Scope, SensitivityCurve,
-};
+use aftercast_core::estimate::{Figures, KeptDraws, NamedCurve, Per, PropensityHistogram, Scope, SensitivityCurve};
 use aftercast_core::result::{
     AnalysisResult, BalanceRow, EffectBlock, EstimateRow, IntervalKind, Judged, JudgedOn, PathPoint, PlaceboSummary,
     Rope, RopeUnits, SampleCounts, Summary, UnitWeight, Verdict,
@@ -99,6 +97,7 @@ fn base(verb: &str, method: &str, effect: EffectBlock, verdict: Verdict, rope: R
         sample: None,
         truth: None,
         estimates: None,
+        planning: None,
         assumptions: vec![],
     }
 }
@@ -303,11 +302,40 @@ pub fn compare() -> AnalysisResult {
     r
 }
 
-/// Placebo backtest result (its grid is in [`inputs_for`]).
+/// A plan's result: a normal approximation of power, `Phi(lift / se(w) - 1.645)` with
+/// `se(w) = 0.02 / sqrt(w)`, and its MDE `2.486 se(w)` (z_0.95 + z_0.8).
 pub fn backtest() -> AnalysisResult {
+    use aftercast_core::result::{FalsePositiveRate, PlanMde, PlanPower, Planning, WaitFor};
     let effect =
         EffectBlock { average: summary(0.0, 0.01), cumulative: None, relative: Some(summary(0.0, 0.01)), total: None };
-    base("backtest", "structural", effect, Verdict::Negligible, Rope::default())
+    let mut r = base("plan", "structural", effect, Verdict::Negligible, Rope::default());
+    let waits = [7usize, 14, 28, 56];
+    let lifts = [0.01, 0.02, 0.05, 0.10];
+    let se = |w: usize| 0.02 / (w as f64).sqrt();
+    let mut power = Vec::new();
+    for &w in &waits {
+        for &lift in &lifts {
+            let p = 0.5 * (1.0 + erf((lift / se(w) - 1.645) / std::f64::consts::SQRT_2));
+            power.push(PlanPower { wait: w, lift, power: p });
+        }
+    }
+    r.planning = Some(Planning {
+        level: 0.9,
+        target_power: 0.8,
+        wait_unit: "days".into(),
+        false_positive_rate: FalsePositiveRate { rate: 0.08, lower: 0.04, upper: 0.15, placebos: 50 },
+        power,
+        mde: waits.iter().map(|&w| PlanMde { wait: w, mde: Some(2.486 * se(w)) }).collect(),
+        wait_for: vec![
+            WaitFor { lift: 0.01, wait: None },
+            WaitFor { lift: 0.02, wait: Some(7) },
+            WaitFor { lift: 0.05, wait: Some(2) },
+            WaitFor { lift: 0.10, wait: Some(1) },
+        ],
+        longest_wait: 56,
+        answer: vec![],
+    });
+    r
 }
 
 fn normal_draws(seed: u64, n: usize, mean: f64, sd: f64) -> Vec<f64> {
@@ -359,23 +387,11 @@ pub fn inputs_for(stem: &str) -> (KeptDraws, Figures) {
             KeptDraws { average: normal_draws(8, 2000, 61.0, 18.0), ..KeptDraws::default() }
         }
         "compare" => KeptDraws { average: normal_draws(9, 2000, 55.0, 20.0), ..KeptDraws::default() },
-        "backtest" => {
-            for len in [7.0f64, 14.0, 28.0, 56.0] {
-                let se = 0.02 / len.sqrt();
-                for k in 0..=10 {
-                    let eff = 0.002 * f64::from(k);
-                    let p = 0.5 * (1.0 + erf((eff / se - 1.645) / std::f64::consts::SQRT_2));
-                    figures.power.push(PowerPoint { post_length: len, effect: eff, power: p });
-                }
-                figures.mde.push(MdePoint { post_length: len, mde: 2.486 * se });
-            }
-            figures.lifts_are_relative = true;
-            KeptDraws {
-                relative: normal_draws(10, 500, 0.0, 0.01),
-                average: normal_draws(11, 500, 0.0, 0.01),
-                ..KeptDraws::default()
-            }
-        }
+        "backtest" => KeptDraws {
+            relative: normal_draws(10, 500, 0.0, 0.01),
+            average: normal_draws(11, 500, 0.0, 0.01),
+            ..KeptDraws::default()
+        },
         _ => KeptDraws::default(),
     };
     (draws, figures)
