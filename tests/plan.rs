@@ -161,6 +161,11 @@ fn panel_and_unit_table_plans_give_the_same_planning_section() {
     let in_space = runs.iter().chain(failures).filter(|o| o.get("label").is_some()).count();
     assert_eq!(in_space, 34);
     assert!(runs.iter().any(|o| o.get("label").is_none()), "placebo dates too");
+    // placebo dates: 6-week windows that end before the sale's first week (2026-04-06)
+    for o in runs.iter().filter(|o| o.get("label").is_none()) {
+        let t = o["time"].as_str().expect("time");
+        assert!(t <= "2026-02-23", "placebo window from {t} reaches the sale");
+    }
     assert!(out.contains("How long to wait"), "{out}");
 
     let members = demo("members.csv");

@@ -452,9 +452,13 @@ pub fn aggregate(
     };
     let planning = crate::plan::planning(&thresholds, &question);
     let mut warnings = Vec::new();
-    if planned < spec.placebos {
+    // placebo units of a panel plan come on top of its dates
+    let units =
+        origins.iter().filter(|o| o.label.is_some()).count() + failures.iter().filter(|f| f.label.is_some()).count();
+    let dates = planned.saturating_sub(units);
+    if dates < spec.placebos {
         warnings.push(format!(
-            "only {planned} distinct placebo dates fit in the pre-period (asked for {}): the rates below rest on fewer runs",
+            "only {dates} distinct placebo dates fit in the pre-period (asked for {}): the rates rest on fewer runs; a smaller --min-train or shorter --waits leaves room for more",
             spec.placebos
         ));
     }
@@ -471,7 +475,7 @@ pub fn aggregate(
     }
     if k > 0 && k < 30 {
         warnings.push(format!(
-            "{k} placebo dates give rates with a standard error near {:.0} percentage points: treat power and false positives as rough",
+            "{k} placebo runs give rates with a standard error near {:.0} percentage points: treat power and false positives as rough, or raise --placebos",
             50.0 / (k as f64).sqrt()
         ));
     }
@@ -637,7 +641,9 @@ pub fn run_jobs(
                     || p.is_empty()
                     || p.iter().any(|x| x.len() != horizon || x.iter().any(|v| !v.is_finite()))
                 {
-                    Err(fail(format!("the model gave no usable paths (expected finite paths of length {horizon})")))
+                    Err(fail(format!(
+                        "the fit at this date gave a counterfactual that is not a finite number in every one of the {horizon} periods, so it cannot be scored"
+                    )))
                 } else {
                     Ok(evaluate_origin(i, job, spec, &w))
                 }

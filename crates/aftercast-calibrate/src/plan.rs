@@ -57,7 +57,7 @@ pub fn seen(lift: f64, (up, down): (f64, f64)) -> bool {
 
 /// The `ceil(p n)`-th smallest value (None if there are no values or it is not finite).
 pub fn order_stat(mut v: Vec<f64>, p: f64) -> Option<f64> {
-    if v.is_empty() {
+    if v.is_empty() || !(p > 0.0 && p <= 1.0) {
         return None;
     }
     v.sort_by(f64::total_cmp);
@@ -86,10 +86,13 @@ fn finished(t: &Thresholds, j: usize) -> impl Iterator<Item = (f64, f64)> + '_ {
     t.runs.iter().map(move |r| r[j]).filter(|x| !(x.0.is_nan() || x.1.is_nan()))
 }
 
-/// Power at one wait index and lift.
+/// Power at one wait index and lift (NaN when no run finished there).
 fn power_at(t: &Thresholds, j: usize, lift: f64) -> f64 {
     let k = finished(t, j).count();
-    finished(t, j).filter(|x| seen(lift, *x)).count() as f64 / k.max(1) as f64
+    if k == 0 {
+        return f64::NAN;
+    }
+    finished(t, j).filter(|x| seen(lift, *x)).count() as f64 / k as f64
 }
 
 /// The plan's answer from the runs' thresholds.
@@ -150,6 +153,13 @@ pub fn warnings(p: &Planning) -> Vec<String> {
     if fp.placebos >= 20 && fp.lower > nominal {
         out.push(format!(
             "false positives where nothing happened: {:.0}% of placebo runs, above the {:.0}% the interval level allows: the analysis's intervals are too narrow here, so an effect it reports may be noise; widen the interval (--level) or improve the set-up before trusting a verdict",
+            100.0 * fp.rate,
+            100.0 * nominal
+        ));
+    }
+    if fp.placebos >= 20 && fp.upper < nominal {
+        out.push(format!(
+            "false positives where nothing happened: {:.0}% of placebo runs, below the {:.0}% the interval level allows: the intervals are wider than the errors at these dates, so the power above is on the cautious side (a change may be seen sooner)",
             100.0 * fp.rate,
             100.0 * nominal
         ));

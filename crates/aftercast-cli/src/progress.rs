@@ -26,7 +26,7 @@ pub fn stop_flag() -> Result<Arc<AtomicBool>, String> {
             if f2.swap(true, Ordering::SeqCst) {
                 std::process::exit(130);
             }
-            esayln!("\ninterrupted: finishing the placebo origins in progress (Ctrl-C again to quit now)");
+            esayln!("\ninterrupted: finishing the placebo runs in progress, then writing what is done (Ctrl-C again to quit now)");
         })
         .map(|_| flag)
         .map_err(|e| e.to_string())

@@ -324,7 +324,7 @@ fn typed_figure_data_reaches_the_charts() {
     // no placebo runs: no placebo chart (never an empty one)
     let (d0, f0) = none();
     assert!(charts::charts_for(&s, &d0, &f0, "s").iter().all(|c| c.name != "s-placebo-gaps"));
-    // backtest: lifts are fractions, labelled in percent
+    // a plan: lifts are fractions, labelled in percent; one line per lift against the wait
     let b = common::backtest();
     let (d, f) = common::inputs_for("backtest");
     let c = charts::charts_for(&b, &d, &f, "b");
@@ -335,7 +335,10 @@ fn typed_figure_data_reaches_the_charts() {
         parse_svg(&svg);
         assert!(svg.contains('%'), "{view}: lifts are fractions, labelled in percent");
     }
-    assert!(c.iter().find(|c| c.name == "b-power").expect("power").to_svg(true).expect("svg").contains("28 periods"));
+    let power = c.iter().find(|c| c.name == "b-power").expect("power").to_svg(true).expect("svg");
+    assert!(power.contains("+2% change") && power.contains("wait (days)") && power.contains("target 80%"));
+    let mde = c.iter().find(|c| c.name == "b-mde").expect("mde").to_svg(true).expect("svg");
+    assert!(mde.contains("wait (days)"));
 }
 
 #[test]

@@ -60,11 +60,12 @@ pub struct PlanOptions {
     #[arg(long, allow_hyphen_values = true, value_delimiter = ',', default_value = "1,2,5,10", value_parser = parse_lift)]
     pub lifts: Vec<f64>,
     /// Target power.
-    #[arg(long, default_value_t = 0.8)]
+    #[arg(long, default_value_t = 0.8, value_parser = parse_power)]
     pub power: f64,
-    /// Shortest fitting span of a placebo date, in periods (default: one full cycle of the
-    /// longest season you give, two of a season that follows the data's frequency or under
-    /// --model auto; at least 30).
+    /// Shortest fitting span of a placebo date, in periods (default for a forecast: one full
+    /// cycle of the longest season you give, two of a season that follows the data's frequency
+    /// or under --model auto, at least 30, plus any washout; for a synthetic control: a year of
+    /// periods, at most half the pre-period, at least 10).
     #[arg(long)]
     pub min_train: Option<usize>,
     /// Write each finished placebo run to this JSON-lines file as it completes.
@@ -124,6 +125,12 @@ pub struct StudyPlanArgs {
     /// Further flags: the plan's own (--waits, --lifts, ...) and outputs (--json, --out).
     #[arg(trailing_var_arg = true, allow_hyphen_values = true)]
     pub rest: Vec<String>,
+}
+
+/// A target power strictly between 0 and 1.
+fn parse_power(s: &str) -> Result<f64, String> {
+    let v: f64 = s.trim().parse().map_err(|_| format!("'{s}' is not a number"))?;
+    if v > 0.0 && v < 1.0 { Ok(v) } else { Err(format!("'{s}' is not a power strictly between 0 and 1 (e.g. 0.8)")) }
 }
 
 /// A lift in percent (`5` or `5%`) as a fraction.
@@ -207,7 +214,11 @@ fn resolve(s: &StudyPlanArgs) -> anyhow::Result<Args> {
     })?;
     match cli.verb {
         crate::Verb::Plan(a) if !matches!(a.what, What::Study(_)) => Ok(a),
-        _ => Err(bad_input_msg(format!("{}: analysis '{}' cannot be planned", s.study.display(), s.analysis))),
+        _ => Err(bad_input_msg(format!(
+            "{}: analysis '{}' cannot be planned: only forecast, synthetic and match analyses have a plan",
+            s.study.display(),
+            s.analysis
+        ))),
     }
 }
 
@@ -218,6 +229,10 @@ fn resolve(s: &StudyPlanArgs) -> anyhow::Result<Args> {
 pub fn run_verb(a: &Args) -> anyhow::Result<()> {
     if let What::Study(s) = &a.what {
         let inner = resolve(s)?;
+        // the study's flags are known now: --threads among the further flags takes effect here
+        if let Some(n) = common(&inner).and_then(|c| c.threads) {
+            let _ = rayon::ThreadPoolBuilder::new().num_threads(n as usize).build_global();
+        }
         return run_verb(&inner);
     }
     let common = common(a).ok_or_else(|| anyhow::anyhow!("a study plan resolves to an analysis"))?;
@@ -275,6 +290,7 @@ pub fn waits(
     room: usize,
     what: &str,
 ) -> anyhow::Result<(Vec<usize>, Option<String>)> {
+    let unit = wait_unit(freq);
     let mut w: Vec<usize> = if asked.is_empty() {
         let mut d = default_waits(freq);
         if post_len > 0 {
@@ -292,13 +308,13 @@ pub fn waits(
     let (keep, drop): (Vec<usize>, Vec<usize>) = w.into_iter().partition(|x| *x <= room);
     if keep.is_empty() {
         return Err(bad_input_msg(format!(
-            "{what}: the pre-period leaves room for placebo windows of at most {room} periods after the shortest fitting span, too short for any wait asked ({}); give shorter --waits, a smaller --min-train, or more history",
+            "{what}: the pre-period leaves room for placebo windows of at most {room} {unit} after the shortest fitting span, too short for any wait asked ({}); give shorter --waits, a smaller --min-train, or more history",
             drop.iter().map(ToString::to_string).collect::<Vec<_>>().join(", ")
         )));
     }
     let note = (!drop.is_empty()).then(|| {
         format!(
-            "waits of {} periods cannot be checked: placebo windows must end before the real change and start after the shortest fitting span, leaving room for {room} periods",
+            "waits of {} {unit} cannot be checked: placebo windows must end before the real change and start after the shortest fitting span, which leaves room for {room} {unit}; a smaller --min-train or more history would check them",
             drop.iter().map(ToString::to_string).collect::<Vec<_>>().join(", ")
         )
     });
@@ -365,7 +381,17 @@ fn plan_forecast(f: &ForecastPlanArgs) -> anyhow::Result<crate::verbs::Outcome> 
     )
     .map_err(forecast::classify)?;
     let pre = setup.split.pre_end;
-    let min_train = f.plan.min_train.unwrap_or_else(|| model.min_train());
+    // a span given by the user is of fitted periods: the washout comes on top, as for the default
+    let min_train = f.plan.min_train.map_or_else(|| model.min_train(), |m| m + a.washout);
+    let pre_values: Vec<f64> =
+        setup.series.outcome[..setup.split.pre_end].iter().copied().filter(|v| v.is_finite()).collect();
+    let level = pre_values.iter().sum::<f64>() / pre_values.len().max(1) as f64;
+    if level.is_nan() || level <= 0.0 {
+        return Err(bad_input_msg(format!(
+            "plan forecast: lifts are percentages of the counterfactual, but '{}' averages {level} before --start; plan a series whose level is positive (e.g. counts or revenue)",
+            a.outcome
+        )));
+    }
     let freq = setup.series.frequency();
     let (waits, note) =
         waits(&f.plan.waits, freq, setup.split.post_len(), pre.saturating_sub(min_train), "plan forecast")?;
@@ -377,12 +403,11 @@ fn plan_forecast(f: &ForecastPlanArgs) -> anyhow::Result<crate::verbs::Outcome> 
     let watch = Watch::new(&a.common)?;
     let report = backtest::run(&model, &data, &spec, &watch.control(f.plan.partial.as_deref())).map_err(classify)?;
     let headline = format!(
-        "plan for '{}' before {}: {} of {} placebo dates with the {} model{}",
+        "plan for '{}' before {}: {} of {} placebo dates, each fitted as the analysis will be{}",
         a.outcome,
         a.start,
         report.origins_completed,
         report.origins_planned,
-        report.model,
         if report.interrupted { " (interrupted)" } else { "" },
     );
     placebo_outcome(&report, note.into_iter().collect(), &a.common, setup.inputs, headline, f.plan.partial.as_deref())
@@ -428,7 +453,9 @@ pub(crate) fn plan_table(p: &aftercast_core::result::Planning) -> aftercast_repo
             ];
             for l in &lifts {
                 let x = p.power.iter().find(|x| x.wait == m.wait && x.lift == *l);
-                row.push(x.map_or("n/a".into(), |x| format!("{:.0}%", 100.0 * x.power)));
+                row.push(
+                    x.filter(|x| x.power.is_finite()).map_or("n/a".into(), |x| format!("{:.0}%", 100.0 * x.power)),
+                );
             }
             row
         })

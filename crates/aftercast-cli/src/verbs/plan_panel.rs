@@ -18,6 +18,11 @@ use aftercast_core::{EffectDraws, Estimate};
 /// The analysis's bad input, a pre-period too short for any wait, and the plan's errors.
 pub fn plan_synthetic(s: &SyntheticPlanArgs) -> anyhow::Result<crate::verbs::Outcome> {
     let a = &s.analysis;
+    if a.no_robustness {
+        return Err(bad_input_msg(
+            "--no-robustness: a plan runs no robustness checks of its own (each placebo fit is the synthetic control alone); leave the flag out",
+        ));
+    }
     let setup = crate::verbs::synthetic::setup(a)?;
     let panel = &setup.panel;
     let points = panel.axis.points();
@@ -56,7 +61,7 @@ pub fn plan_synthetic(s: &SyntheticPlanArgs) -> anyhow::Result<crate::verbs::Out
         }));
     } else {
         notes.push(format!(
-            "no placebo units: the real post-period ({post_len} periods) is shorter than the longest wait ({h}), so only placebo dates are used"
+            "no placebo units: the real post-period ({post_len} periods) is shorter than the longest wait ({h}), so only placebo dates are used; give --waits of at most {post_len} to add each untouched unit at the real start"
         ));
     }
     let treated = &setup.treated;
@@ -81,7 +86,7 @@ pub fn plan_synthetic(s: &SyntheticPlanArgs) -> anyhow::Result<crate::verbs::Out
     let report = backtest::run_jobs(&model, &a.outcome, &jobs, &paths, &spec, &control).map_err(classify)?;
     let in_space = report.origins.iter().filter(|o| o.label.is_some()).count();
     let headline = format!(
-        "plan for '{}' of {} from {}: {} placebo dates and {in_space} placebo units with the {model}{}",
+        "plan for '{}' of {} from {}: {} placebo dates and {in_space} placebo units{}",
         a.outcome,
         treated.join(", "),
         a.start,
@@ -113,8 +118,19 @@ pub struct SizeDiagnostics {
 /// The analysis's bad input and the plan's errors.
 pub fn plan_match(m: &MatchPlanArgs) -> anyhow::Result<crate::verbs::Outcome> {
     let a = &m.analysis;
+    if !m.plan.waits.is_empty() {
+        return Err(bad_input_msg("--waits: a plan of a unit table is by sample size; give --sizes (units) instead"));
+    }
+    if m.plan.min_train.is_some() || m.plan.partial.is_some() {
+        return Err(bad_input_msg(
+            "--min-train and --partial belong to plans over time (plan forecast, plan synthetic); a unit-table plan has neither",
+        ));
+    }
     let (units, params) = crate::verbs::match_::setup(a)?;
     let n = units.len();
+    if let Some(s) = m.sizes.iter().find(|s| **s < 4) {
+        return Err(bad_input_msg(format!("--sizes: {s} units are too few to analyse; give sizes of 4 units or more")));
+    }
     let mut sizes = if m.sizes.is_empty() { vec![n / 4, n / 2, n, 2 * n] } else { m.sizes.clone() };
     sizes.retain(|s| *s >= 4);
     sizes.sort_unstable();

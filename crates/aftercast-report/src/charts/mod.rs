@@ -1039,7 +1039,10 @@ pub fn mde_chart(name: &str, waits: &[f64], mde: &[f64], target: f64, wait_unit:
             y_label: "minimum detectable effect".into(),
             y_format: ValueFormat::Percent,
             x_format: ValueFormat::Number,
-            y_range: None,
+            // from zero, so the fall with the wait is read at its true size
+            y_range: Some(mde.iter().copied().filter(|v| v.is_finite()).fold(0.0, f64::max))
+                .filter(|m| *m > 0.0)
+                .map(|m| (0.0, 1.1 * m)),
         }),
     )
     .legend(&[("minimum detectable effect", theme::TEAL, Swatch::Line)])
