@@ -77,7 +77,10 @@ pub fn wilson(k: usize, n: usize, level: f64) -> (f64, f64) {
     let z2 = z * z;
     let centre = (p + z2 / (2.0 * nf)) / (1.0 + z2 / nf);
     let half = z / (1.0 + z2 / nf) * (p * (1.0 - p) / nf + z2 / (4.0 * nf * nf)).sqrt();
-    ((centre - half).max(0.0), (centre + half).min(1.0))
+    // exact ends at 0 and n (the closed form leaves a rounding residue there)
+    let lower = if k == 0 { 0.0 } else { (centre - half).max(0.0) };
+    let upper = if k == n { 1.0 } else { (centre + half).min(1.0) };
+    (lower, upper)
 }
 
 /// The runs that finished at wait index `j` (a NaN threshold marks a run whose fit failed
@@ -201,6 +204,8 @@ mod tests {
             let (l, h) = wilson(k, n, 0.95);
             assert!((l - lo).abs() < 5e-5 && (h - hi).abs() < 5e-5, "{k}/{n}: ({l}, {h})");
         }
+        assert_eq!(wilson(0, 50, 0.9).0, 0.0);
+        assert_eq!(wilson(50, 50, 0.9).1, 1.0);
     }
 
     #[test]

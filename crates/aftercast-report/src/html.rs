@@ -625,6 +625,15 @@ fn data_section(out: &mut String, input: &ReportInput) {
             )
         } else if let Some(est) = &r.estimates {
             format!("{} observational methods compared with a randomized experiment", est.len())
+        } else if let Some(p) = &r.planning {
+            let waits: Vec<String> = p.mde.iter().map(|m| m.wait.to_string()).collect();
+            format!(
+                "{} placebo runs; {} of {} {} checked",
+                p.false_positive_rate.placebos,
+                if p.wait_unit == "units" { "sizes" } else { "waits" },
+                waits.join(", "),
+                p.wait_unit
+            )
         } else {
             "no period or unit counts in the result".into()
         };
