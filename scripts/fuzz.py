@@ -138,7 +138,7 @@ BASES = [
     Base("match-nearest", "match", _f(
         ("data", "members.csv"), ("id", "customer_id"), ("treatment", "joined"), ("outcome", "spend_90d"),
         ("covariates", "spend_pre,visits_pre,tenure_months,age_band"), ("categorical", "age_band"),
-        ("exact", "age_band"), ("method", "nearest"), ("replace", None), ("k", "2"), ("bias-adjust", None),
+        ("exact", "age_band"), ("method", "nearest"), ("replace", None), ("k", "2"), ("bias-correct", None),
         ("draws", "50"), ("out", "out"), ("quiet", None)),
         ("members.csv",)),
     Base("compare-pool", "compare", _f(

@@ -3,16 +3,16 @@
 //!
 //! Term syntax (ours; see docs/match.md):
 //!
-//! | written          | column                                  |
-//! | ---------------- | --------------------------------------- |
-//! | `age^2`          | age squared (`^k` for any k in 2..=4)   |
-//! | `educ:re74`      | product of educ and re74                |
-//! | `age^2:educ`     | factors multiply; each may carry a power|
-//! | `zero(re74)`     | 1 if re74 == 0, else 0                  |
-//! | `log1p(spend)`   | ln(1 + spend) (spend > -1)              |
+//! | written                    | column                                        |
+//! | -------------------------- | --------------------------------------------- |
+//! | `tenure_months^2`          | tenure squared (`^k` for any k in 2..=4)      |
+//! | `visits_pre:spend_pre`     | product of visits_pre and spend_pre           |
+//! | `tenure_months^2:visits_pre` | factors multiply; each may carry a power    |
+//! | `zero(spend_pre)`          | 1 if spend_pre == 0, else 0                   |
+//! | `log1p(spend_pre)`         | ln(1 + spend_pre) (spend_pre > -1)            |
 //!
-//! `--squares age,educ` is shorthand for the terms `age^2,educ^2`; `--interact educ:re74` adds
-//! the product term.
+//! `--squares tenure_months,visits_pre` is shorthand for the terms
+//! `tenure_months^2,visits_pre^2`; `--interact visits_pre:spend_pre` adds the product term.
 use rayon::prelude::*;
 
 use crate::error::{MatchError, MatchResult};

@@ -382,7 +382,7 @@ impl ValidParams {
                 let to_t =
                     (!att).then(|| nearest::match_units(eta, &control_idx, &treated_idx, keys.as_deref(), &rule, maha));
                 let sigma2 = nearest::conditional_variances(eta, &tr, &y, p.variance_neighbours);
-                let est = nearest::estimate(&y, &tr, &to_c, to_t.as_ref(), &sigma2, p.bias_adjust.then_some(&design))
+                let est = nearest::estimate(&y, &tr, &to_c, to_t.as_ref(), &sigma2, p.bias_correct.then_some(&design))
                     .ok_or(MatchError::NoMatches { caliper: cal.unwrap_or(f64::INFINITY) })?;
                 if att && est.focal_matched == 0 {
                     return Err(MatchError::NoMatches { caliper: cal.unwrap_or(f64::INFINITY) });

@@ -239,7 +239,7 @@ pub struct MatchEstimate {
 
 /// Estimate the ATT (focal = treated; `att = true`) or the ATE (both directions matched) with
 /// the Abadie-Imbens variance. `to_controls` matches treated units to controls; `to_treated`
-/// matches controls to treated units (ATE only). With `bias_adjust` the imputed outcomes are
+/// matches controls to treated units (ATE only). With `bias_correct` the imputed outcomes are
 /// corrected by a weighted linear regression on the design among the units used as matches.
 #[allow(clippy::too_many_arguments)]
 pub fn estimate(
@@ -248,7 +248,7 @@ pub fn estimate(
     to_controls: &Matches,
     to_treated: Option<&Matches>,
     sigma2: &[f64],
-    bias_adjust: Option<&Design>,
+    bias_correct: Option<&Design>,
 ) -> Option<MatchEstimate> {
     let n = y.len();
     // usage weights K and K' of each unit as a match
@@ -268,7 +268,7 @@ pub fn estimate(
         }
     }
     // bias-correction models, one per group that is imputed
-    let models: Option<OutcomeModels> = bias_adjust.map(|d| {
+    let models: Option<OutcomeModels> = bias_correct.map(|d| {
         let fitg = |grp: bool| {
             let rows: Vec<usize> = (0..n).filter(|&i| treated[i] == grp && kw[i] > 0.0).collect();
             if rows.len() <= d.width() {
@@ -283,7 +283,7 @@ pub fn estimate(
     let imputed = |i: usize, js: &[usize], grp_model: Option<&DVector<f64>>| -> f64 {
         let mut s = 0.0;
         for &j in js {
-            let adj = match (bias_adjust, grp_model) {
+            let adj = match (bias_correct, grp_model) {
                 (Some(d), Some(b)) => linear::predict(d, b, i) - linear::predict(d, b, j),
                 _ => 0.0,
             };

@@ -11,7 +11,7 @@
 //! | `caliper` | 0.2 SD of the logit | largest logit distance | > 0, or none |
 //! | `mahalanobis` | false | choose within the caliper by Mahalanobis distance | needs a caliper |
 //! | `exact` | none | categorical columns matched exactly | |
-//! | `bias_adjust` | false | Abadie-Imbens (2011) regression correction | nearest only |
+//! | `bias_correct` | false | Abadie-Imbens (2011) regression correction | nearest only |
 //! | `penalty` | 0 | L2 penalty on standardised coefficients | >= 0 |
 //! | `separation` | penalise(1.0) | what to do when the groups separate | |
 //! | `trim` | none | common-support trimming before estimation | none, minmax, crump, fixed(a) |
@@ -212,7 +212,7 @@ pub struct MatchParams {
     /// Exact-matching categorical columns.
     pub exact: Vec<String>,
     /// Bias-corrected matching.
-    pub bias_adjust: bool,
+    pub bias_correct: bool,
     /// L2 penalty of the propensity model.
     pub penalty: f64,
     /// Separation policy.
@@ -246,7 +246,7 @@ impl MatchParams {
             caliper: Caliper::default(),
             mahalanobis: false,
             exact: Vec::new(),
-            bias_adjust: false,
+            bias_correct: false,
             penalty: 0.0,
             separation: SeparationPolicy::default(),
             trim: Trim::None,
@@ -367,8 +367,8 @@ impl MatchParams {
         self
     }
     /// Bias-corrected matching.
-    pub fn bias_adjust(mut self, b: bool) -> Self {
-        self.bias_adjust = b;
+    pub fn bias_correct(mut self, b: bool) -> Self {
+        self.bias_correct = b;
         self
     }
     /// L2 penalty.
@@ -467,7 +467,7 @@ impl MatchParams {
                 detail: "Mahalanobis matching is done within a caliper; give --caliper".into(),
             });
         }
-        if self.method != Method::Nearest && (self.bias_adjust || self.mahalanobis || !self.exact.is_empty()) {
+        if self.method != Method::Nearest && (self.bias_correct || self.mahalanobis || !self.exact.is_empty()) {
             return Err(MatchError::Unsupported {
                 detail: format!(
                     "bias adjustment, Mahalanobis distance and exact matching apply to --method nearest, not {}",

@@ -236,7 +236,7 @@ fn bias_correction_reduces_matching_bias() {
         let units = simulate(500, 200 + r, 1.0);
         let p = MatchParams::new(["x1", "x2"]).replace(true).k(5).caliper(Caliper::None).pre_outcome("pre");
         plain += (p.clone().check().unwrap().fit(&units, "post").unwrap().estimate - 1.0) / runs as f64;
-        bc += (p.bias_adjust(true).check().unwrap().fit(&units, "post").unwrap().estimate - 1.0) / runs as f64;
+        bc += (p.bias_correct(true).check().unwrap().fit(&units, "post").unwrap().estimate - 1.0) / runs as f64;
     }
     assert!(bc.abs() < plain.abs(), "bias plain {plain}, corrected {bc}");
     assert!(bc.abs() < 0.1, "corrected bias {bc}");

@@ -38,7 +38,8 @@ pub struct Args {
         default_value = "naive,regression,regression-imputation,nearest,strata,ipw,overlap,aipw"
     )]
     pub methods: Vec<String>,
-    /// Extra propensity-model terms for the matching methods: `age^2`, `zero(re74)`, `educ:re74`.
+    /// Extra propensity-model terms for the matching methods: `spend_pre^2`, `zero(spend_pre)`,
+    /// `visits_pre:tenure_months`.
     #[arg(long, value_delimiter = ',')]
     pub terms: Vec<aftercast_match::design::Term>,
     /// Plasmode simulation instead of an experiment: a unit table whose covariates and

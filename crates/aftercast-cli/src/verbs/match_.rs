@@ -49,16 +49,18 @@ pub struct Args {
     /// Among controls within the caliper, choose by Mahalanobis distance on the covariates.
     #[arg(long)]
     pub mahalanobis: bool,
-    /// Abadie-Imbens (2011) regression bias correction of the matching estimator.
+    /// Bias-corrected matching (Abadie & Imbens 2011): each matched outcome is corrected by a
+    /// regression on the covariates for the covariate gap left between the pair.
     #[arg(long)]
-    pub bias_adjust: bool,
+    pub bias_correct: bool,
     /// Add squares of these numeric covariates, comma-separated.
     #[arg(long, value_delimiter = ',')]
     pub squares: Vec<String>,
     /// Add products `a:b`, comma-separated.
     #[arg(long, value_delimiter = ',')]
     pub interact: Vec<String>,
-    /// Further terms, comma-separated: `age^3`, `age^2:educ`, `zero(re74)`.
+    /// Further terms, comma-separated: `tenure_months^3`, `spend_pre^2:visits_pre`,
+    /// `zero(spend_pre)`, `log1p(spend_pre)`.
     #[arg(long, value_delimiter = ',')]
     pub terms: Vec<aftercast_match::design::Term>,
     /// Pre-period outcome column: estimate on the change (matched difference-in-differences).
@@ -114,7 +116,7 @@ pub fn setup(a: &Args) -> anyhow::Result<(UnitTable, MatchParams)> {
         .replace(a.replace)
         .caliper(a.caliper)
         .mahalanobis(a.mahalanobis)
-        .bias_adjust(a.bias_adjust)
+        .bias_correct(a.bias_correct)
         .trim(a.trim)
         .strata(a.strata)
         .penalty(a.penalty)
