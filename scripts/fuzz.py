@@ -10,7 +10,7 @@ Defaults: --bin $CARGO_TARGET_DIR/debug/aftercast (or target/debug/aftercast), -
 
 It copies small heads of the demo inputs (demo-data/) into <work>/pristine, writes a small
 study file over them, and then, until the time is up, builds one case after another: a valid
-base command of one verb (forecast, synthetic, match, compare, backtest, windows, run,
+base command of one verb (forecast, synthetic, match, compare, plan forecast, windows, run,
 inspect) with one to three mutations of its input files (bytes, lines, columns, quotes, line
 endings, BOM, huge cells, control characters, special numbers, non-UTF-8, headers, fields),
 of the study file (wrong types, unknown keys, `..` paths, very long names, ...) or of its flags
@@ -74,7 +74,7 @@ FSIZE_LIMIT = 2 << 30  # no single file written by a child beyond 2 GiB
 PROGRESS_EVERY = 30.0
 FAILING_KINDS = ("crash", "internal", "exit-code", "input-changed", "device-replaced")
 ALL_KINDS = ("crash", "internal", "exit-code", "input-changed", "device-replaced", "slow", "hygiene")
-VERBS = ("forecast", "synthetic", "match", "compare", "backtest", "windows", "run", "inspect")
+VERBS = ("forecast", "synthetic", "match", "compare", "plan forecast", "windows", "run", "inspect")
 IS_ROOT = hasattr(os, "geteuid") and os.geteuid() == 0
 
 # Scratch name, source under demo-data/, data rows kept (None = the whole file).
@@ -147,12 +147,12 @@ BASES = [
         ("terms", "spend_pre^2"), ("history", "history.jsonl"), ("draws", "50"), ("json", "out.json"),
         ("quiet", None)),
         ("experiment.csv", "pool.csv")),
-    Base("backtest-series", "backtest", _f(
+    Base("plan-series", "plan forecast", _f(
         ("data", "app_daily.csv"), ("time", "date"), ("outcome", "app_orders"), ("controls", "weather_index"),
         ("start", "2026-03-02"), ("season", "7"), ("trend", "level"), ("placebos", "5"), ("lifts", "-5,2,10"),
         ("draws", "100"), ("json", "out.json"), ("quiet", None)),
         ("app_daily.csv",)),
-    Base("backtest-plasmode", "backtest", _f(
+    Base("compare-plasmode", "compare", _f(
         ("plasmode", "members.csv"), ("treatment", "joined"), ("outcome", "spend_90d"),
         ("covariates", "spend_pre,visits_pre,tenure_months"), ("effect", "5"), ("replicates", "5"),
         ("methods", "naive,ipw,aipw"), ("draws", "50"), ("json", "out.json"), ("quiet", None)),
@@ -798,7 +798,7 @@ class Case:
     muts: list = field(default_factory=list)  # (category, name, detail)
 
     def args(self) -> list:
-        a = [self.verb] + list(self.positionals)
+        a = self.verb.split() + list(self.positionals)
         for f, v in self.flags:
             if f.startswith("\0raw:"):
                 a.append(f[5:])
@@ -1505,7 +1505,7 @@ def head_rows(data: bytes, rows: int | None) -> bytes:
 
 def parse_help(bin_path: Path, verb: str):
     wait_for_bin(bin_path)
-    out = subprocess.run([str(bin_path), verb, "--help"], capture_output=True, text=True, timeout=60).stdout
+    out = subprocess.run([str(bin_path), *verb.split(), "--help"], capture_output=True, text=True, timeout=60).stdout
     flags = {}
     for m in re.finditer(r"^\s+(?:-\w, )?--([a-z0-9][a-z0-9-]*)(?: <([A-Z_]+)>)?", out, re.M):
         flags[m.group(1)] = m.group(2) is not None

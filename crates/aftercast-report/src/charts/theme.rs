@@ -82,11 +82,25 @@ fn decimals_for(span: f64) -> usize {
     if step >= 1.0 { 0 } else { (1.0 - step.log10().floor()).clamp(0.0, 6.0) as usize }
 }
 
-/// Format a tick value on an axis spanning `span`.
+/// Format a tick value on an axis spanning `span`. A value that rounds to zero is written
+/// "0" (never "-0%", "0k" or "-0.00").
 pub fn fmt_tick(v: f64, span: f64, format: ValueFormat) -> String {
     if !v.is_finite() {
         return String::new();
     }
+    let text = tick_text(v, span, format);
+    let digits_zero = text.chars().filter(char::is_ascii_digit).all(|c| c == '0');
+    if !digits_zero {
+        return text;
+    }
+    match format {
+        ValueFormat::Percent => "0%".into(),
+        ValueFormat::Share => text.trim_start_matches('-').to_string(),
+        ValueFormat::Number => "0".into(),
+    }
+}
+
+fn tick_text(v: f64, span: f64, format: ValueFormat) -> String {
     match format {
         ValueFormat::Percent => {
             let d = decimals_for(span * 100.0);
@@ -172,7 +186,10 @@ mod tests {
     fn ticks_read_well() {
         assert_eq!(fmt_tick(25_000.0, 40_000.0, ValueFormat::Number), "25k");
         assert_eq!(fmt_tick(0.25, 1.0, ValueFormat::Number), "0.25");
-        assert_eq!(fmt_tick(-0.0, 1.0, ValueFormat::Number), "0.00");
+        assert_eq!(fmt_tick(-0.0, 1.0, ValueFormat::Number), "0");
+        assert_eq!(fmt_tick(0.0, 40_000.0, ValueFormat::Number), "0");
+        assert_eq!(fmt_tick(-1e-12, 0.2, ValueFormat::Percent), "0%");
+        assert_eq!(fmt_tick(-0.0, 1.0, ValueFormat::Share), "0.00");
         assert_eq!(fmt_tick(0.05, 0.2, ValueFormat::Percent), "5%");
         assert_eq!(fmt_tick(2_500_000.0, 3_000_000.0, ValueFormat::Number), "2.50M");
         assert_eq!(fmt_day(0.0, 30.0), "1 Jan");
