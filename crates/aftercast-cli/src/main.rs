@@ -148,9 +148,8 @@ fn main() {
             // depend on the thread count, so that is harmless.
             let _ = rayon::ThreadPoolBuilder::new().num_threads(n as usize).build_global();
         }
-        // a plan draws its own bar over the placebo runs; every other verb shows the libraries'
-        // stages
-        if !quiet_of(&cli.verb) && !matches!(cli.verb, Verb::Plan(_)) {
+        // the libraries' stages on one line of stderr (a plan's runs are counted as they finish)
+        if !quiet_of(&cli.verb) {
             progress::show_stages();
         }
         dispatch(&cli.verb)

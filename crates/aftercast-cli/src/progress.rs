@@ -34,45 +34,6 @@ pub fn stop_flag() -> Result<Arc<AtomicBool>, String> {
     .clone()
 }
 
-/// A progress bar on stderr, drawn only when it is wanted and stderr is a terminal.
-pub struct Bar {
-    bar: OnceLock<ProgressBar>,
-    show: bool,
-}
-
-impl Bar {
-    /// A bar that draws when `show` is set and stderr is a terminal.
-    pub fn new(show: bool) -> Bar {
-        Bar { bar: OnceLock::new(), show: show && std::io::stderr().is_terminal() }
-    }
-}
-
-impl aftercast_calibrate::backtest::Progress for Bar {
-    fn start(&self, total: u64, what: &str) {
-        if !self.show {
-            return;
-        }
-        let bar = ProgressBar::with_draw_target(Some(total), ProgressDrawTarget::stderr());
-        if let Ok(style) = ProgressStyle::with_template("{bar:30} {pos}/{len} {msg} ({elapsed}, about {eta} left)") {
-            bar.set_style(style);
-        }
-        bar.set_message(what.to_string());
-        let _ = self.bar.set(bar);
-    }
-
-    fn step(&self) {
-        if let Some(b) = self.bar.get() {
-            b.inc(1);
-        }
-    }
-
-    fn finish(&self) {
-        if let Some(b) = self.bar.get() {
-            b.finish_and_clear();
-        }
-    }
-}
-
 /// How long a stage runs before it is shown (short steps never flicker on the screen).
 const SHOW_AFTER: std::time::Duration = std::time::Duration::from_millis(800);
 

@@ -321,10 +321,10 @@ pub fn waits(
     Ok((keep, note))
 }
 
-/// Ctrl-C handling and a progress bar (on a terminal, unless quiet) for a plan's runs.
+/// Ctrl-C handling for a plan's runs (their progress is shown by the stage line every verb
+/// shows on a terminal: the runs are drawn in parallel and counted as they finish).
 pub(crate) struct Watch {
     flag: std::sync::Arc<std::sync::atomic::AtomicBool>,
-    bar: crate::progress::Bar,
 }
 
 impl Watch {
@@ -332,14 +332,14 @@ impl Watch {
     ///
     /// # Errors
     /// When Ctrl-C cannot be handled.
-    pub(crate) fn new(common: &Common) -> anyhow::Result<Watch> {
+    pub(crate) fn new() -> anyhow::Result<Watch> {
         let flag = crate::progress::stop_flag().map_err(|m| anyhow::anyhow!("cannot handle Ctrl-C: {m}"))?;
-        Ok(Watch { flag, bar: crate::progress::Bar::new(!common.quiet) })
+        Ok(Watch { flag })
     }
 
     /// The run control over the watched runs, writing finished runs to `partial`.
     pub(crate) fn control<'a>(&'a self, partial: Option<&'a std::path::Path>) -> RunControl<'a> {
-        RunControl { stop: Some(&self.flag), partial, progress: Some(&self.bar) }
+        RunControl { stop: Some(&self.flag), partial, progress: None }
     }
 }
 
@@ -396,12 +396,19 @@ fn plan_forecast(f: &ForecastPlanArgs) -> anyhow::Result<crate::verbs::Outcome> 
     let (waits, note) =
         waits(&f.plan.waits, freq, setup.split.post_len(), pre.saturating_sub(min_train), "plan forecast")?;
     let spec = spec_of(&f.plan, &a.common, waits, min_train, wait_unit(freq));
-    model.choose(spec.horizon()).map_err(forecast::classify)?;
+    {
+        let _stage =
+            aftercast_core::progress::stage("choosing and fitting the analysis's model on the pre-period", None);
+        model.choose(spec.horizon()).map_err(forecast::classify)?;
+    }
     let y = &setup.series.outcome[..pre];
     let data =
         BacktestData { name: &setup.series.name, y, controls: &[], times: Some(&setup.series.axis.points()[..pre]) };
-    let watch = Watch::new(&a.common)?;
-    let report = backtest::run(&model, &data, &spec, &watch.control(f.plan.partial.as_deref())).map_err(classify)?;
+    let watch = Watch::new()?;
+    let report = {
+        let _stage = aftercast_core::progress::stage(format!("{} placebo dates", spec.placebos), None);
+        backtest::run(&model, &data, &spec, &watch.control(f.plan.partial.as_deref())).map_err(classify)?
+    };
     let headline = format!(
         "plan for '{}' before {}: {} of {} placebo dates, each fitted as the analysis will be{}",
         a.outcome,

@@ -80,10 +80,13 @@ pub fn plan_synthetic(s: &SyntheticPlanArgs) -> anyhow::Result<crate::verbs::Out
         }
         Ok(PlaceboWindow { observed, paths: fit.draws.counterfactual })
     };
-    let watch = Watch::new(&a.common)?;
+    let watch = Watch::new()?;
     let model = format!("synthetic control ({})", a.method.name());
     let control = watch.control(s.plan.partial.as_deref());
-    let report = backtest::run_jobs(&model, &a.outcome, &jobs, &paths, &spec, &control).map_err(classify)?;
+    let report = {
+        let _stage = aftercast_core::progress::stage(format!("{} placebo runs", jobs.len()), None);
+        backtest::run_jobs(&model, &a.outcome, &jobs, &paths, &spec, &control).map_err(classify)?
+    };
     let in_space = report.origins.iter().filter(|o| o.label.is_some()).count();
     let headline = format!(
         "plan for '{}' of {} from {}: {} placebo dates and {in_space} placebo units{}",
@@ -142,8 +145,12 @@ pub fn plan_match(m: &MatchPlanArgs) -> anyhow::Result<crate::verbs::Outcome> {
     let estimator = aftercast_calibrate::adapters::matching::MatchEstimator { params };
     let inf = a.common.inference();
     let run_inf = aftercast_core::Inference { draws: usize::try_from(m.run_draws).unwrap_or(200), ..inf };
-    let watch = Watch::new(&a.common)?;
+    let watch = Watch::new()?;
     let control = watch.control(None);
+    let _stage = aftercast_core::progress::stage(
+        format!("{} simulated data sets at {} sizes", m.plan.placebos, sizes.len()),
+        None,
+    );
     let question = aftercast_calibrate::plasmode::SizeQuestion { sizes: sizes.clone(), runs: m.plan.placebos };
     let plan = aftercast_calibrate::plasmode::plan_sizes(
         &units,
