@@ -110,6 +110,27 @@ fn a_study_analysis_planned_by_name_equals_the_same_plan_by_hand() {
         // 28 days from 2026-02-02 end on 2026-03-01, the day before the launch
         assert!(t <= "2026-02-02", "placebo window from {t} reaches the launch");
     }
+    // a flag after the name replaces the study's own
+    let (code, _, err) = run(
+        &[
+            "plan",
+            "study",
+            "study.toml",
+            "app",
+            "--placebos",
+            "3",
+            "--waits",
+            "7",
+            "--seed",
+            "8",
+            "--json",
+            "o.json",
+            "--quiet",
+        ],
+        d,
+    );
+    assert_eq!(code, 0, "{err}");
+    assert_eq!(result(&d.join("o.json")).seed, 8);
     // a name the study lacks is refused, naming the ones it has
     let (code, _, err) = run(&["plan", "study", "study.toml", "nope"], d);
     assert_eq!(code, 2);

@@ -473,12 +473,6 @@ pub fn aggregate(
             f.message
         ));
     }
-    if k > 0 && k < 30 {
-        warnings.push(format!(
-            "{k} placebo runs give rates with a standard error near {:.0} percentage points: treat power and false positives as rough, or raise --placebos",
-            50.0 / (k as f64).sqrt()
-        ));
-    }
     warnings.extend(crate::plan::warnings(&planning));
     BacktestReport {
         model: model.into(),

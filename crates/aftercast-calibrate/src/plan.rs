@@ -22,7 +22,7 @@
 //!   the Wilson score interval (Wilson 1927, JASA 22:209) at the plan's level. Placebo windows
 //!   of nearby dates overlap, so the runs are not independent and the interval is optimistic.
 
-use aftercast_core::result::{FalsePositiveRate, PlanMde, PlanPower, Planning, WaitFor, lift_text};
+use aftercast_core::result::{FalsePositiveRate, PlanMde, PlanPower, Planning, WaitFor, count_text, lift_text};
 
 /// One placebo run's thresholds: `(up, down)` per wait of [`Thresholds::waits`].
 #[derive(Debug, Clone, PartialEq)]
@@ -153,18 +153,38 @@ pub fn warnings(p: &Planning) -> Vec<String> {
     let fp = &p.false_positive_rate;
     let nominal = 1.0 - p.level;
     let mut out = Vec::new();
-    if fp.placebos >= 20 && fp.lower > nominal {
+    if fp.placebos > 0 && fp.placebos < 30 {
+        out.push(format!(
+            "{} placebo runs give rates with a standard error near {:.0} percentage points (more where their windows overlap): treat power and false positives as rough, or raise --placebos",
+            fp.placebos,
+            50.0 / (fp.placebos as f64).sqrt()
+        ));
+    }
+    if fp.placebos > 0 && fp.lower > nominal {
         out.push(format!(
             "false positives where nothing happened: {:.0}% of placebo runs, above the {:.0}% the interval level allows: the analysis's intervals are too narrow here, so an effect it reports may be noise; widen the interval (--level) or improve the set-up before trusting a verdict",
             100.0 * fp.rate,
             100.0 * nominal
         ));
     }
-    if fp.placebos >= 20 && fp.upper < nominal {
+    if fp.placebos > 0 && fp.upper < nominal {
         out.push(format!(
             "false positives where nothing happened: {:.0}% of placebo runs, below the {:.0}% the interval level allows: the intervals are wider than the errors at these dates, so the power above is on the cautious side (a change may be seen sooner)",
             100.0 * fp.rate,
             100.0 * nominal
+        ));
+    }
+    // the smallest visible change should fall as the wait grows; where it rises, the errors
+    // grow faster than the window
+    let m: Vec<(usize, f64)> = p.mde.iter().filter_map(|x| x.mde.map(|v| (x.wait, v))).collect();
+    if let Some(w) = m.windows(2).find(|w| w[1].1 > w[0].1 * 1.05) {
+        out.push(format!(
+            "the smallest visible change grows from {:.1}% after {} to {:.1}% after {} {}: the model's errors grow faster than the window (a drift or trend it does not follow), so waiting longer does not help here; a better model (controls, events, trend) or a shorter wait does",
+            100.0 * w[0].1,
+            w[0].0,
+            100.0 * w[1].1,
+            w[1].0,
+            p.wait_unit
         ));
     }
     out
@@ -176,16 +196,18 @@ fn sentence(w: &WaitFor, q: &PlanQuestion, longest: usize) -> String {
     let (after, within) = if q.wait_unit == "units" { ("with", "with up to") } else { ("after", "within") };
     match w.wait {
         Some(n) => format!(
-            "a {} {change} reaches {:.0}% power {after} {n} {} (at {:.0}% intervals)",
+            "a {} {change} reaches {:.0}% power {after} {} {} (at {:.0}% intervals)",
             lift_text(w.lift),
             100.0 * q.target,
+            count_text(n),
             if n == 1 { q.wait_unit.trim_end_matches('s') } else { q.wait_unit.as_str() },
             100.0 * q.level
         ),
         None => format!(
-            "a {} {change} does not reach {:.0}% power {within} {longest} {}",
+            "a {} {change} does not reach {:.0}% power {within} {} {}",
             lift_text(w.lift),
             100.0 * q.target,
+            count_text(longest),
             q.wait_unit
         ),
     }
@@ -205,6 +227,8 @@ mod tests {
             assert!((l - lo).abs() < 5e-5 && (h - hi).abs() < 5e-5, "{k}/{n}: ({l}, {h})");
         }
         assert_eq!(wilson(0, 50, 0.9).0, 0.0);
+        assert_eq!(aftercast_core::result::count_text(100_000), "100,000");
+        assert_eq!(aftercast_core::result::count_text(999), "999");
         assert_eq!(wilson(50, 50, 0.9).1, 1.0);
     }
 
@@ -240,6 +264,30 @@ mod tests {
         assert_eq!(p.wait_for[1].wait, Some(7));
         assert_eq!(p.false_positive_rate.rate, 0.25);
         assert_eq!(p.answer[0], "a +2% change reaches 75% power after 14 days (at 90% intervals)");
+    }
+
+    #[test]
+    fn warnings_name_small_runs_false_positives_and_a_rising_mde() {
+        let t = Thresholds {
+            waits: vec![7, 14],
+            runs: (0..10)
+                .map(|k| vec![(0.02 + 0.001 * k as f64, 0.02), (0.05, if k < 4 { -0.01 } else { 0.03 })])
+                .collect(),
+        };
+        let q = PlanQuestion {
+            shown: vec![7, 14],
+            lifts: vec![0.02],
+            level: 0.9,
+            target: 0.8,
+            judged_wait: 14,
+            wait_unit: "days".into(),
+        };
+        let p = planning(&t, &q);
+        let w = warnings(&p);
+        assert!(w.iter().any(|x| x.starts_with("10 placebo runs give rates")), "{w:?}");
+        // 4 of 10 false positives: Wilson's 90% interval lies above 10%
+        assert!(w.iter().any(|x| x.contains("40% of placebo runs, above the 10%")), "{w:?}");
+        assert!(w.iter().any(|x| x.contains("grows from 2.7% after 7 to 5.0% after 14 days")), "{w:?}");
     }
 
     #[test]

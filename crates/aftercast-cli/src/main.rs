@@ -157,8 +157,13 @@ fn main() {
         Ok(Ok(())) => 0,
         Ok(Err(e)) => {
             let code = failure::exit_code(&e);
-            let kind = if code == 2 { "error" } else { "internal error" };
-            esayln!("aftercast: {kind}: {e:#}");
+            if code == 130 {
+                // the user stopped it: what was done is written; the message says so
+                esayln!("aftercast: {e:#}");
+            } else {
+                let kind = if code == 2 { "error" } else { "internal error" };
+                esayln!("aftercast: {kind}: {e:#}");
+            }
             code
         }
         Err(_) => {

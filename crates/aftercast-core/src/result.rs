@@ -352,6 +352,19 @@ pub fn lift_text(l: f64) -> String {
     format!("{}{text}%", if l < 0.0 { "-" } else { "+" })
 }
 
+/// A count with thousands separators: 100000 is "100,000".
+pub fn count_text(n: usize) -> String {
+    let digits = n.to_string();
+    let mut out = String::new();
+    for (i, c) in digits.chars().enumerate() {
+        if i > 0 && (digits.len() - i).is_multiple_of(3) {
+            out.push(',');
+        }
+        out.push(c);
+    }
+    out
+}
+
 /// The answer of a plan: how long to wait (or how many units to have) to see a change of a
 /// given size, from placebo runs of the analysis's own set-up.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]

@@ -181,7 +181,7 @@ pub fn headline(r: &AnalysisResult) -> String {
 /// change after 7 days; a +1% change does not within 121 days (90% intervals; false positives
 /// where nothing happened: 6% of 50 placebo runs)."
 pub fn plan_sentence(p: &aftercast_core::result::Planning) -> String {
-    use aftercast_core::result::lift_text;
+    use aftercast_core::result::{count_text, lift_text};
     let target = format!("{:.0}%", 100.0 * p.target_power);
     let unit = |n: usize| if n == 1 { p.wait_unit.trim_end_matches('s').to_string() } else { p.wait_unit.clone() };
     let (after, within) = if p.wait_unit == "units" { ("with", "with") } else { ("after", "within") };
@@ -191,9 +191,9 @@ pub fn plan_sentence(p: &aftercast_core::result::Planning) -> String {
     for (k, (lift, n)) in reached.iter().enumerate() {
         let what = if *lift < 0.0 { "fall" } else { "change" };
         parts.push(if k == 0 {
-            format!("a {} {what} reaches {target} power {after} {n} {}", lift_text(*lift), unit(*n))
+            format!("a {} {what} reaches {target} power {after} {} {}", lift_text(*lift), count_text(*n), unit(*n))
         } else {
-            format!("a {} {what} {after} {n} {}", lift_text(*lift), unit(*n))
+            format!("a {} {what} {after} {} {}", lift_text(*lift), count_text(*n), unit(*n))
         });
     }
     let mut text = parts.join(", ");
@@ -204,9 +204,10 @@ pub fn plan_sentence(p: &aftercast_core::result::Planning) -> String {
         } else {
             format!("changes of {} do", missed.join(", "))
         };
-        let miss = format!("{who} not reach it {within} {} {}", p.longest_wait, p.wait_unit);
+        let longest = count_text(p.longest_wait);
+        let miss = format!("{who} not reach it {within} {longest} {}", p.wait_unit);
         text = if text.is_empty() {
-            format!("{who} not reach {target} power {within} {} {}", p.longest_wait, p.wait_unit)
+            format!("{who} not reach {target} power {within} {longest} {}", p.wait_unit)
         } else {
             format!("{text}; {miss}")
         };

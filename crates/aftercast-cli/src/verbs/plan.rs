@@ -49,12 +49,6 @@ pub struct PlanOptions {
     /// simulated data sets of a unit table.
     #[arg(long, default_value_t = 50)]
     pub placebos: usize,
-    /// Waits to show, in periods of the series, comma-separated (default: 1, 2, 4 and 8 weeks
-    /// for daily data, 2, 4, 8, 13 and 26 weeks for weekly, 3, 6 and 12 months for monthly,
-    /// plus the real post-period's length when the data has one; only those the pre-period
-    /// can check).
-    #[arg(long, value_delimiter = ',')]
-    pub waits: Vec<usize>,
     /// Lifts to plan for, in percent of the counterfactual, comma-separated (negative for
     /// falls).
     #[arg(long, allow_hyphen_values = true, value_delimiter = ',', default_value = "1,2,5,10", value_parser = parse_lift)]
@@ -62,6 +56,18 @@ pub struct PlanOptions {
     /// Target power.
     #[arg(long, default_value_t = 0.8, value_parser = parse_power)]
     pub power: f64,
+}
+
+/// The flags of a plan over time (a series or a panel).
+#[derive(Debug, Clone, clap::Args)]
+pub struct TimePlanOptions {
+    /// Waits to show, in periods of the series, comma-separated (default: 1, 2, 4 and 8 weeks
+    /// for daily data, 2, 4, 8, 13 and 26 weeks for weekly, 3, 6 and 12 months for monthly,
+    /// plus the real post-period's length when the data has one; a synthetic control's stop at
+    /// that length, so each untouched unit is a placebo too; only those the pre-period can
+    /// check).
+    #[arg(long, value_delimiter = ',')]
+    pub waits: Vec<usize>,
     /// Shortest fitting span of a placebo date, in periods (default for a forecast: one full
     /// cycle of the longest season you give, two of a season that follows the data's frequency
     /// or under --model auto, at least 30, plus any washout; for a synthetic control: a year of
@@ -82,6 +88,9 @@ pub struct ForecastPlanArgs {
     /// The plan.
     #[command(flatten)]
     pub plan: PlanOptions,
+    /// The plan over time.
+    #[command(flatten)]
+    pub time: TimePlanOptions,
 }
 
 /// `plan synthetic`.
@@ -93,6 +102,9 @@ pub struct SyntheticPlanArgs {
     /// The plan.
     #[command(flatten)]
     pub plan: PlanOptions,
+    /// The plan over time.
+    #[command(flatten)]
+    pub time: TimePlanOptions,
 }
 
 /// `plan match`.
@@ -179,7 +191,19 @@ pub fn study_argv(s: &StudyPlanArgs) -> anyhow::Result<Vec<String>> {
         ))
     })?;
     let base = s.study.parent().map(PathBuf::from).unwrap_or_else(|| PathBuf::from("."));
-    let argv = study.argv(a, &base, std::path::Path::new("."))?;
+    // a flag given after the name replaces the study's own (`--start`, `--draws`, ...)
+    let given: Vec<String> = s
+        .rest
+        .iter()
+        .filter_map(|r| r.strip_prefix("--"))
+        .map(|k| k.split('=').next().unwrap_or(k).replace('_', "-"))
+        .collect();
+    let keep = |k: &String| !given.contains(&k.replace('_', "-"));
+    let mut a = a.clone();
+    a.flags.retain(|k, _| keep(k));
+    let mut study = study.clone();
+    study.defaults.retain(|k, _| keep(k));
+    let argv = study.argv(&a, &base, std::path::Path::new("."))?;
     // argv is ["aftercast", <verb words>..., flags...]; a planned analysis is planned as it is
     let words: Vec<&str> = a.verb.split_whitespace().collect();
     let mut out = vec!["aftercast".to_string()];
@@ -206,7 +230,7 @@ fn resolve(s: &StudyPlanArgs) -> anyhow::Result<Args> {
     let cli = crate::Cli::try_parse_from(&argv).map_err(|e| {
         let text = e.render().to_string();
         bad_input_msg(format!(
-            "{}: analysis '{}': {}",
+            "plan study {} {}: {} (flags come from the study and from after the name)",
             s.study.display(),
             s.analysis,
             crate::study::one_line(&text).trim_start_matches("error: ")
@@ -306,6 +330,11 @@ pub fn waits(
     w.sort_unstable();
     w.dedup();
     let (keep, drop): (Vec<usize>, Vec<usize>) = w.into_iter().partition(|x| *x <= room);
+    if room == 0 {
+        return Err(bad_input_msg(format!(
+            "{what}: the pre-period is no longer than the shortest fitting span, so no placebo window fits before the change; give more history, an earlier series, or a smaller --min-train"
+        )));
+    }
     if keep.is_empty() {
         return Err(bad_input_msg(format!(
             "{what}: the pre-period leaves room for placebo windows of at most {room} {unit} after the shortest fitting span, too short for any wait asked ({}); give shorter --waits, a smaller --min-train, or more history",
@@ -382,7 +411,7 @@ fn plan_forecast(f: &ForecastPlanArgs) -> anyhow::Result<crate::verbs::Outcome> 
     .map_err(forecast::classify)?;
     let pre = setup.split.pre_end;
     // a span given by the user is of fitted periods: the washout comes on top, as for the default
-    let min_train = f.plan.min_train.map_or_else(|| model.min_train(), |m| m + a.washout);
+    let min_train = f.time.min_train.map_or_else(|| model.min_train(), |m| m + a.washout);
     let pre_values: Vec<f64> =
         setup.series.outcome[..setup.split.pre_end].iter().copied().filter(|v| v.is_finite()).collect();
     let level = pre_values.iter().sum::<f64>() / pre_values.len().max(1) as f64;
@@ -394,7 +423,7 @@ fn plan_forecast(f: &ForecastPlanArgs) -> anyhow::Result<crate::verbs::Outcome> 
     }
     let freq = setup.series.frequency();
     let (waits, note) =
-        waits(&f.plan.waits, freq, setup.split.post_len(), pre.saturating_sub(min_train), "plan forecast")?;
+        waits(&f.time.waits, freq, setup.split.post_len(), pre.saturating_sub(min_train), "plan forecast")?;
     let spec = spec_of(&f.plan, &a.common, waits, min_train, wait_unit(freq));
     {
         let _stage =
@@ -407,7 +436,7 @@ fn plan_forecast(f: &ForecastPlanArgs) -> anyhow::Result<crate::verbs::Outcome> 
     let watch = Watch::new()?;
     let report = {
         let _stage = aftercast_core::progress::stage(format!("{} placebo dates", spec.placebos), None);
-        backtest::run(&model, &data, &spec, &watch.control(f.plan.partial.as_deref())).map_err(classify)?
+        backtest::run(&model, &data, &spec, &watch.control(f.time.partial.as_deref())).map_err(classify)?
     };
     let headline = format!(
         "plan for '{}' before {}: {} of {} placebo dates, each fitted as the analysis will be{}",
@@ -417,7 +446,7 @@ fn plan_forecast(f: &ForecastPlanArgs) -> anyhow::Result<crate::verbs::Outcome> 
         report.origins_planned,
         if report.interrupted { " (interrupted)" } else { "" },
     );
-    placebo_outcome(&report, note.into_iter().collect(), &a.common, setup.inputs, headline, f.plan.partial.as_deref())
+    placebo_outcome(&report, note.into_iter().collect(), &a.common, setup.inputs, headline, f.time.partial.as_deref())
 }
 
 /// The backtest settings of a plan.
@@ -460,8 +489,10 @@ pub(crate) fn plan_table(p: &aftercast_core::result::Planning) -> aftercast_repo
             ];
             for l in &lifts {
                 let x = p.power.iter().find(|x| x.wait == m.wait && x.lift == *l);
+                // floored, so a power shown at the target has reached it
                 row.push(
-                    x.filter(|x| x.power.is_finite()).map_or("n/a".into(), |x| format!("{:.0}%", 100.0 * x.power)),
+                    x.filter(|x| x.power.is_finite())
+                        .map_or("n/a".into(), |x| format!("{:.0}%", (100.0 * x.power + 1e-9).floor())),
                 );
             }
             row
@@ -473,7 +504,7 @@ pub(crate) fn plan_table(p: &aftercast_core::result::Planning) -> aftercast_repo
         headers,
         rows,
         note: Some(format!(
-            "False positives where nothing happened: {:.0}% of {} placebo runs ({:.0}% interval {:.0}% to {:.0}%); the interval level allows {:.0}%.",
+            "False positives where nothing happened: {:.0}% of {} placebo runs ({:.0}% interval {:.0}% to {:.0}%); the interval level allows {:.0}%. The answer's waits are checked at every step, not only the rows shown: each is the first from which the power stays at the target for every longer wait.",
             100.0 * fp.rate,
             fp.placebos,
             100.0 * p.level,

@@ -44,9 +44,18 @@ pub fn plan_synthetic(s: &SyntheticPlanArgs) -> anyhow::Result<crate::verbs::Out
     // a year of history (common practice for weekly and monthly data), at most half the
     // pre-period, at least 10 periods
     let per_year = panel.axis.frequency().per_year().map_or(10, |p| p.round() as usize);
-    let min_train = s.plan.min_train.unwrap_or_else(|| per_year.min(start_at / 2).max(10));
+    let min_train = s.time.min_train.unwrap_or_else(|| per_year.min(start_at / 2).max(10));
     let freq = panel.axis.frequency();
-    let (waits, mut notes) = waits(&s.plan.waits, freq, post_len, start_at.saturating_sub(min_train), "plan synthetic")
+    // with a real post-period the default waits stop at its length, so every untouched unit
+    // can be a placebo at the real start too (the placebos in space of the analysis itself)
+    let asked: Vec<usize> = if s.time.waits.is_empty() && post_len > 0 {
+        let mut w: Vec<usize> = crate::verbs::plan::default_waits(freq).into_iter().filter(|w| *w < post_len).collect();
+        w.push(post_len);
+        w
+    } else {
+        s.time.waits.clone()
+    };
+    let (waits, mut notes) = waits(&asked, freq, post_len, start_at.saturating_sub(min_train), "plan synthetic")
         .map(|(w, n)| (w, n.into_iter().collect::<Vec<_>>()))?;
     let spec = spec_of(&s.plan, &a.common, waits, min_train, wait_unit(freq));
     let h = spec.horizon();
@@ -82,7 +91,7 @@ pub fn plan_synthetic(s: &SyntheticPlanArgs) -> anyhow::Result<crate::verbs::Out
     };
     let watch = Watch::new()?;
     let model = format!("synthetic control ({})", a.method.name());
-    let control = watch.control(s.plan.partial.as_deref());
+    let control = watch.control(s.time.partial.as_deref());
     let report = {
         let _stage = aftercast_core::progress::stage(format!("{} placebo runs", jobs.len()), None);
         backtest::run_jobs(&model, &a.outcome, &jobs, &paths, &spec, &control).map_err(classify)?
@@ -96,7 +105,7 @@ pub fn plan_synthetic(s: &SyntheticPlanArgs) -> anyhow::Result<crate::verbs::Out
         report.origins_completed - in_space,
         if report.interrupted { " (interrupted)" } else { "" },
     );
-    placebo_outcome(&report, notes, &a.common, vec![setup.input.clone()], headline, s.plan.partial.as_deref())
+    placebo_outcome(&report, notes, &a.common, vec![setup.input.clone()], headline, s.time.partial.as_deref())
 }
 
 /// Typed diagnostics of a unit-table plan.
@@ -121,14 +130,6 @@ pub struct SizeDiagnostics {
 /// The analysis's bad input and the plan's errors.
 pub fn plan_match(m: &MatchPlanArgs) -> anyhow::Result<crate::verbs::Outcome> {
     let a = &m.analysis;
-    if !m.plan.waits.is_empty() {
-        return Err(bad_input_msg("--waits: a plan of a unit table is by sample size; give --sizes (units) instead"));
-    }
-    if m.plan.min_train.is_some() || m.plan.partial.is_some() {
-        return Err(bad_input_msg(
-            "--min-train and --partial belong to plans over time (plan forecast, plan synthetic); a unit-table plan has neither",
-        ));
-    }
     let (units, params) = crate::verbs::match_::setup(a)?;
     let n = units.len();
     if let Some(s) = m.sizes.iter().find(|s| **s < 4) {
