@@ -215,14 +215,9 @@ pub struct WindowRatio {
 pub struct OriginResult {
     /// Index among the planned origins.
     pub index: usize,
-    /// Position of the first pseudo-post period in the series.
-    pub origin: usize,
-    /// Its time, when known.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub time: Option<TimePoint>,
-    /// The placebo unit of a panel plan (placebo in space), if any.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub label: Option<String>,
+    /// Where the run's window is.
+    #[serde(flatten)]
+    pub job: PlaceboJob,
     /// Median over draws of the relative placebo effect over the longest wait.
     pub relative_median: f64,
     /// HDI of the relative placebo effect (it holds the median).
@@ -255,14 +250,9 @@ pub struct OriginResult {
 pub struct PlaceboFailure {
     /// Index among the planned origins.
     pub index: usize,
-    /// Position of the origin in the series.
-    pub origin: usize,
-    /// Its time, when known.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub time: Option<TimePoint>,
-    /// The placebo unit, if any.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub label: Option<String>,
+    /// Where the run's window is.
+    #[serde(flatten)]
+    pub job: PlaceboJob,
     /// What went wrong.
     pub message: String,
 }
@@ -270,8 +260,9 @@ pub struct PlaceboFailure {
 impl PlaceboFailure {
     /// Where it failed, in words: "placebo date 2025-02-01", "unit r07 from 2026-03-02".
     pub fn place(&self) -> String {
-        let when = self.time.map_or_else(|| format!("position {}", self.origin), |t| t.to_string());
-        match &self.label {
+        let j = &self.job;
+        let when = j.time.map_or_else(|| format!("position {}", j.origin), |t| t.to_string());
+        match &j.label {
             Some(u) => format!("placebo unit {u} from {when}"),
             None => format!("placebo date {when}"),
         }
@@ -397,9 +388,7 @@ fn evaluate_origin(index: usize, job: &PlaceboJob, spec: &BacktestSpec, w: &Plac
     }
     OriginResult {
         index,
-        origin: job.origin,
-        time: job.time,
-        label: job.label.clone(),
+        job: job.clone(),
         relative_median: rmed,
         relative_hdi: (rlo, rhi),
         average_median: median_sorted(&avg),
@@ -453,8 +442,8 @@ pub fn aggregate(
     let planning = crate::plan::planning(&thresholds, &question);
     let mut warnings = Vec::new();
     // placebo units of a panel plan come on top of its dates
-    let units =
-        origins.iter().filter(|o| o.label.is_some()).count() + failures.iter().filter(|f| f.label.is_some()).count();
+    let units = origins.iter().filter(|o| o.job.label.is_some()).count()
+        + failures.iter().filter(|f| f.job.label.is_some()).count();
     let dates = planned.saturating_sub(units);
     if dates < spec.placebos {
         warnings.push(format!(
@@ -509,13 +498,15 @@ impl Partial {
 }
 
 /// One placebo run of a plan: where its window starts.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PlaceboJob {
     /// Position of the window's first period in its series.
     pub origin: usize,
     /// Its time, when known.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub time: Option<TimePoint>,
     /// The placebo unit (placebo in space), if any.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub label: Option<String>,
 }
 
@@ -621,13 +612,7 @@ pub fn run_jobs(
         }
         let job = &jobs[i];
         let model_seed = rng.next_u64();
-        let fail = |message: String| PlaceboFailure {
-            index: i,
-            origin: job.origin,
-            time: job.time,
-            label: job.label.clone(),
-            message,
-        };
+        let fail = |message: String| PlaceboFailure { index: i, job: job.clone(), message };
         let out = match paths_of(i, spec.draws, model_seed) {
             Ok(w) => {
                 let p = &w.paths;

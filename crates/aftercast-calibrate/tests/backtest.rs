@@ -107,8 +107,8 @@ fn a_failed_placebo_fit_is_reported_and_left_out() {
     let r = backtest::run(&FailsOnce(NormalPredictive { window: 40 }, bad), &data, &s, &RunControl::default()).unwrap();
     assert_eq!(r.origins_completed, 11);
     assert_eq!(r.failures.len(), 1);
-    assert_eq!(r.failures[0].origin, bad);
-    assert!(r.origins.iter().all(|o| o.origin != bad));
+    assert_eq!(r.failures[0].job.origin, bad);
+    assert!(r.origins.iter().all(|o| o.job.origin != bad));
     // every rate is over the 11 finished dates only
     assert_eq!(r.planning.false_positive_rate.placebos, 11);
     let w = r.warnings.iter().find(|w| w.contains("failed")).expect("a warning names the failure");

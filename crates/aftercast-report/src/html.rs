@@ -566,18 +566,6 @@ fn figure(out: &mut String, c: &charts::Chart) {
     out.push_str("</figure>\n");
 }
 
-fn group_int(n: usize) -> String {
-    let digits = n.to_string();
-    let mut out = String::new();
-    for (i, c) in digits.chars().enumerate() {
-        if i > 0 && (digits.len() - i).is_multiple_of(3) {
-            out.push(',');
-        }
-        out.push(c);
-    }
-    out
-}
-
 fn data_section(out: &mut String, input: &ReportInput) {
     out.push_str("<section id=\"data\">\n<h2>The data</h2>\n");
     let mut seen: Vec<(String, String, usize)> = Vec::new();
@@ -597,7 +585,7 @@ fn data_section(out: &mut String, input: &ReportInput) {
                 out,
                 "<tr><td><code>{}</code></td><td class=\"num\">{}</td><td class=\"hash\">{}</td></tr>",
                 escape(p),
-                group_int(*n),
+                aftercast_core::result::count_text(*n),
                 escape(h)
             );
         }

@@ -138,11 +138,6 @@ impl<'a> ForecastPlan<'a> {
         let longest = self.seasons.iter().map(|s| s.period).fold(0.0, f64::max);
         ((longest * cycles).ceil() as usize).max(30) + self.washout
     }
-
-    /// The seasons every placebo fit uses.
-    pub fn seasons(&self) -> &[Season] {
-        &self.seasons
-    }
 }
 
 impl PathModel for ForecastPlan<'_> {

@@ -96,7 +96,7 @@ pub fn plan_synthetic(s: &SyntheticPlanArgs) -> anyhow::Result<crate::verbs::Out
         let _stage = aftercast_core::progress::stage(format!("{} placebo runs", jobs.len()), None);
         backtest::run_jobs(&model, &a.outcome, &jobs, &paths, &spec, &control).map_err(classify)?
     };
-    let in_space = report.origins.iter().filter(|o| o.label.is_some()).count();
+    let in_space = report.origins.iter().filter(|o| o.job.label.is_some()).count();
     let headline = format!(
         "plan for '{}' of {} from {}: {} placebo dates and {in_space} placebo units{}",
         a.outcome,
