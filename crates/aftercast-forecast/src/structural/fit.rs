@@ -349,7 +349,7 @@ pub fn fit(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], start: Option<&[f64
         spec_used.init = Initialisation::ApproximateDiffuse { kappa: APPROX_KAPPA };
         scored = candidates.iter().map(|c| (value(&spec_used, c), c.clone())).collect();
         warnings.push(format!(
-            "structural model: the exact treatment of the unknown starting state failed on this data, so a wide prior (variance {APPROX_KAPPA:e}) is used; check the controls and events for columns that repeat one another"
+            "structural model: the exact treatment of the unknown starting state failed on this data, so a wide prior (variance {APPROX_KAPPA:e}) is used instead, which usually gives nearly the same counterfactual; the usual cause is a control or event that repeats another, which makes their coefficients unreliable: check --controls and --events for near-duplicates and drop one"
         ));
     }
     let spec = &spec_used;
@@ -397,7 +397,7 @@ pub fn fit(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], start: Option<&[f64
     }
     if !out.report.converged {
         warnings.push(format!(
-            "structural model: the search for the best-fitting variances stopped before it settled ({}; {} iterations); the interval may be off: try --trend level or fewer seasons",
+            "structural model: the search for the best-fitting variances stopped before it settled ({}; {} iterations), so the counterfactual and its interval may be off: simplify the model with --trend level, fewer --season components or --no-season",
             out.report.reason, out.report.iterations
         ));
     }
@@ -427,7 +427,7 @@ pub fn fit(spec: &StructuralSpec, y: &[f64], x: &[Vec<f64>], start: Option<&[f64
         let (inv, dropped) = sym_pinv(&hess, 1e-6);
         if dropped > 0 {
             warnings.push(format!(
-                "structural model: the data cannot tell apart {dropped} combination(s) of the variances; their uncertainty is left out of the interval, which may be too narrow (a simpler model, e.g. --trend level or fewer seasons, avoids it)"
+                "structural model: the data cannot tell apart {dropped} combination(s) of the variances; their uncertainty is left out of the interval, which may be too narrow: a simpler model (--trend level, fewer --season components or --no-season) avoids it"
             ));
         }
         for (a, &i) in free.iter().enumerate() {

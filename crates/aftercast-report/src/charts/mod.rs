@@ -11,6 +11,7 @@
 //! A chart is written with [`Chart::to_png`], [`Chart::to_svg`] or [`Chart::write`]. Odd data
 //! (empty paths, NaN summaries, a single draw) never panics: the chart draws a note instead.
 
+mod glyphs;
 mod pick;
 mod render;
 pub mod theme;

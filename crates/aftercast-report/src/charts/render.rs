@@ -47,7 +47,7 @@ pub(super) fn png(c: &Chart) -> Result<Vec<u8>, ChartError> {
     let (w, h) = (c.width, c.height);
     let mut buf = vec![0u8; w as usize * h as usize * 3];
     {
-        let root = BitMapBackend::with_buffer(&mut buf, (w, h)).into_drawing_area();
+        let root = super::glyphs::Png::new(BitMapBackend::with_buffer(&mut buf, (w, h))).into_drawing_area();
         draw(&root, c, true).map_err(|message| ChartError::Draw { chart: c.name.clone(), message })?;
         root.present().map_err(|x| ChartError::Draw { chart: c.name.clone(), message: e(x) })?;
     }
