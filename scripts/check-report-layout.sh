@@ -13,7 +13,10 @@
 #   (c) chart text is readable: for each <text> in an inline <svg>, font-size times the svg's
 #       rendered scale (rendered width / viewBox or width attribute) is at least 10 px.
 # Prints one line per problem and exits 1, or one summary line and exits 0.
-# Exits 2 on bad usage or when the check could not run.
+# Exits 2 on bad usage or when the check could not run. KEEP=1 keeps the temp folder (the
+# instrumented copy, the framing page and Chromium's dumped DOM) and prints its path.
+# Headless Chromium will not make a window narrower than 500 px, so the report is measured in
+# an iframe WIDTH px wide; scrollbars are hidden, as on a phone.
 # Needs Debian's `chromium` and python3; installs chromium with apt-get when missing (root only).
 set -euo pipefail
 
@@ -57,7 +60,7 @@ cat >"$work/measure.js" <<'JS'
     }
     return last ? last.textContent.replace(/\s+/g, ' ').trim().slice(0, 60) : '(top of page)';
   }
-  function name(el, all) {
+  function name(el) {
     var tag = el.tagName.toLowerCase();
     var n = Array.prototype.indexOf.call(document.getElementsByTagName(el.tagName), el) + 1;
     var cls = el.getAttribute('class') ? '.' + el.getAttribute('class').trim().split(/\s+/).join('.') : '';
@@ -95,7 +98,20 @@ cat >"$work/measure.js" <<'JS'
       if (el.closest('svg') && el.closest('svg') !== el) continue; // nested svg parts
       var r = el.getBoundingClientRect();
       if (r.width === 0 && r.height === 0) continue;
-      if (r.right > vw + 0.5 && !clipsX(el)) {
+      if (clipsX(el)) continue;
+      // its box, or content spilling out of a box that does not clip (a long unbroken line in a <pre>)
+      var spill = getComputedStyle(el).overflowX === 'visible' ? r.left + el.scrollWidth : r.right;
+      var right = Math.max(r.right, spill);
+      if (right > vw + 0.5) out.sticking_out.push({what: name(el), right: Math.round(right)});
+    }
+    // Something else widens the page: name the outermost elements past the edge (at most 5).
+    if (document.documentElement.scrollWidth > vw && !out.sticking_out.length) {
+      var all = document.body.querySelectorAll('*');
+      for (var i = 0; i < all.length && out.sticking_out.length < 5; i++) {
+        var el = all[i], r = el.getBoundingClientRect();
+        if (r.right <= vw + 0.5 || clipsX(el) || (el.closest('svg') && el.tagName.toLowerCase() !== 'svg')) continue;
+        var p = el.parentElement;
+        if (p && p !== document.body && p.getBoundingClientRect().right > vw + 0.5) continue;
         out.sticking_out.push({what: name(el), right: Math.round(r.right)});
       }
     }

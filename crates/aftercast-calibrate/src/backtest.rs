@@ -452,7 +452,9 @@ pub fn aggregate(
         ));
     }
     if interrupted {
-        warnings.push(format!("interrupted: {k} of {planned} placebo dates finished; the numbers use those only"));
+        warnings.push(format!(
+            "interrupted: {k} of {planned} placebo dates finished; the numbers use those only, so they are rougher than a full plan's: rerun to the end for the full set"
+        ));
     }
     if let Some(f) = failures.first() {
         let at = f.place();

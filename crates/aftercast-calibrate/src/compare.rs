@@ -210,7 +210,10 @@ impl Comparison {
     pub fn estimate(&self) -> Estimate<CompareDiagnostics> {
         let mut warnings = self.warnings.clone();
         for f in &self.failures {
-            warnings.push(format!("{} could not run on {}: {}", f.method, f.setting, f.message));
+            warnings.push(format!(
+                "{} could not run on {} and has no row in the comparison ({}): fix that cause, or leave the method out of --methods",
+                f.method, f.setting, f.message
+            ));
         }
         let diagnostics = CompareDiagnostics {
             kind: self.kind.clone(),
@@ -289,12 +292,18 @@ pub fn compare_units(
     let mut inputs = vec![experiment.input.clone()];
     let mut warnings = Vec::new();
     if experiment.dropped_rows > 0 {
-        warnings.push(format!("{} experiment rows with empty cells were dropped", experiment.dropped_rows));
+        warnings.push(format!(
+            "{} experiment rows with empty cells were dropped, so the experiment's answer covers the remaining units only: fill those cells if the dropped units matter",
+            experiment.dropped_rows
+        ));
     }
     for pool in pools {
         inputs.push(pool.input.clone());
         if pool.dropped_rows > 0 {
-            warnings.push(format!("{} rows of pool {} with empty cells were dropped", pool.dropped_rows, pool.name));
+            warnings.push(format!(
+                "{} rows of pool {} with empty cells were dropped, so the methods compare against the remaining rows of that pool only: fill those cells if the dropped units matter",
+                pool.dropped_rows, pool.name
+            ));
         }
         let sample = observational_sample(experiment, pool, &spec.outcome)?;
         for m in methods {

@@ -256,7 +256,9 @@ impl UnitEstimator for Regression {
         let mut warnings = Vec::new();
         if failed > 0 {
             diagnostics.insert("singular_replicates".into(), failed.into());
-            warnings.push(format!("{failed} bootstrap replicates had a singular design and were dropped"));
+            warnings.push(format!(
+                "{failed} bootstrap replicates had a singular design and were dropped, so the interval rests on fewer draws: if that is many, a covariate is (nearly) constant or repeats another within a group; remove it from --covariates"
+            ));
         }
         Ok(MethodEstimate {
             point,

@@ -207,7 +207,10 @@ pub fn compare_series(
     let mut failures = Vec::new();
     let mut warnings = Vec::new();
     if !donor_models.is_empty() && donors.len() < 2 {
-        warnings.push("synthetic-control models need at least two donor segments; they were skipped".into());
+        warnings.push(
+            "synthetic-control models need at least two donor segments; they were skipped, so the comparison has no synthetic-control rows: give at least two untouched segments with --donors"
+                .into(),
+        );
     }
     let runs = forecast_models
         .iter()

@@ -18,6 +18,10 @@ pub struct Common {
     /// or asymmetric `-2%:1%`.
     #[arg(long, default_value = "1%", allow_hyphen_values = true)]
     pub rope: Rope,
+    /// The label of the outcome's units, shown beside every number in outcome units: a
+    /// currency sign goes before the number ("$" -> +$1,250), a word after it ("orders").
+    #[arg(long, value_parser = parse_unit_label)]
+    pub outcome_unit: Option<String>,
     /// Report also the chance that the average effect exceeds this value (outcome units).
     #[arg(long, allow_negative_numbers = true, value_parser = parse_finite)]
     pub threshold: Option<f64>,
@@ -55,6 +59,14 @@ impl Common {
             threshold: self.threshold,
         }
     }
+}
+
+fn parse_unit_label(s: &str) -> Result<String, String> {
+    let t = s.trim();
+    if t.is_empty() || t.chars().count() > 24 || t.chars().any(char::is_control) {
+        return Err(format!("'{s}' is not a unit label (1 to 24 printable characters, e.g. $ or orders)"));
+    }
+    Ok(t.to_string())
 }
 
 fn parse_finite(s: &str) -> Result<f64, String> {
@@ -214,7 +226,7 @@ pub fn write_outputs(common: &Common, outcome: &crate::verbs::Outcome) -> anyhow
     if let Some(dir) = &common.out {
         let out = OutDir::prepare(dir, common.force)?;
         write_draws(&dir.join("draws.parquet"), &outcome.finished.draws)?;
-        let analysis = report_analysis(outcome, &outcome.headline, None, &result.verb);
+        let analysis = report_analysis(outcome, &outcome.headline, None, &result.verb, None);
         aftercast_report::charts::write_all(
             &analysis.result,
             &analysis.draws,
@@ -222,11 +234,17 @@ pub fn write_outputs(common: &Common, outcome: &crate::verbs::Outcome) -> anyhow
             &dir.join("charts"),
             &analysis.stem,
         )?;
-        let command = crate::study::shell_line(&std::env::args().collect::<Vec<_>>());
+        // rerun into the same folder: the reproduce command overwrites it
+        let mut args: Vec<String> = std::env::args().collect();
+        if !args.iter().any(|a| a == "--force") {
+            args.push("--force".into());
+        }
+        let command = crate::study::shell_line(&args);
         let input = aftercast_report::html::ReportInput {
             title: format!("aftercast {}: {}", result.verb, outcome.headline),
             question: outcome.headline.clone(),
             analyses: vec![analysis],
+            tables: Vec::new(),
             command,
             study_file: None,
         };
@@ -254,6 +272,7 @@ pub fn report_analysis(
     label: &str,
     question: Option<String>,
     stem: &str,
+    truth: Option<aftercast_report::html::KnownTruth>,
 ) -> aftercast_report::html::ReportAnalysis {
     aftercast_report::html::ReportAnalysis {
         label: label.to_string(),
@@ -263,6 +282,7 @@ pub fn report_analysis(
         figures: outcome.finished.figures.clone(),
         tables: outcome.tables.clone(),
         stem: stem.to_string(),
+        truth,
     }
 }
 

@@ -77,11 +77,11 @@ fn quiet_of(verb: &Verb) -> bool {
 pub(crate) fn analyze(verb: &Verb) -> Option<anyhow::Result<verbs::Outcome>> {
     match verb {
         Verb::Windows(_) => None,
-        Verb::Forecast(a) => Some(verbs::forecast::run(a)),
+        Verb::Forecast(a) => Some(verbs::forecast::run(a).map(|o| o.labelled(&a.common))),
         Verb::Inspect(_) | Verb::Run(_) | Verb::Demo(_) => None,
-        Verb::Match(a) => Some(verbs::match_::run(a)),
-        Verb::Synthetic(a) => Some(verbs::synthetic::run(a)),
-        Verb::Compare(a) => Some(verbs::compare::run(a)),
+        Verb::Match(a) => Some(verbs::match_::run(a).map(|o| o.labelled(&a.common))),
+        Verb::Synthetic(a) => Some(verbs::synthetic::run(a).map(|o| o.labelled(&a.common))),
+        Verb::Compare(a) => Some(verbs::compare::run(a).map(|o| o.labelled(&a.common))),
         Verb::Plan(a) => Some(verbs::plan::run(a)),
     }
 }

@@ -83,7 +83,11 @@ const PATH_FLAGS: &[&str] =
 
 /// Flags whose values are files the analysis writes: they resolve inside the run's output
 /// folder, and absolute paths or `..` are refused (a study never writes outside `--out`).
-const OUTPUT_FLAGS: &[&str] = &["partial", "history"];
+const OUTPUT_FLAGS: &[&str] = &["partial", "history", "output", "series-output", "sidecar"];
+
+/// Prefix of an input path that names a file an earlier analysis of the run wrote inside the
+/// output folder (`data = "out:tables/windows.csv"`).
+pub const FROM_OUT: &str = "out:";
 
 impl Study {
     /// Read and check a study file.
@@ -142,8 +146,11 @@ impl Study {
         let mut argv = vec!["aftercast".to_string()];
         argv.extend(a.verb.split_whitespace().map(String::from));
         let mut merged: BTreeMap<&str, &toml::Value> = BTreeMap::new();
-        for (k, v) in &self.defaults {
-            merged.insert(k, v);
+        // defaults are inference options (level, seed, draws, ...): a table-building step has none
+        if a.verb.trim() != "windows" {
+            for (k, v) in &self.defaults {
+                merged.insert(k, v);
+            }
         }
         for (k, v) in &a.flags {
             merged.insert(k, v);
@@ -174,7 +181,16 @@ impl Study {
                         )));
                     }
                 };
-                let text = if PATH_FLAGS.contains(&k) {
+                let text = if PATH_FLAGS.contains(&k)
+                    && let Some(rest) = text.strip_prefix(FROM_OUT)
+                {
+                    inside(out, rest).ok_or_else(|| {
+                        bad_input_msg(format!(
+                            "analysis '{}': key '{k}' = '{text}' must name a file inside the output folder after '{FROM_OUT}' (no absolute path, no '..')",
+                            a.name
+                        ))
+                    })?
+                } else if PATH_FLAGS.contains(&k) {
                     let resolved = resolve(base, &text);
                     // known as an input before any analysis writes: no output may replace it
                     aftercast_core::output::register_input(Path::new(&resolved));

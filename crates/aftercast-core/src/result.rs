@@ -475,6 +475,10 @@ pub struct AnalysisResult {
     /// ATT, ATE, or the series estimand.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub estimand: Option<String>,
+    /// The label of the outcome's units as the analyst gave it (`--outcome-unit`: "$",
+    /// "orders"); shown beside every number in outcome units. Absent: plain numbers.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub outcome_unit: Option<String>,
     /// What the numbers are per.
     pub scope: crate::estimate::Scope,
     /// Effect summaries.

@@ -153,7 +153,9 @@ impl Series {
         })?;
         let mut notes = Vec::new();
         if dropped > 0 {
-            notes.push(format!("{dropped} row(s) with empty values dropped (missing-value policy drop-row)"));
+            notes.push(format!(
+                "{dropped} row(s) with empty values dropped (missing-value policy drop-row), so the model learns nothing from those periods: if that is many, fill the values in the data"
+            ));
         }
         // Check regularity; fill gaps if allowed.
         let mut axis_points = vec![points[0]];
@@ -222,7 +224,9 @@ impl Series {
             }
         }
         if filled > 0 {
-            notes.push(format!("{filled} skipped period(s) inserted as missing (gap policy fill)"));
+            notes.push(format!(
+                "{filled} skipped period(s) inserted as missing (gap policy fill), so the model has no data for them: check that the data really has no values there"
+            ));
         }
         let axis = TimeAxis::from_regular_points(freq, axis_points);
         Ok(Series {

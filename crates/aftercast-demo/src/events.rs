@@ -41,6 +41,8 @@ pub const EXPOSURE_INTERCEPT: f64 = -1.5;
 pub const EXPOSURE_PER_VISIT: f64 = 0.08;
 /// Logit of being exposed: per $100 of order value in those 56 days.
 pub const EXPOSURE_PER_100_DOLLARS: f64 = 0.25;
+/// Days of novelty left out before the deferred outcome window `[7d, 35d)`.
+pub const DEFER_DAYS: i64 = 7;
 /// True ATT on the 28-day order value sum, in cents.
 pub const ATT_CENTS: i64 = 1_500;
 
@@ -68,6 +70,9 @@ pub struct ExposureTruth {
     /// Mean over exposed customers of (written 28-day order value minus the value without
     /// exposure): exactly 15.00.
     pub sample_att_order_value: f64,
+    /// Mean over exposed customers of the extra order value in the deferred window
+    /// `[exposed_at + 7 days, exposed_at + 35 days)` (the novelty week left out).
+    pub sample_att_order_value_deferred: f64,
     /// Mean over exposed customers of the extra orders in their forward window.
     pub sample_att_order_count: f64,
     /// Mean written 28-day order value of exposed customers.
@@ -277,6 +282,15 @@ pub fn generate(seed: u64, stream: u64) -> DemoResult<EventsData> {
         }
     }
     let n_exp = exposed.len().max(1) as f64;
+    let deferred_extra: i64 = events
+        .iter()
+        .filter(|e| e.metric == Metric::Order && e.extra_order.is_some())
+        .filter(|e| {
+            exposed_at[e.customer]
+                .is_some_and(|t0| e.ts >= t0 + DEFER_DAYS * 86_400 && e.ts < t0 + (DEFER_DAYS + FORWARD_DAYS) * 86_400)
+        })
+        .map(|e| e.value)
+        .sum();
     let controls: Vec<usize> = (0..CUSTOMERS).filter(|&c| exposed_at[c].is_none()).collect();
     let t_obs = exposed.iter().map(|&c| window_value[c]).sum::<i64>() as f64 / n_exp / 100.0;
     let t_extra = exposed.iter().map(|&c| window_extra_value[c]).sum::<i64>() as f64 / n_exp / 100.0;
@@ -317,6 +331,7 @@ pub fn generate(seed: u64, stream: u64) -> DemoResult<EventsData> {
                       never-exposed customers anchored at the reference time"
                 .to_string(),
             sample_att_order_value: t_extra,
+            sample_att_order_value_deferred: deferred_extra as f64 / n_exp / 100.0,
             sample_att_order_count: exposed.iter().map(|&c| window_extra_count[c]).sum::<i64>() as f64 / n_exp,
             treated_observed_mean: t_obs,
             treated_counterfactual_mean: t_obs - t_extra,

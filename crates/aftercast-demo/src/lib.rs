@@ -99,6 +99,8 @@ pub fn write_scenario(dir: &Path) -> DemoResult<ScenarioTruth> {
 
     let reg = regions::generate(DEMO_SEED, STREAM_REGIONS)?;
     files.push(util::write_file(dir, "regions_weekly.csv", &reg.csv, reg.rows)?);
+    let (totals, total_rows) = regions::totals_csv(&reg.csv, &reg.truth.sale_regions);
+    files.push(util::write_file(dir, "regions_weekly_totals.csv", &totals, total_rows)?);
 
     let members = customers::generate_members(DEMO_SEED, STREAM_MEMBERS)?;
     files.push(util::write_file(dir, "members.csv", &members.csv, members.rows)?);

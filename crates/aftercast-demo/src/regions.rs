@@ -296,3 +296,37 @@ pub fn generate(seed: u64, stream: u64) -> DemoResult<RegionsData> {
         },
     })
 }
+
+/// `regions_weekly_totals.csv` from the panel: per week, the summed revenue of the sale regions
+/// and of the other regions (a control series untouched by the sale), so that the sale can also
+/// be measured by a forecast of the sale regions' total. Returns the text and its data rows.
+pub fn totals_csv(panel_csv: &str, sale_regions: &[String]) -> (String, usize) {
+    let mut weeks: Vec<(String, i64, i64)> = Vec::new();
+    for line in panel_csv.lines().skip(1) {
+        let mut f = line.split(',');
+        let (Some(region), Some(week), Some(revenue)) = (f.next(), f.next(), f.next()) else { continue };
+        // revenue is written in cents precision: sum whole cents, never floats
+        let cents = revenue.split_once('.').map_or_else(
+            || revenue.parse::<i64>().unwrap_or(0) * 100,
+            |(w, c)| w.parse::<i64>().unwrap_or(0) * 100 + format!("{c:0<2}")[..2].parse::<i64>().unwrap_or(0),
+        );
+        let k = match weeks.iter().position(|w| w.0 == week) {
+            Some(k) => k,
+            None => {
+                weeks.push((week.to_string(), 0, 0));
+                weeks.len() - 1
+            }
+        };
+        if sale_regions.iter().any(|s| s == region) {
+            weeks[k].1 += cents;
+        } else {
+            weeks[k].2 += cents;
+        }
+    }
+    weeks.sort_by(|a, b| a.0.cmp(&b.0));
+    let mut out = String::from("week,sale_regions_revenue,other_regions_revenue\n");
+    for (w, s, o) in &weeks {
+        out.push_str(&format!("{w},{}.{:02},{}.{:02}\n", s / 100, s % 100, o / 100, o % 100));
+    }
+    (out, weeks.len())
+}

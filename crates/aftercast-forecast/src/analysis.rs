@@ -215,14 +215,17 @@ fn hw_spec(p: &Prepared, params: &ValidParams) -> (HwSpec, Option<String>) {
         (Some(&m), _) => Some(m),
         (None, Some(s)) => {
             let m = s.period.round().max(2.0) as usize;
-            note = Some(format!("holt-winters needs a whole seasonal period; {} rounded to {m}", s.period));
+            note = Some(format!(
+                "holt-winters needs a whole seasonal period, so {} is rounded to {m} and its seasonal pattern can slip out of step over a long post-period: for a fractional season use --model structural or harmonic",
+                s.period
+            ));
             Some(m)
         }
         (None, None) => None,
     };
     if p.seasons.len() > 1 {
         note = Some(format!(
-            "holt-winters models one seasonal period ({}); the other seasons are left out",
+            "holt-winters models one seasonal period ({}); the other seasons are left out, so their pattern is missing from the counterfactual and can read as an effect: use --model structural or harmonic to model several seasons",
             period.unwrap_or(0)
         ));
     }
@@ -280,7 +283,10 @@ pub fn fit_model_from(
                 f.warnings.push(n);
             }
             if !p.regs.is_empty() {
-                f.warnings.push("holt-winters does not use control series or event indicators".into());
+                f.warnings.push(
+                    "holt-winters does not use control series or event indicators, so they do not inform the counterfactual: use --model structural or harmonic to include --controls and --events"
+                        .into(),
+                );
             }
             Ok(FittedModel::HoltWinters(f))
         }
@@ -575,13 +581,15 @@ pub fn prepare(
         };
         let pre = &x[..split.pre_end];
         if pre.iter().all(|v| *v == pre[0]) {
-            warnings.push(format!("control '{name}' is constant in the pre-period and is left out"));
+            warnings.push(format!(
+                "control '{name}' is constant in the pre-period and is left out, so it plays no part in the counterfactual: drop it from --controls or give a control that varies"
+            ));
             continue;
         }
         let b = control_break(name, x, split.pre_end, split.post_start, split.post_end, z_crit);
         if b.flagged {
             warnings.push(format!(
-                "control '{name}' shifts at the intervention (mean departure {:.4} from its pre-period trend, z = {:.1}); the change may have touched it",
+                "control '{name}' shifts at the intervention (mean departure {:.4} from its pre-period trend, z = {:.1}); the change may have touched it, and a touched control hides part of the effect: remove it from --controls unless the shift has another known cause",
                 b.shift, b.z
             ));
         }
@@ -593,17 +601,22 @@ pub fn prepare(
     if let Some(cal) = events {
         let (inds, unused) = cal.indicators(&series.axis)?;
         if !unused.is_empty() {
-            warnings.push(format!("events with no date on the series' axis are ignored: {}", unused.join(", ")));
+            warnings.push(format!(
+                "events with no date on the series' axis are ignored, so they do not adjust the counterfactual: {}; if one should fall inside the data, check its dates in the --events file against the series' time column",
+                unused.join(", ")
+            ));
         }
         for (name, v) in inds {
             if v[..split.pre_end].iter().all(|x| *x == 0.0) {
                 warnings.push(format!(
-                    "{name} does not occur in the pre-period; its effect cannot be learned and it is left out"
+                    "{name} does not occur in the pre-period; its effect cannot be learned and it is left out, so if it occurs in the post-period its effect counts as part of the change's: read the effect around those dates with care"
                 ));
                 continue;
             }
             if v[..split.pre_end].iter().all(|x| *x == 1.0) {
-                warnings.push(format!("{name} covers the whole pre-period and is left out"));
+                warnings.push(format!(
+                    "{name} covers the whole pre-period, so its effect cannot be told apart from the baseline and it is left out: check its dates in the --events file"
+                ));
                 continue;
             }
             regs.push(v[..n].to_vec());
@@ -624,8 +637,9 @@ pub fn prepare(
         }
         if !user_seasons && s.period * 2.0 > split.pre_end as f64 {
             warnings.push(format!(
-                "the pre-period ({} periods) is shorter than two cycles of the default season {}; that season is left out",
+                "the pre-period ({} periods) is shorter than two cycles of the default season {}; that season is left out, so its pattern, if real, can read as an effect: give a longer pre-period, or --season {} to fit it from fewer cycles",
                 split.pre_end,
+                s.label(),
                 s.label()
             ));
             continue;
@@ -634,7 +648,7 @@ pub fn prepare(
         let s = match (s.kind(), s.structural_kind()) {
             (SeasonKind::Dummy { period }, SeasonKind::Trig { harmonics, .. }) => {
                 warnings.push(format!(
-                    "season {period} is long for a dummy seasonal; a trigonometric seasonal {period}:{harmonics} is used instead"
+                    "season {period} is long for a dummy seasonal, so a trigonometric seasonal {period}:{harmonics} is used instead; it follows a smooth pattern and can miss sharp one-period peaks: give --season {period}:K with a larger K if the season has them"
                 ));
                 Season { period: s.period, harmonics: Some(harmonics) }
             }
@@ -787,7 +801,7 @@ fn choose(bt: &Backtest, cands: &[Candidate], auto: bool, warnings: &mut Vec<Str
         Some(c) => c.clone(),
         None if auto => {
             warnings.push(format!(
-                "--model auto: no model could be backtested in the pre-period, so the first candidate ({}) is used",
+                "--model auto: no model could be backtested in the pre-period, so the first candidate ({}) is used without a check that it forecasts this series well: choose the model with --model, or give a longer pre-period or a shorter post-period (--end) so a backtest fits",
                 cands[0].name
             ));
             cands[0].clone()
@@ -1096,12 +1110,12 @@ pub fn analyse(
         && pp.backtest_folds > 0
     {
         let consequence = if pp.trend.is_none() && chosen.kind == ModelKind::Structural {
-            "; the forecast keeps a local level (no slope), since a slope could not be checked"
+            " and the forecast keeps a local level (no slope), since a slope could not be checked: give a longer pre-period, a shorter post-period (--end), or choose the trend with --trend"
         } else {
-            ""
+            ": give a longer pre-period or a shorter post-period (--end)"
         };
         warnings.push(format!(
-            "the pre-period is too short for a backtest at the post-period's horizon ({} periods){consequence}",
+            "the pre-period is too short for a backtest at the post-period's horizon ({} periods), so the forecast's accuracy at that horizon is unchecked{consequence}",
             split.post_len()
         ));
     }

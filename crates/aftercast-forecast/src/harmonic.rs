@@ -192,8 +192,9 @@ pub fn fit(
         Ok(bl) => bl.stationary.max(1.0),
         Err(e) => {
             let b = (rows.len() as f64).cbrt().max(1.0);
-            warnings
-                .push(format!("harmonic regression: automatic block length unavailable ({e}); using n^(1/3) = {b:.1}"));
+            warnings.push(format!(
+                "harmonic regression: the residuals' autocorrelation could not be measured ({e}), so the bootstrap uses blocks of about n^(1/3) = {b:.1} periods; if the residuals are strongly autocorrelated the interval may be too narrow: compare with --model structural"
+            ));
             b
         }
     };

@@ -266,7 +266,7 @@ pub fn fit(spec: &HwSpec, y: &[f64], at: &str) -> ForecastResult<HwFit> {
     let mut warnings = Vec::new();
     if !out.report.converged {
         warnings.push(format!(
-            "holt-winters: the optimiser ({}) did not report convergence ({}); smoothing parameters may not minimise the squared errors",
+            "holt-winters: the search for the smoothing parameters ({}) stopped before it settled ({}), so the forecast may fit the pre-period worse than it could and the interval may be off: compare with --model structural or harmonic",
             out.report.solver, out.report.reason
         ));
     }

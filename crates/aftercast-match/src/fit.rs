@@ -170,7 +170,7 @@ fn fit_propensity(
             SeparationPolicy::Error => return Err(MatchError::Separation { covariate: cov, detail }),
             SeparationPolicy::Penalise(lambda) => {
                 warnings.push(format!(
-                    "separation in the propensity model ({detail}{}); refitted with an L2 penalty of {lambda} on the standardised coefficients, so the scores are shrunk towards each other",
+                    "separation in the propensity model: treatment is (almost) perfectly predicted ({detail}{}); it was refitted with an L2 penalty of {lambda} on the standardised coefficients, so the scores are shrunk towards each other and treated and control units may still differ on that covariate: check the balance table, and keep only units where both groups occur on it",
                     cov.as_ref().map(|c| format!("; largest coefficient: '{c}'")).unwrap_or_default()
                 ));
                 let o2 = LogitOptions { penalty: lambda, ..opts };
@@ -281,7 +281,7 @@ impl ValidParams {
         }
         if support.treated_outside > 0 {
             warnings.push(format!(
-                "{} of {} treated units have a propensity score outside the controls' range [{:.4}, {:.4}]",
+                "{} of {} treated units have a propensity score outside the controls' range [{:.4}, {:.4}], so no control resembles them and the estimate extrapolates for them: drop them with --trim minmax, or use --method nearest with a --caliper",
                 support.treated_outside, n1_all, support.control_range.0, support.control_range.1
             ));
         }
@@ -390,7 +390,7 @@ impl ValidParams {
                 treated_unmatched = n1 - est.focal_matched;
                 if treated_unmatched > 0 {
                     warnings.push(format!(
-                        "{treated_unmatched} of {n1} treated units found no control within the caliper and are left out; the estimate describes the matched treated units"
+                        "{treated_unmatched} of {n1} treated units found no control within the caliper and are left out; the estimate describes the matched treated units only: widen --caliper (or --caliper none) to keep them, at the cost of less similar matches"
                     ));
                 }
                 estimate = est.estimate;
@@ -425,7 +425,7 @@ impl ValidParams {
                 );
                 if p.k > 1 && rosenbaum.is_some() {
                     warnings.push(
-                        "Rosenbaum bounds treat each treated unit and the mean of its matches as a pair (k > 1)".into(),
+                        "Rosenbaum bounds treat each treated unit and the mean of its matches as a pair (k > 1), so the sensitivity figures are approximate: rerun with --k 1 for exact bounds".into(),
                     );
                 }
                 after = est.weights;
@@ -466,7 +466,7 @@ impl ValidParams {
                 treated_unmatched = point.treated_dropped;
                 if point.treated_dropped > 0 {
                     warnings.push(format!(
-                        "{} treated units sit in propensity strata without controls and are left out",
+                        "{} treated units sit in propensity strata without controls and are left out, so the estimate describes the other treated units only: fewer --strata (wider strata) keep more of them",
                         point.treated_dropped
                     ));
                 }
@@ -507,12 +507,14 @@ impl ValidParams {
                 }
                 let not_converged = ok.iter().filter(|r| !r.2).count();
                 if not_converged > 0 {
-                    warnings
-                        .push(format!("{not_converged} bootstrap re-fits of the propensity model did not converge"));
+                    warnings.push(format!(
+                        "{not_converged} bootstrap re-fits of the propensity model did not converge, so the interval may be slightly off: if that is many of the --draws, simplify the propensity model (fewer --squares, --interact or --terms) or give a --penalty"
+                    ));
                 }
                 if undefined > 0 {
-                    warnings
-                        .push(format!("{undefined} bootstrap replicates left a group without weight and were dropped"));
+                    warnings.push(format!(
+                        "{undefined} bootstrap replicates left a group without weight and were dropped, so the interval rests on fewer draws and may be too narrow if that is many: check the overlap of the groups' propensity scores and consider --trim"
+                    ));
                 }
                 replicates = Some(ReplicateReport { replicates: p.inference.draws, not_converged, undefined });
                 draws = ok.iter().map(|r| r.0).collect();
@@ -526,14 +528,17 @@ impl ValidParams {
         let flagged: Vec<&str> = bal.iter().filter(|b| b.smd_flag).map(|b| b.covariate.as_str()).collect();
         if !flagged.is_empty() {
             warnings.push(format!(
-                "after adjustment {} design column(s) keep |SMD| > 0.1: {}",
+                "after adjustment {} design column(s) still differ between treated and control units (|SMD| > 0.1), so part of the estimate may come from that difference rather than the change: {}; add terms for them (--squares, --interact, --terms), or use --bias-correct or --method aipw",
                 flagged.len(),
                 flagged.join(", ")
             ));
         }
         let vr: Vec<&str> = bal.iter().filter(|b| b.var_ratio_flag).map(|b| b.covariate.as_str()).collect();
         if !vr.is_empty() {
-            warnings.push(format!("variance ratio outside [0.5, 2] after adjustment: {}", vr.join(", ")));
+            warnings.push(format!(
+                "after adjustment the spread of these columns still differs between treated and control units (variance ratio outside [0.5, 2]), so the groups are not fully comparable on them: {}; add their squares (--squares) or other --terms to the propensity model",
+                vr.join(", ")
+            ));
         }
         let ess_t = balance::ess((0..n).filter(|&i| tr[i]).map(|i| after[i]));
         let ess_c = balance::ess((0..n).filter(|&i| !tr[i]).map(|i| after[i]));

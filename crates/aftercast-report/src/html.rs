@@ -2,8 +2,11 @@
 //! requests, readable on a phone and in print. The markup is XHTML-compatible (every element
 //! closed, attributes quoted) so that it parses as XML as well as HTML5.
 //!
-//! Sections, in order (each a `<section id=...>`): `question`, `data`, one `analysis-<stem>` per
-//! analysis, `triangulation`, `caution`, `reproduce`.
+//! Sections, in order (each a `<section id=...>`): `answers` (one card per question of the
+//! study, then one per analysis that answers none: the answer in the outcome's units, one
+//! interval, the verdict, whether independent methods agree, fragility flags and the known truth
+//! where the study gives one), `triangulation`, one `analysis-<stem>` per analysis, `data`,
+//! `appendix` (diagnostics as tables and sentences), `caution`, `reproduce`.
 
 use crate::charts::{self, EstimateBar, theme::ValueFormat};
 use crate::numbers::{self, point_and_interval};
@@ -31,6 +34,75 @@ pub struct ReportAnalysis {
     pub tables: Vec<Table>,
     /// Short identifier: chart file stem and section id (letters, digits, `-`, `_`).
     pub stem: String,
+    /// The true effect, where the study knows it (invented data): shown beside the estimate.
+    pub truth: Option<KnownTruth>,
+}
+
+/// A true effect the study states (`truth`, `truth_of` of an analysis).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct KnownTruth {
+    /// The value: a fraction for the relative effect, outcome units otherwise.
+    pub value: f64,
+    /// Which effect it is the truth of.
+    pub of: TruthOf,
+}
+
+/// The effect a known truth is stated for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum TruthOf {
+    /// Relative to the counterfactual.
+    Relative,
+    /// The average effect (per period or per unit, as the analysis reports it).
+    Average,
+    /// The total over the post-period.
+    Cumulative,
+}
+
+impl TruthOf {
+    /// Read the study's `truth_of` word (relative, average, cumulative).
+    pub fn parse(word: &str) -> Option<TruthOf> {
+        match word {
+            "relative" => Some(TruthOf::Relative),
+            "average" => Some(TruthOf::Average),
+            "cumulative" => Some(TruthOf::Cumulative),
+            _ => None,
+        }
+    }
+}
+
+impl KnownTruth {
+    /// The analysis's summary of the same quantity, if it reports it.
+    pub fn summary_of(&self, r: &AnalysisResult) -> Option<Summary> {
+        match self.of {
+            TruthOf::Relative => r.effect.relative,
+            TruthOf::Average => Some(r.effect.average),
+            TruthOf::Cumulative => r.effect.cumulative,
+        }
+    }
+
+    /// The truth as written: a percentage or a number with the outcome's unit.
+    pub fn text(&self, r: &AnalysisResult) -> String {
+        match self.of {
+            TruthOf::Relative => numbers::percent(self.value),
+            _ => numbers::with_unit(
+                &numbers::signed(self.value, numbers::decimals_for(&[self.value])),
+                r.outcome_unit.as_deref(),
+            ),
+        }
+    }
+}
+
+/// The family of methods an analysis belongs to: agreement within one family (two forecast
+/// models) shares its assumptions; agreement across families is the independent check.
+pub fn family(r: &AnalysisResult) -> &'static str {
+    match r.verb.as_str() {
+        "forecast" => "forecast",
+        "synthetic" => "synthetic control",
+        "match" => "propensity score",
+        "compare" => "experiment comparison",
+        "plan" => "plan",
+        _ => "other",
+    }
 }
 
 /// The study file a run was made from.
@@ -42,6 +114,23 @@ pub struct StudyFile {
     pub contents: String,
 }
 
+/// A table a run built for its analyses (an event log turned into per-unit metric windows).
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct TableStep {
+    /// The step's name in the study.
+    pub name: String,
+    /// Its description.
+    pub describe: Option<String>,
+    /// The command that rebuilds the table alone.
+    pub command: String,
+    /// The file written (its name inside the output folder's tables).
+    pub output: String,
+    /// Data rows.
+    pub rows: usize,
+    /// Column names.
+    pub columns: Vec<String>,
+}
+
 /// Everything the report shows.
 #[derive(Debug, Clone)]
 pub struct ReportInput {
@@ -51,6 +140,8 @@ pub struct ReportInput {
     pub question: String,
     /// The analyses, in the order they are shown.
     pub analyses: Vec<ReportAnalysis>,
+    /// Tables the run built before its analyses (shown with the data).
+    pub tables: Vec<TableStep>,
     /// The exact command that reproduces the report.
     pub command: String,
     /// The study file, when the run came from one.
@@ -109,6 +200,23 @@ pub struct Triangulation {
     pub opposite_directions: bool,
     /// The resulting word.
     pub agreement: Agreement,
+    /// The distinct method families among the analyses, in order of appearance.
+    pub families: Vec<&'static str>,
+}
+
+impl Triangulation {
+    /// One sentence on what the agreement is worth: across independent families, or within one.
+    pub fn families_sentence(&self) -> String {
+        match self.families.len() {
+            0 => String::new(),
+            1 => format!(
+                "All {} methods are of one family ({}): they share its assumptions, so their agreement is not an independent check; answer the question with a second family (forecast, synthetic control or propensity score) as well.",
+                self.rows.len(),
+                self.families[0]
+            ),
+            n => format!("{n} independent method families answer it ({}).", self.families.join(", ")),
+        }
+    }
 }
 
 fn direction(v: Verdict) -> i8 {
@@ -117,6 +225,11 @@ fn direction(v: Verdict) -> i8 {
         Verdict::Loss | Verdict::LossButSmall => -1,
         _ => 0,
     }
+}
+
+/// A method's short name in comparisons: its method and family ("sdid, synthetic control").
+fn short_label(a: &ReportAnalysis) -> String {
+    format!("{} ({})", a.result.method, family(&a.result))
 }
 
 /// Compare the analyses that answer one question (see [`Agreement`] for the rule).
@@ -133,7 +246,7 @@ pub fn triangulate(question: &str, analyses: &[&ReportAnalysis]) -> Triangulatio
                 Quantity::Relative => a.result.effect.relative.unwrap_or(a.result.effect.average),
                 Quantity::Average => a.result.effect.average,
             };
-            (a.label.clone(), s, a.result.verdict)
+            (short_label(a), s, a.result.verdict)
         })
         .collect();
     let finite: Vec<&(String, Summary, Verdict)> = rows
@@ -165,7 +278,15 @@ pub fn triangulate(question: &str, analyses: &[&ReportAnalysis]) -> Triangulatio
     } else {
         Agreement::Compatible
     };
+    let mut families: Vec<&'static str> = Vec::new();
+    for a in analyses {
+        let f = family(&a.result);
+        if !families.contains(&f) {
+            families.push(f);
+        }
+    }
     Triangulation {
+        families,
         question: question.to_string(),
         quantity,
         rows,
@@ -232,7 +353,7 @@ th,td{text-align:left;padding:6px 10px;border-bottom:1px solid var(--grid);verti
 th{font-size:12px;text-transform:uppercase;letter-spacing:.06em;color:var(--muted);background:var(--tint)}
 td.num{text-align:right;font-variant-numeric:tabular-nums;white-space:nowrap}
 code,pre,.hash{font-family:"DejaVu Sans Mono",Menlo,Consolas,monospace;font-size:13px}
-.hash{word-break:break-all}
+.hash{white-space:nowrap}
 pre{background:#fff;border:1px solid var(--grid);border-radius:4px;padding:10px 12px;overflow-x:auto;white-space:pre-wrap;word-break:break-word}
 figure{margin:14px 0;background:#fff;border:1px solid var(--grid);border-radius:6px;padding:12px}
 figure h4{margin:0 0 2px;font-size:16px}
@@ -244,6 +365,21 @@ svg.chart text{font-family:"DejaVu Sans",Verdana,sans-serif}
 .warnings{list-style:none;padding:0;margin:8px 0}
 .warnings li{background:#fbefe9;border-left:5px solid var(--brick);padding:8px 12px;margin:6px 0;border-radius:3px}
 .ok{color:var(--teal)}
+.answers{display:grid;grid-template-columns:repeat(auto-fit,minmax(min(100%,480px),1fr));gap:14px;margin:14px 0}
+.answer{background:#fff;border:1px solid var(--grid);border-top:5px solid var(--ink);border-radius:6px;padding:12px 16px;min-width:0}
+.answer h3{margin:0 0 8px;font-size:17px}
+.answer .lead{margin:4px 0;line-height:1.9}
+.answer .big{font-size:28px;font-weight:bold;font-variant-numeric:tabular-nums;white-space:nowrap}
+.answer .big2{font-size:20px;font-weight:bold;white-space:nowrap}
+.answer .what{color:var(--muted);font-size:14px}
+.answer .range,.answer .truth,.answer .agree,.answer .more,.answer .lead-text,.answer .flagline,.answer .ok{margin:6px 0;font-size:14px}
+.answer table.mini{font-size:13px}
+.truth{color:#7a5a12;background:#fbf3df;border-left:4px solid var(--ochre);padding:4px 8px}
+.flags{margin:6px 0;padding-left:18px;font-size:14px;color:var(--brick)}
+.flagline{color:var(--brick)}
+.meta{font-size:14px;color:var(--muted)}
+figure svg.narrow{display:none}
+td .chip{font-size:12px;padding:1px 8px}
 .rests li{margin:4px 0}
 .caution{background:var(--tint);border:1px dashed var(--ochre);padding:10px 14px;border-radius:4px}
 dl.diag{display:grid;grid-template-columns:minmax(140px,max-content) 1fr;gap:4px 16px;font-size:14px;margin:8px 0}
@@ -260,6 +396,10 @@ footer{margin-top:40px;padding-top:10px;border-top:1px solid var(--grid);font-si
  dl.diag{grid-template-columns:1fr}
  dl.diag dd{margin-bottom:6px}
  figure{padding:8px}
+ figure svg.wide{display:none}
+ figure svg.narrow{display:block}
+ .answer .big{font-size:24px}
+ th,td{padding:5px 7px}
 }
 @media print{
  @page{margin:14mm}
@@ -269,6 +409,8 @@ footer{margin-top:40px;padding-top:10px;border-top:1px solid var(--grid);font-si
  h2{break-after:avoid}
  figure,table,.verdict,.card{break-inside:avoid;background:#fff}
  .figs{display:block}
+ figure svg.narrow{display:none}
+ figure svg.wide{display:block}
  .figs figure{margin:10px 0}
  details>*{display:block}
  pre{white-space:pre-wrap}
@@ -310,7 +452,7 @@ fn verdict_words(r: &AnalysisResult) -> String {
     let hdi = numbers::interval_name(r.level);
     let mut s = numbers::lead_sentence(r);
     for l in lines.iter().filter(|l| !l.judged && l.summary.estimate.is_finite()) {
-        let (p, i) = point_and_interval(&l.summary, l.percent);
+        let (p, i) = numbers::line_numbers(r, l);
         let _ = write!(s, " {}: {p} ({hdi} {i}).", numbers::effect_words(&l.label));
     }
     let avg = &r.effect.average;
@@ -329,6 +471,75 @@ fn verdict_words(r: &AnalysisResult) -> String {
     s
 }
 
+/// The share of pre-period observations outside the model's band, when it is far above what the
+/// level allows (more than twice the expected share plus two points): (share, expected).
+fn poor_pre_band(r: &AnalysisResult) -> Option<(f64, f64)> {
+    let path = r.path.as_ref()?;
+    let pre: Vec<_> =
+        path.iter().filter(|p| !p.post && p.observed.is_some_and(f64::is_finite) && p.upper > p.lower).collect();
+    if pre.len() < 10 {
+        return None;
+    }
+    let outside = pre.iter().filter(|p| p.observed.is_some_and(|o| o < p.lower || o > p.upper)).count();
+    let share = outside as f64 / pre.len() as f64;
+    let expected = 1.0 - r.level;
+    (share > 2.0 * expected + 0.02).then_some((share, expected))
+}
+
+fn diag_f64(r: &AnalysisResult, path: &[&str]) -> Option<f64> {
+    let mut v = r.diagnostics.get(path[0])?;
+    for k in &path[1..] {
+        v = v.get(k)?;
+    }
+    v.as_f64().filter(|x| x.is_finite())
+}
+
+/// Reasons a result could be overturned, each one short sentence (shown on the answer card and
+/// above the details): hidden bias (Rosenbaum Gamma below 1.5), a poor fit before the change,
+/// an effect not unusual among placebos, correlated forecast errors, covariates still
+/// imbalanced, treated units left out.
+pub fn fragility(r: &AnalysisResult) -> Vec<String> {
+    let mut f = Vec::new();
+    if let Some(g) = diag_f64(r, &["rosenbaum", "gamma_critical"]).filter(|g| *g < 1.5) {
+        f.push(format!(
+            "Fragile to hidden bias: an unmeasured factor that changes the odds of treatment by a factor of {g:.2} would make the effect indistinguishable from zero (flagged below 1.5)."
+        ));
+    }
+    if let Some((share, expected)) = poor_pre_band(r) {
+        f.push(format!(
+            "Poor fit before the change: {:.0}% of pre-period observations fall outside the model's band (about {:.0}% expected).",
+            share * 100.0,
+            expected * 100.0
+        ));
+    }
+    if let Some(r2) = diag_f64(r, &["r2_pre"]).filter(|v| *v < 0.8) {
+        f.push(format!(
+            "Poor fit before the change: the synthetic control explains {:.0}% of the treated series' variation before the start (flagged below 80%, a rule of thumb of this report).",
+            r2 * 100.0
+        ));
+    }
+    if let Some(p) = r.placebo.as_ref().filter(|p| p.p_value > 1.0 - r.level) {
+        f.push(format!(
+            "Not unusual among placebos: p = {:.2}, above the {:.2} the interval level allows; an effect this large also appears where nothing happened.",
+            p.p_value,
+            1.0 - r.level
+        ));
+    }
+    if let Some(p) = diag_f64(r, &["ljung_box", "p_value"]).filter(|p| *p < 0.05) {
+        f.push(format!(
+            "Correlated forecast errors before the change (Ljung-Box p {}): the interval may be too narrow.",
+            if p < 0.001 { "< 0.001".to_string() } else { format!("= {p:.3}") }
+        ));
+    }
+    if let Some(b) = &r.balance {
+        let bad: Vec<&str> = b.iter().filter(|x| x.smd_after.abs() > 0.1).map(|x| x.covariate.as_str()).collect();
+        if !bad.is_empty() {
+            f.push(format!("Still imbalanced after adjustment (|SMD| above 0.1): {}.", bad.join(", ")));
+        }
+    }
+    f
+}
+
 /// Plain-language warnings derived from the result itself, beside the estimator's own.
 fn derived_warnings(r: &AnalysisResult) -> Vec<String> {
     let mut w = Vec::new();
@@ -337,24 +548,17 @@ fn derived_warnings(r: &AnalysisResult) -> Vec<String> {
         w.push("The effect summary contains values that are not numbers; treat this analysis as failed.".into());
     }
     if r.verdict == Verdict::Inconclusive {
-        w.push("The interval includes both no effect and effects large enough to matter: the data cannot settle the question yet.".into());
+        w.push("The interval includes both no effect and effects large enough to matter: the data cannot settle the question yet: wait for more data after the change (`aftercast plan` says how long) or narrow the question.".into());
+    }
+    if let Some((share, expected)) = poor_pre_band(r) {
+        w.push(format!(
+            "Before the change, {:.0}% of the observations fell outside the model's {:.0}% band (about {:.0}% expected): the model fits the past poorly and the band may be too narrow; compare a second model or method before trusting the interval.",
+            share * 100.0,
+            r.level * 100.0,
+            expected * 100.0
+        ));
     }
     if let Some(path) = &r.path {
-        let pre: Vec<_> =
-            path.iter().filter(|p| !p.post && p.observed.is_some_and(f64::is_finite) && p.upper > p.lower).collect();
-        if pre.len() >= 10 {
-            let outside = pre.iter().filter(|p| p.observed.is_some_and(|o| o < p.lower || o > p.upper)).count();
-            let share = outside as f64 / pre.len() as f64;
-            let expected = 1.0 - r.level;
-            if share > 2.0 * expected + 0.02 {
-                w.push(format!(
-                    "Before the change, {:.0}% of the observations fell outside the model's {:.0}% band (about {:.0}% expected): the model fits the past poorly and the band may be too narrow.",
-                    share * 100.0,
-                    r.level * 100.0,
-                    expected * 100.0
-                ));
-            }
-        }
         if path.iter().all(|p| !p.post) {
             w.push("The path has no period after the change.".into());
         }
@@ -362,7 +566,7 @@ fn derived_warnings(r: &AnalysisResult) -> Vec<String> {
     if let Some(b) = &r.balance {
         for row in b.iter().filter(|x| x.smd_after.abs() > 0.1) {
             w.push(format!(
-                "'{}' is still imbalanced after adjustment (|SMD| = {:.2}, above the 0.1 commonly used as the limit).",
+                "'{}' is still imbalanced after adjustment (|SMD| = {:.2}, above the 0.1 commonly used as the limit), so the estimate may still carry that difference: add a squared term or an interaction of it to the propensity model (--terms) or use a doubly robust method (--method aipw).",
                 row.covariate,
                 row.smd_after.abs()
             ));
@@ -372,12 +576,13 @@ fn derived_warnings(r: &AnalysisResult) -> Vec<String> {
         && p.p_value > 0.1
     {
         w.push(format!(
-            "The treated unit's gap is not unusual among the placebo units (rank {} of {}, p = {:.2}): an effect of this size also appears where nothing happened.",
+            "The treated unit's gap is not unusual among the placebo units (rank {} of {}, p = {:.2}): an effect of this size also appears where nothing happened, so treat the effect as unproven: check the pre-period fit and whether the donors were touched by the change.",
             p.rank, p.units, p.p_value
         ));
     }
     if let Some(s) = &r.sample
         && s.treated_dropped > 0
+        && !r.warnings.iter().any(|w| w.contains("left out"))
     {
         w.push(format!(
             "{} of {} treated units were left out (no comparable control); the estimate describes the rest only.",
@@ -387,7 +592,7 @@ fn derived_warnings(r: &AnalysisResult) -> Vec<String> {
     if let Some(est) = &r.estimates {
         for e in est.iter().filter(|e| !e.covers_truth) {
             w.push(format!(
-                "'{}' on {} misses the experimental answer: its interval does not contain it (bias {}).",
+                "'{}' on {} misses the experimental answer: its interval does not contain it (bias {}); on data like these, prefer the methods that cover it.",
                 e.method,
                 e.setting,
                 numbers::signed(e.bias, numbers::decimals_for(&[e.bias]))
@@ -431,7 +636,64 @@ fn scalar_text(v: &Value) -> Option<String> {
     }
 }
 
-fn diagnostics_html(out: &mut String, map: &serde_json::Map<String, Value>) {
+/// A list of scalars in words: every value when short, the range and count otherwise.
+fn list_text(items: &[Value]) -> Option<String> {
+    let texts: Option<Vec<String>> = items.iter().map(scalar_text).collect();
+    let texts = texts?;
+    if texts.len() <= 12 {
+        return Some(if texts.is_empty() { "none".into() } else { texts.join(", ") });
+    }
+    let nums: Vec<f64> = items.iter().filter_map(Value::as_f64).filter(|v| v.is_finite()).collect();
+    if nums.len() == items.len() {
+        let lo = nums.iter().copied().fold(f64::INFINITY, f64::min);
+        let hi = nums.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        return Some(format!("{} values from {} to {}", texts.len(), number_text(lo), number_text(hi)));
+    }
+    Some(format!("{}, … ({} in all)", texts[..8].join(", "), texts.len()))
+}
+
+/// Rows shown of a diagnostic table; the rest are counted and left to result.json.
+const DIAG_ROWS: usize = 24;
+
+/// An array of objects as a table (columns: the scalar fields of the rows).
+fn diag_table(out: &mut String, title: &str, rows: &[Value]) -> bool {
+    let mut cols: Vec<&str> = Vec::new();
+    for r in rows.iter().take(50) {
+        let Some(o) = r.as_object() else { return false };
+        for (k, v) in o {
+            if (scalar_text(v).is_some() || v.as_array().is_some_and(|a| a.len() <= 4)) && !cols.contains(&k.as_str()) {
+                cols.push(k);
+            }
+        }
+    }
+    if cols.is_empty() {
+        return false;
+    }
+    let _ = writeln!(out, "<h4>{}</h4><div class=\"table-wrap\"><table class=\"diag\"><thead><tr>", escape(title));
+    for c in &cols {
+        let _ = write!(out, "<th>{}</th>", escape(&humanise(c)));
+    }
+    out.push_str("</tr></thead><tbody>\n");
+    for r in rows.iter().take(DIAG_ROWS) {
+        out.push_str("<tr>");
+        for c in &cols {
+            let v = r.get(*c).unwrap_or(&Value::Null);
+            let t = scalar_text(v).or_else(|| v.as_array().and_then(|a| list_text(a))).unwrap_or_default();
+            let class = if v.is_number() { " class=\"num\"" } else { "" };
+            let _ = write!(out, "<td{class}>{}</td>", escape(&t));
+        }
+        out.push_str("</tr>\n");
+    }
+    out.push_str("</tbody></table></div>\n");
+    if rows.len() > DIAG_ROWS {
+        let _ = writeln!(out, "<p class=\"note\">{} more rows in result.json.</p>", rows.len() - DIAG_ROWS);
+    }
+    true
+}
+
+/// Diagnostics as readable definition lists and tables (no raw JSON): scalars as terms, lists
+/// in words, arrays of records as tables, nested records under their own heading.
+fn diagnostics_html(out: &mut String, map: &serde_json::Map<String, Value>, depth: usize) {
     if map.is_empty() {
         out.push_str("<p>This method reports no diagnostics.</p>\n");
         return;
@@ -439,32 +701,24 @@ fn diagnostics_html(out: &mut String, map: &serde_json::Map<String, Value>) {
     let mut dl = String::new();
     let mut nested = String::new();
     for (k, v) in map {
-        match scalar_text(v) {
-            Some(t) => {
-                let _ = writeln!(dl, "<dt>{}</dt><dd>{}</dd>", escape(&humanise(k)), escape(&t));
+        let key = humanise(k);
+        if let Some(t) = scalar_text(v).or_else(|| v.as_array().and_then(|a| list_text(a))) {
+            let _ = writeln!(dl, "<dt>{}</dt><dd>{}</dd>", escape(&key), escape(&t));
+            continue;
+        }
+        match v {
+            Value::Array(rows) if diag_table(&mut nested, &key, rows) => {}
+            Value::Object(o) if depth < 2 => {
+                let _ = writeln!(nested, "<h4>{}</h4>", escape(&key));
+                diagnostics_html(&mut nested, o, depth + 1);
             }
-            None => {
-                let (kind, n) = match v {
-                    Value::Array(a) => ("items", a.len()),
-                    Value::Object(o) => ("fields", o.len()),
-                    _ => ("values", 0),
-                };
-                let pretty = serde_json::to_string_pretty(v).unwrap_or_default();
-                let pretty = if pretty.len() > 20_000 {
-                    format!(
-                        "{} …(cut; the full value is in result.json)",
-                        &pretty[..(0..=20_000).rev().find(|i| pretty.is_char_boundary(*i)).unwrap_or(0)]
-                    )
-                } else {
-                    pretty
-                };
-                let _ = writeln!(
-                    nested,
-                    "<details><summary>{} ({n} {kind})</summary><pre>{}</pre></details>",
-                    escape(&humanise(k)),
-                    escape(&pretty)
-                );
+            Value::Array(a) => {
+                let _ = writeln!(dl, "<dt>{}</dt><dd>{} entries (in result.json)</dd>", escape(&key), a.len());
             }
+            Value::Object(o) => {
+                let _ = writeln!(dl, "<dt>{}</dt><dd>{} fields (in result.json)</dd>", escape(&key), o.len());
+            }
+            _ => {}
         }
     }
     if !dl.is_empty() {
@@ -543,26 +797,33 @@ fn verb_tables(out: &mut String, r: &AnalysisResult) {
     }
 }
 
-/// An inline SVG figure; a drawing failure becomes a visible note.
-fn figure(out: &mut String, c: &charts::Chart) {
-    let _ = writeln!(out, "<figure id=\"fig-{}\">", id_of(&c.name));
-    let _ = writeln!(out, "<h4>{}</h4><figcaption>{}</figcaption>", escape(&c.title), escape(&c.caption));
+/// Width of the phone drawing of a chart (px): drawn at 400 px and shown about 350 px wide, its
+/// 13 px text reads at about 11 px.
+const NARROW: u32 = 400;
+
+fn svg_of(c: &charts::Chart, class: &str) -> String {
     match c.to_svg(false) {
         Ok(svg) => {
             let start = svg.find("<svg").unwrap_or(0);
-            let body = &svg[start..];
-            let tagged = body.replacen(
+            svg[start..].replacen(
                 "<svg",
-                &format!("<svg class=\"chart\" role=\"img\" aria-label=\"{}\"", escape(&c.title)),
+                &format!("<svg class=\"chart {class}\" role=\"img\" aria-label=\"{}\"", escape(&c.title)),
                 1,
-            );
-            out.push_str(&tagged);
-            out.push('\n');
+            ) + "\n"
         }
-        Err(e) => {
-            let _ = writeln!(out, "<p class=\"caution\">This chart could not be drawn: {}</p>", escape(&e.to_string()));
-        }
+        Err(e) => format!("<p class=\"caution\">This chart could not be drawn: {}</p>\n", escape(&e.to_string())),
     }
+}
+
+/// An inline SVG figure, drawn twice: for a desktop and for a phone (the page shows one of them
+/// by its width, so chart text stays readable); a drawing failure becomes a visible note.
+fn figure(out: &mut String, c: &charts::Chart) {
+    let _ = writeln!(out, "<figure id=\"fig-{}\">", id_of(&c.name));
+    let _ = writeln!(out, "<h4>{}</h4><figcaption>{}</figcaption>", escape(&c.title), escape(&c.caption));
+    out.push_str(&svg_of(c, "wide"));
+    let narrow_height = (f64::from(c.height) * 0.8).round().clamp(260.0, 4000.0) as u32;
+    let narrow = c.clone().with_size(NARROW, narrow_height.max(c.height.min(4000) * 3 / 4));
+    out.push_str(&svg_of(&narrow, "narrow"));
     out.push_str("</figure>\n");
 }
 
@@ -590,6 +851,18 @@ fn data_section(out: &mut String, input: &ReportInput) {
             );
         }
         out.push_str("</tbody></table></div>\n<p>The SHA-256 fingerprint changes if a single byte of a file changes: compare it to be sure a rerun reads the same data.</p>\n");
+    }
+    for t in &input.tables {
+        let _ = writeln!(
+            out,
+            "<h3>Built by the run: {}</h3><p>{} Written to <code>{}</code>: {} rows, columns {}.</p><pre><code>{}</code></pre>",
+            escape(&t.name),
+            escape(t.describe.as_deref().unwrap_or("A per-unit table built from an event log.")),
+            escape(&t.output),
+            aftercast_core::result::count_text(t.rows),
+            escape(&t.columns.join(", ")),
+            escape(&t.command)
+        );
     }
     out.push_str(
         "<div class=\"table-wrap\"><table><thead><tr><th>analysis</th><th>periods or units</th></tr></thead><tbody>\n",
@@ -630,6 +903,17 @@ fn data_section(out: &mut String, input: &ReportInput) {
     out.push_str("</tbody></table></div>\n</section>\n");
 }
 
+/// Warnings of a result, each once: the estimator's own, then those the report derives.
+pub fn all_warnings(r: &AnalysisResult) -> Vec<String> {
+    let mut warnings: Vec<String> = Vec::new();
+    for w in r.warnings.iter().cloned().chain(derived_warnings(r)) {
+        if !warnings.contains(&w) {
+            warnings.push(w);
+        }
+    }
+    warnings
+}
+
 fn analysis_section(out: &mut String, a: &ReportAnalysis) {
     let r = &a.result;
     let _ = writeln!(out, "<section id=\"analysis-{}\" class=\"analysis\">", id_of(&a.stem));
@@ -637,25 +921,41 @@ fn analysis_section(out: &mut String, a: &ReportAnalysis) {
     let est = r.estimand.as_deref().map(|e| format!(", estimand {e}")).unwrap_or_default();
     let _ = writeln!(
         out,
-        "<p>Method: <code>{} {}</code>{}, seed {}, {:.0}% intervals.</p>",
+        "<p class=\"meta\">Method: <code>{} {}</code> ({} family){}, seed {}, {:.0}% intervals. <a href=\"#diag-{}\">Diagnostics</a></p>",
         escape(&r.verb),
         escape(&r.method),
+        family(r),
         escape(&est),
         r.seed,
-        r.level * 100.0
+        r.level * 100.0,
+        id_of(&a.stem)
     );
     if numbers::kind(r) == numbers::Kind::Effect {
         let _ = writeln!(
             out,
-            "<div class=\"verdict\"><p class=\"words\">{} {}</p><p>{}</p></div>",
+            "<div class=\"verdict\"><p class=\"words\">{} {}</p><p>{}</p>",
             verdict_chip(r.verdict),
             escape(r.verdict.sentence()),
             escape(&verdict_words(r))
         );
+        if let Some(t) = &a.truth
+            && let Some(s) = t.summary_of(r)
+        {
+            let _ = writeln!(out, "<p class=\"truth\">{}</p>", escape(&truth_sentence(t, &s, r)));
+        }
+        out.push_str("</div>\n");
         effects_table(out, r);
     } else {
         // an evaluation of methods: no verdict about a change
         let _ = writeln!(out, "<div class=\"verdict\"><p>{}</p></div>", escape(&numbers::headline(r)));
+    }
+    let flags = fragility(r);
+    if !flags.is_empty() {
+        out.push_str("<ul class=\"flags\">\n");
+        for f in &flags {
+            let _ = writeln!(out, "<li>{}</li>", escape(f));
+        }
+        out.push_str("</ul>\n");
     }
     let charts = charts::charts_for(r, &a.draws, &a.figures, &a.stem);
     let (lead, rest) = charts.split_first().map_or((None, &[][..]), |(f, r)| (Some(f), r));
@@ -674,12 +974,7 @@ fn analysis_section(out: &mut String, a: &ReportAnalysis) {
         table_html(out, t);
     }
     out.push_str("<h3>Warnings</h3>\n");
-    let mut warnings: Vec<String> = r.warnings.clone();
-    for w in derived_warnings(r) {
-        if !warnings.contains(&w) {
-            warnings.push(w);
-        }
-    }
+    let warnings = all_warnings(r);
     if warnings.is_empty() {
         out.push_str("<p class=\"ok\">No warnings: the checks this method runs found nothing to flag.</p>\n");
     } else {
@@ -689,8 +984,6 @@ fn analysis_section(out: &mut String, a: &ReportAnalysis) {
         }
         out.push_str("</ul>\n");
     }
-    out.push_str("<h3>Diagnostics</h3>\n");
-    diagnostics_html(out, &r.diagnostics);
     out.push_str("<h3>What this rests on</h3>\n");
     if r.assumptions.is_empty() {
         out.push_str(
@@ -704,6 +997,205 @@ fn analysis_section(out: &mut String, a: &ReportAnalysis) {
         out.push_str("</ul>\n");
     }
     let _ = writeln!(out, "<p class=\"caution\">{}</p>", escape(CAUTION));
+    out.push_str("</section>\n");
+}
+
+/// "The true effect (known for these invented data): +2.78%; inside the 90% HDI, the estimate
+/// is 0.09 points below it."
+fn truth_sentence(t: &KnownTruth, s: &Summary, r: &AnalysisResult) -> String {
+    let inside = s.hdi_lower <= t.value && t.value <= s.hdi_upper;
+    // the truth and the miss in the decimals of the estimate they are read against
+    let d = numbers::decimals_for(&[s.estimate, s.hdi_lower, s.hdi_upper]);
+    let units = |v: f64| numbers::with_unit(&numbers::signed(v, d), r.outcome_unit.as_deref());
+    let (truth, miss) = match t.of {
+        TruthOf::Relative => (t.text(r), format!("{} points", numbers::signed((s.estimate - t.value) * 100.0, 2))),
+        _ => (units(t.value), units(s.estimate - t.value)),
+    };
+    format!(
+        "True effect (known for these invented data): {truth}; {} the {}; estimate minus truth: {miss}.",
+        if inside { "inside" } else { "outside" },
+        numbers::interval_name(r.level)
+    )
+}
+
+/// The analyses grouped as the answer cards show them: one group per question key (in order
+/// of first appearance), then one group per analysis that answers no question.
+fn answer_groups(input: &ReportInput) -> Vec<(Option<&str>, Vec<&ReportAnalysis>)> {
+    let mut groups: Vec<(Option<&str>, Vec<&ReportAnalysis>)> = Vec::new();
+    for a in &input.analyses {
+        match a.question.as_deref() {
+            Some(q) => match groups.iter_mut().find(|g| g.0 == Some(q)) {
+                Some(g) => g.1.push(a),
+                None => groups.push((Some(q), vec![a])),
+            },
+            None => groups.push((None, vec![a])),
+        }
+    }
+    // questions first, in order; then the analyses without one
+    let (mut q, rest): (Vec<_>, Vec<_>) = groups.into_iter().partition(|g| g.0.is_some());
+    q.extend(rest);
+    q
+}
+
+/// The card of one question: the lead analysis's answer in the outcome's units and relative
+/// to the counterfactual with its interval and verdict, every method in a small table with the
+/// truth where known, the agreement of the method families, and the fragility flags.
+fn question_card(out: &mut String, key: &str, group: &[&ReportAnalysis], index: usize) {
+    let lead = group[0];
+    let r = &lead.result;
+    let _ = writeln!(out, "<article class=\"answer\" id=\"answer-{index}\">\n<h3>{}</h3>", escape(key));
+    let judged = numbers::judged_line(r);
+    let primary = if judged.percent { numbers::units_line(r) } else { judged.clone() };
+    let secondary = if primary.percent { None } else { numbers::effect_lines(r).into_iter().find(|l| l.percent) };
+    let (pp, pi) = numbers::line_numbers(r, &primary);
+    let mut lead_html = format!(
+        "{} <span class=\"big\">{}</span> <span class=\"what\">{}</span>",
+        verdict_chip(r.verdict),
+        escape(&pp),
+        escape(&primary.label)
+    );
+    let mut range = format!("{} {}", numbers::interval_name(r.level), pi);
+    if let Some(sl) = &secondary {
+        let (sp, si) = numbers::line_numbers(r, sl);
+        let _ = write!(
+            lead_html,
+            " <span class=\"big2\">{}</span> <span class=\"what\">relative to the counterfactual</span>",
+            escape(&sp)
+        );
+        let _ = write!(range, "; {si} relative");
+    }
+    let _ = writeln!(out, "<p class=\"lead\">{lead_html}</p>");
+    let _ = writeln!(
+        out,
+        "<p class=\"range\">{} (the verdict is judged on the {} interval). {}</p>",
+        escape(&range),
+        if judged.percent { "relative" } else { "outcome-unit" },
+        escape(r.verdict.sentence())
+    );
+    if let Some(t) = &lead.truth
+        && let Some(s) = t.summary_of(r)
+    {
+        let _ = writeln!(out, "<p class=\"truth\">{}</p>", escape(&truth_sentence(t, &s, r)));
+    }
+    if group.len() > 1 {
+        let t = triangulate(key, group);
+        let pct = t.quantity == Quantity::Relative;
+        let truth_col = group.iter().any(|a| a.truth.is_some());
+        let _ = write!(
+            out,
+            "<div class=\"table-wrap\"><table class=\"mini\"><thead><tr><th>method</th><th>family</th><th>{}</th><th>{}</th><th>verdict</th>{}</tr></thead><tbody>\n",
+            if pct { "relative effect" } else { "average effect" },
+            numbers::interval_name(r.level),
+            if truth_col { "<th>truth inside</th>" } else { "" }
+        );
+        for a in group {
+            let s =
+                if pct { a.result.effect.relative.unwrap_or(a.result.effect.average) } else { a.result.effect.average };
+            let (p, i) = numbers::summary_numbers(&s, pct, a.result.outcome_unit.as_deref());
+            let truth_cell = if truth_col {
+                let inside = a
+                    .truth
+                    .filter(|t| (t.of == TruthOf::Relative) == pct)
+                    .map(|t| if s.hdi_lower <= t.value && t.value <= s.hdi_upper { "yes" } else { "no" });
+                format!("<td>{}</td>", inside.unwrap_or("n/a"))
+            } else {
+                String::new()
+            };
+            let _ = writeln!(
+                out,
+                "<tr><td><a href=\"#analysis-{}\">{}</a></td><td>{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td>{}</td>{truth_cell}</tr>",
+                id_of(&a.stem),
+                escape(&a.result.method),
+                family(&a.result),
+                escape(&p),
+                escape(&i),
+                verdict_chip(a.result.verdict)
+            );
+        }
+        out.push_str("</tbody></table></div>\n");
+        let _ = writeln!(
+            out,
+            "<p class=\"agree\"><span class=\"chip a-{w}\">methods {w}</span> {}</p>",
+            escape(&t.families_sentence()),
+            w = t.agreement.word()
+        );
+    } else {
+        let _ = writeln!(
+            out,
+            "<p class=\"agree\"><span class=\"chip a-undetermined\">one method</span> Only {} ({} family) answers this question; a second, independent method would show whether the answer holds.</p>",
+            escape(&r.method),
+            family(r)
+        );
+    }
+    let mut flags: Vec<String> = Vec::new();
+    for a in group {
+        for f in fragility(&a.result) {
+            flags.push(if group.len() > 1 { format!("{}: {f}", a.result.method) } else { f });
+        }
+    }
+    if flags.is_empty() {
+        out.push_str("<p class=\"ok\">No fragility flag: hidden-bias, pre-fit, placebo and residual checks pass where they apply.</p>\n");
+    } else {
+        out.push_str("<ul class=\"flags\">\n");
+        for f in &flags {
+            let _ = writeln!(out, "<li>{}</li>", escape(f));
+        }
+        out.push_str("</ul>\n");
+    }
+    let _ = writeln!(
+        out,
+        "<p class=\"more\"><a href=\"#analysis-{}\">Details of each method</a></p>\n</article>",
+        id_of(&lead.stem)
+    );
+}
+
+/// The card of an analysis that answers no question: an effect (as a one-method question, its
+/// label as the question), a plan (its answer sentence) or a comparison with an experiment (the
+/// experiment's answer, how many methods cover it, which reach another verdict).
+fn other_card(out: &mut String, a: &ReportAnalysis, index: usize) {
+    let r = &a.result;
+    match numbers::kind(r) {
+        numbers::Kind::Effect => return question_card(out, &a.label, &[a], index),
+        _ => {
+            let _ = writeln!(out, "<article class=\"answer\" id=\"answer-{index}\">\n<h3>{}</h3>", escape(&a.label));
+            let _ = writeln!(out, "<p class=\"lead-text\">{}</p>", escape(&numbers::headline(r)));
+        }
+    }
+    if let Some(est) = &r.estimates {
+        let against: Vec<&str> = est.iter().filter(|e| !e.verdict_agrees).map(|e| e.method.as_str()).collect();
+        if !against.is_empty() {
+            let _ = writeln!(
+                out,
+                "<p class=\"flagline\">Reach another verdict than the experiment: {}. Without the experiment, these would have misled.</p>",
+                escape(&against.join(", "))
+            );
+        }
+    }
+    let _ = writeln!(out, "<p class=\"more\"><a href=\"#analysis-{}\">Details</a></p>\n</article>", id_of(&a.stem));
+}
+
+fn answers_section(out: &mut String, input: &ReportInput) {
+    out.push_str("<section id=\"answers\">\n<h2>The answers</h2>\n");
+    if input.analyses.is_empty() {
+        out.push_str("<p>This report holds no analyses.</p>\n</section>\n");
+        return;
+    }
+    out.push_str("<div class=\"answers\">\n");
+    for (k, (key, group)) in answer_groups(input).iter().enumerate() {
+        match key {
+            Some(q) => question_card(out, q, group, k),
+            None => other_card(out, group[0], k),
+        }
+    }
+    out.push_str("</div>\n<p class=\"caution\">Observational estimates: each rests on assumptions no data can prove (listed with each method below). A randomized test with a holdout is stronger evidence wherever one is possible.</p>\n</section>\n");
+}
+
+fn appendix_section(out: &mut String, input: &ReportInput) {
+    out.push_str("<section id=\"appendix\">\n<h2>Appendix: diagnostics</h2>\n<p>What each method reports about its own fit, in tables; result.json beside this page holds every value.</p>\n");
+    for a in &input.analyses {
+        let _ = writeln!(out, "<h3 id=\"diag-{}\">{}</h3>", id_of(&a.stem), escape(&a.label));
+        diagnostics_html(out, &a.result.diagnostics, 0);
+    }
     out.push_str("</section>\n");
 }
 
@@ -729,8 +1221,13 @@ fn triangulation_section(out: &mut String, input: &ReportInput) {
         let pct = t.quantity == Quantity::Relative;
         let what =
             if pct { "relative effect (percent of the counterfactual)" } else { "average effect in outcome units" };
-        let _ = writeln!(out, "<h3>Question: {}</h3>", escape(key));
-        let _ = writeln!(out, "<p>{} methods answer it; they are compared on the {what}.</p>", group.len());
+        let _ = writeln!(out, "<h3>{}</h3>", escape(key));
+        let _ = writeln!(
+            out,
+            "<p>{} methods answer it; they are compared on the {what}. {}</p>",
+            group.len(),
+            escape(&t.families_sentence())
+        );
         if !pct {
             out.push_str("<p>Not every method reports a relative effect, so the comparison uses the average effect; series methods report it per period and unit-level methods per unit, so check that the estimands match before reading agreement into it.</p>\n");
         }
@@ -739,8 +1236,8 @@ fn triangulation_section(out: &mut String, input: &ReportInput) {
             "<div class=\"table-wrap\"><table><thead><tr><th>method</th><th>estimate</th><th>{}</th><th>verdict</th></tr></thead><tbody>",
             numbers::interval_name(input.analyses.first().map_or(0.9, |a| a.result.level))
         );
-        for (label, s, v) in &t.rows {
-            let (p, i) = point_and_interval(s, pct);
+        for ((label, s, v), a) in t.rows.iter().zip(&group) {
+            let (p, i) = numbers::summary_numbers(s, pct, a.result.outcome_unit.as_deref());
             let _ = writeln!(
                 out,
                 "<tr><td>{}</td><td class=\"num\">{p}</td><td class=\"num\">{i}</td><td>{}</td></tr>",
@@ -820,40 +1317,20 @@ pub fn render(input: &ReportInput) -> String {
         escape(&input.title),
         escape(&input.question)
     );
-    out.push_str("<nav class=\"toc\"><a href=\"#question\">Question</a><a href=\"#data\">Data</a>");
-    for a in &input.analyses {
-        let _ = write!(out, "<a href=\"#analysis-{}\">{}</a>", id_of(&a.stem), escape(&a.label));
+    out.push_str(
+        "<nav class=\"toc\"><a href=\"#answers\">Answers</a><a href=\"#triangulation\">Do the methods agree?</a>",
+    );
+    if let Some(first) = input.analyses.first() {
+        let _ = write!(out, "<a href=\"#analysis-{}\">Each method</a>", id_of(&first.stem));
     }
-    out.push_str("<a href=\"#triangulation\">Agreement</a><a href=\"#caution\">Caution</a><a href=\"#reproduce\">Reproduce</a></nav>\n<main>\n");
-
-    // the question and the answers at a glance
-    out.push_str("<section id=\"question\">\n<h2>The question</h2>\n");
-    let _ = writeln!(out, "<p>{}</p>", escape(&input.question));
-    if input.analyses.is_empty() {
-        out.push_str("<p>This report holds no analyses.</p>\n");
-    } else {
-        out.push_str("<div class=\"cards\">\n");
-        for a in &input.analyses {
-            let r = &a.result;
-            let headline = numbers::headline(r);
-            let chip = if numbers::kind(r) == numbers::Kind::Effect { verdict_chip(r.verdict) } else { String::new() };
-            let _ = writeln!(
-                out,
-                "<div class=\"card\"><h3><a href=\"#analysis-{}\">{}</a></h3><p>{}</p><p>{}</p></div>",
-                id_of(&a.stem),
-                escape(&a.label),
-                chip,
-                escape(&headline)
-            );
-        }
-        out.push_str("</div>\n");
-    }
-    out.push_str("</section>\n");
-    data_section(&mut out, input);
+    out.push_str("<a href=\"#data\">Data</a><a href=\"#appendix\">Diagnostics</a><a href=\"#caution\">Caution</a><a href=\"#reproduce\">Reproduce</a></nav>\n<main>\n");
+    answers_section(&mut out, input);
+    triangulation_section(&mut out, input);
     for a in &input.analyses {
         analysis_section(&mut out, a);
     }
-    triangulation_section(&mut out, input);
+    data_section(&mut out, input);
+    appendix_section(&mut out, input);
     out.push_str("<section id=\"caution\">\n<h2>How much to trust this</h2>\n");
     out.push_str("<p class=\"caution\">These are observational estimates. Each rests on assumptions, listed with each analysis, that no data can prove: that nothing else changed at the same time, that the comparison series or units were untouched, that the past pattern would have continued. A randomized test with a held-out control group is stronger evidence wherever one is possible; where one exists, compare against it.</p>\n");
     out.push_str("<p>The intervals describe the uncertainty of each method given its assumptions; they do not cover the risk that the assumptions are wrong. Agreement between independent methods makes that risk smaller, not zero.</p>\n</section>\n");

@@ -157,7 +157,7 @@ pub fn effect_table(r: &AnalysisResult) -> Table {
     let rows = numbers::effect_lines(r)
         .iter()
         .map(|l| {
-            let (p, i) = numbers::point_and_interval(&l.summary, l.percent);
+            let (p, i) = numbers::line_numbers(r, l);
             let chance = if l.summary.prob_positive.is_finite() {
                 format!("{:.0}%", l.summary.prob_positive * 100.0)
             } else {
@@ -187,7 +187,6 @@ pub fn terminal_summary(r: &AnalysisResult, headline: &str, tables: &[Table]) ->
     out.push(format!("  {}", numbers::headline(r)));
     match numbers::kind(r) {
         numbers::Kind::Effect => {
-            out.push(format!("  {}", r.verdict.sentence()));
             out.push(effect_table(r).to_text("  "));
             if let Some(p) = r.effect.average.prob_above_threshold
                 && let Some(t) = r.threshold

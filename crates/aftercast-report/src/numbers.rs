@@ -114,6 +114,58 @@ pub fn point_and_interval(s: &Summary, pct: bool) -> (String, String) {
     (signed(s.estimate, d), format!("[{}, {}]", signed(s.hdi_lower, d), signed(s.hdi_upper, d)))
 }
 
+/// Whether a unit label is a currency sign, written before the digits ("$", "€", "US$").
+pub fn is_currency(label: &str) -> bool {
+    !label.is_empty() && (label.chars().all(|c| !c.is_alphanumeric()) || label.ends_with('$'))
+}
+
+/// A formatted signed number with the outcome's unit label: a currency sign between the sign
+/// and the digits (`+$1,250`), a word after the number (`+106 orders`); unchanged without one.
+pub fn with_unit(text: &str, unit: Option<&str>) -> String {
+    match unit {
+        None => text.to_string(),
+        Some(_) if text == "n/a" => text.to_string(),
+        Some(u) if is_currency(u) => match text.chars().next() {
+            Some(s @ ('+' | '-')) => format!("{s}{u}{}", &text[1..]),
+            _ => format!("{u}{text}"),
+        },
+        Some(u) => format!("{text} {u}"),
+    }
+}
+
+/// Point and interval of one effect row as every output shows it: percentages for relative
+/// rows, numbers with the outcome's unit label otherwise.
+pub fn line_numbers(r: &AnalysisResult, line: &EffectLine) -> (String, String) {
+    summary_numbers(&line.summary, line.percent, r.outcome_unit.as_deref())
+}
+
+/// Point and interval of a summary with an optional unit label (ignored for percentages).
+pub fn summary_numbers(s: &Summary, pct: bool, unit: Option<&str>) -> (String, String) {
+    if pct || unit.is_none() {
+        return point_and_interval(s, pct);
+    }
+    let d = decimals_for(&[s.estimate, s.hdi_lower, s.hdi_upper]);
+    let f = |v: f64| with_unit(&signed(v, d), unit);
+    match unit {
+        // a word is said once, after the interval: [+68, +135] orders
+        Some(u) if !is_currency(u) => {
+            (f(s.estimate), format!("[{}, {}] {u}", signed(s.hdi_lower, d), signed(s.hdi_upper, d)))
+        }
+        _ => (f(s.estimate), format!("[{}, {}]", f(s.hdi_lower), f(s.hdi_upper))),
+    }
+}
+
+/// The row in outcome units a reader weighs the answer by: the total over all treated units,
+/// else the total over the post-period, else the average.
+pub fn units_line(r: &AnalysisResult) -> EffectLine {
+    let lines = effect_lines(r);
+    let pick = |starts: &str| lines.iter().find(|l| !l.percent && l.label.starts_with(starts)).cloned();
+    pick("total over all")
+        .or_else(|| lines.iter().find(|l| !l.percent && !l.label.starts_with("average")).cloned())
+        .or_else(|| pick("average"))
+        .unwrap_or_else(|| judged_line(r))
+}
+
 /// The name of the interval shown: "90% HDI".
 pub fn interval_name(level: f64) -> String {
     format!("{:.0}% HDI", level * 100.0)
@@ -225,15 +277,30 @@ pub fn plan_sentence(p: &aftercast_core::result::Planning) -> String {
     out
 }
 
-/// One sentence: the verdict and the judged effect with its interval.
+/// One sentence: the verdict, the judged effect with the interval the verdict uses, and the
+/// effect in the outcome's units (or, when the verdict is judged in units, relative to the
+/// counterfactual) with its interval.
 pub fn lead_sentence(r: &AnalysisResult) -> String {
     let line = judged_line(r);
-    let (p, i) = point_and_interval(&line.summary, line.percent);
+    let (p, i) = line_numbers(r, &line);
     let scope = match (r.scope.per, r.scope.units, line.percent) {
         (Per::Period, n, false) if n > 1 => format!(" (per treated unit; {n} treated units)"),
         _ => String::new(),
     };
-    format!("Verdict: {}. {}: {p}, {} {i}{scope}.", r.verdict.word(), effect_words(&line.label), interval_name(r.level))
+    let hdi = interval_name(r.level);
+    let mut s = format!("Verdict: {}. {}: {p}, {hdi} {i}{scope}", r.verdict.word(), effect_words(&line.label));
+    let other = if line.percent {
+        Some(units_line(r)).filter(|l| !l.percent)
+    } else {
+        effect_lines(r).into_iter().find(|l| l.percent)
+    };
+    if let Some(o) = other.filter(|o| o.summary.estimate.is_finite()) {
+        let (op, oi) = line_numbers(r, &o);
+        let what = if o.percent { "relative to the counterfactual".to_string() } else { o.label.clone() };
+        let _ = std::fmt::Write::write_fmt(&mut s, format_args!("; {what}: {op}, {oi}"));
+    }
+    s.push('.');
+    s
 }
 
 /// "average per period" -> "Average effect per period"; "relative to the counterfactual" ->
@@ -261,5 +328,11 @@ mod tests {
         assert_eq!(signed(-8498.0, 0), "-8,498");
         assert_eq!(signed(-0.0001, 2), "0.00");
         assert_eq!(percent(0.0312), "+3.12%");
+        assert_eq!(with_unit("+1,250", Some("$")), "+$1,250");
+        assert_eq!(with_unit("-5.06", Some("€")), "-€5.06");
+        assert_eq!(with_unit("0", Some("US$")), "US$0");
+        assert_eq!(with_unit("+106", Some("orders")), "+106 orders");
+        assert_eq!(with_unit("n/a", Some("$")), "n/a");
+        assert_eq!(with_unit("+3", None), "+3");
     }
 }

@@ -369,3 +369,59 @@ fn the_rosenbaum_caption_brackets_the_crossing() {
     let rb = c.iter().find(|c| c.name == "m-rosenbaum").expect("rosenbaum");
     assert!(rb.caption.contains("between 1.90 and 2.00"), "{}", rb.caption);
 }
+
+#[test]
+fn axis_limits_are_robust_to_a_single_outlier() {
+    // 240 values on a smooth wave in [0, 10] and one value of 10,000 (an early data error)
+    let mut v: Vec<f64> = (0..240).map(|i| 5.0 + 5.0 * (f64::from(i) / 20.0).sin()).collect();
+    v[3] = 10_000.0;
+    let (lo, hi, outside) = charts::robust_extent(&v).expect("finite values");
+    assert!(lo <= 0.01 && hi < 12.0, "the axis follows the data, not the outlier: [{lo}, {hi}]");
+    assert_eq!(outside, 1, "the outlier is counted (and marked on the chart)");
+    // without outliers nothing is cut: the full range
+    v[3] = 5.0;
+    let (lo, hi, outside) = charts::robust_extent(&v).expect("finite values");
+    let max = v.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let min = v.iter().copied().fold(f64::INFINITY, f64::min);
+    assert_eq!((lo, hi, outside), (min, max, 0));
+    // few values are never cut
+    assert_eq!(charts::robust_extent(&[1.0, 2.0, 1_000.0]), Some((1.0, 1_000.0, 0)));
+    assert_eq!(charts::robust_extent(&[f64::NAN]), None);
+
+    // drawn: an effect chart with that outlier keeps its y ticks near the data
+    let x: Vec<f64> = (0..240).map(f64::from).collect();
+    let mut y: Vec<f64> = (0..240).map(|i| (f64::from(i) / 20.0).sin()).collect();
+    y[3] = -1_500.0;
+    let band: Vec<f64> = y.iter().map(|v| v - 0.3).collect();
+    let band_hi: Vec<f64> = y.iter().map(|v| v + 0.3).collect();
+    let c = charts::effect_chart("e", &x, charts::XKind::Numbers, (&y, &band, &band_hi), Some(200.0), 0.9);
+    let svg = c.to_svg(true).expect("svg");
+    assert!(!svg.contains("-1.5k") && !svg.contains("-1,500"), "no tick near the outlier");
+    assert!(svg.contains("1 value beyond the axis"), "the clipped value is named");
+}
+
+#[test]
+fn row_labels_stay_inside_the_canvas() {
+    // labels far longer than the label area are shortened, never drawn past the left edge
+    let long = "Daily app orders against a structural forecast from the pre-period and two untouched control series";
+    let rows: Vec<charts::EstimateBar> = (0..3)
+        .map(|k| charts::EstimateBar {
+            label: format!("{long} ({k})"),
+            summary: common::summary(0.02 + 0.01 * f64::from(k), 0.005),
+        })
+        .collect();
+    let c = charts::estimates_chart("est", &rows, None, 0.9, "relative effect", theme::ValueFormat::Percent);
+    let d = decode(&c.to_png().expect("png"));
+    let paper = theme::PAPER;
+    let (w, h) = (d.width as usize, d.height as usize);
+    let column_is_paper = |x: usize| {
+        (0..h).all(|y| {
+            let i = (y * w + x) * 3;
+            d.rgb[i..i + 3] == [paper.0, paper.1, paper.2]
+        })
+    };
+    assert!(column_is_paper(0) && column_is_paper(1), "ink on the left edge: a label runs off the canvas");
+    assert!(column_is_paper(w - 1), "ink on the right edge");
+    let svg = c.to_svg(false).expect("svg");
+    assert!(svg.contains('…'), "long labels are shortened with an ellipsis");
+}

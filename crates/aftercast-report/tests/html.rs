@@ -7,7 +7,9 @@ mod common;
 
 use aftercast_core::result::{AnalysisResult, Verdict};
 use aftercast_report::charts;
-use aftercast_report::html::{self, Agreement, Quantity, ReportAnalysis, ReportInput, StudyFile};
+use aftercast_report::html::{
+    self, Agreement, KnownTruth, Quantity, ReportAnalysis, ReportInput, StudyFile, TableStep, TruthOf,
+};
 
 fn analysis(label: &str, stem: &str, question: Option<&str>, result: AnalysisResult) -> ReportAnalysis {
     let (draws, figures) = common::inputs_for(stem);
@@ -19,6 +21,7 @@ fn analysis(label: &str, stem: &str, question: Option<&str>, result: AnalysisRes
         figures,
         tables: Vec::new(),
         stem: stem.into(),
+        truth: None,
     }
 }
 
@@ -26,17 +29,35 @@ fn study() -> ReportInput {
     let mut second = common::forecast();
     second.method = "holt-winters".into();
     second.effect.relative = Some(common::summary(0.03, 0.007));
+    let mut first = analysis("Forecast: structural model", "forecast", Some("onboarding"), common::forecast());
+    first.result.outcome_unit = Some("users".into());
+    first.truth = Some(KnownTruth { value: 0.034, of: TruthOf::Relative });
+    let mut sale = analysis(
+        "Synthetic control of the sale regions <north & west>",
+        "synthetic",
+        Some("sale"),
+        common::synthetic(),
+    );
+    sale.result.outcome_unit = Some("$".into());
     ReportInput {
         title: "Did the new onboarding move weekly active users?".into(),
         question: "We released the new onboarding to everyone on 1 May 2025. Did weekly active users move, by how much, and how sure are we?".into(),
         analyses: vec![
-            analysis("Forecast: structural model", "forecast", Some("onboarding"), common::forecast()),
+            first,
             analysis("Forecast: Holt-Winters", "forecast-hw", Some("onboarding"), second),
-            analysis("Synthetic control of the sale regions <north & west>", "synthetic", Some("sale"), common::synthetic()),
+            sale,
             analysis("Loyalty scheme: nearest-neighbour matching", "match", None, common::matching()),
             analysis("Check against last year's holdout", "compare", None, common::compare()),
             analysis("How long to wait: placebo backtests", "backtest", None, common::backtest()),
         ],
+        tables: vec![TableStep {
+            name: "windows".into(),
+            describe: Some("Event log to one row per user".into()),
+            command: "aftercast windows --events e.csv --exposures x.csv --window 14d --output t.csv".into(),
+            output: "t.csv".into(),
+            rows: 1200,
+            columns: vec!["unit".into(), "exposed".into()],
+        }],
         command: "aftercast run study.toml --out report".into(),
         study_file: Some(StudyFile { path: "study.toml".into(), contents: "[data.users]\npath = \"users.csv\"\n\n[[analysis]]\nverb = \"forecast\"\n".into() }),
     }
@@ -63,11 +84,41 @@ fn report_is_well_formed_complete_and_self_contained() {
     // every section, in order
     let ids: Vec<&str> =
         doc.descendants().filter(|n| n.has_tag_name("section")).filter_map(|n| n.attribute("id")).collect();
-    let mut expected = vec!["question", "data"];
+    let mut expected = vec!["answers", "triangulation"];
     let analysis_ids: Vec<String> = input.analyses.iter().map(|a| format!("analysis-{}", a.stem)).collect();
     expected.extend(analysis_ids.iter().map(String::as_str));
-    expected.extend(["triangulation", "caution", "reproduce"]);
+    expected.extend(["data", "appendix", "caution", "reproduce"]);
     assert_eq!(ids, expected);
+
+    // the answers come first: one card per question, then one per analysis without a question;
+    // each question card holds a number in the outcome's unit, the interval and the truth given
+    let cards: Vec<roxmltree::Node> =
+        doc.descendants().filter(|n| n.has_tag_name("article") && n.attribute("class") == Some("answer")).collect();
+    assert_eq!(cards.len(), 2 + 3, "2 questions, then the match, compare and plan analyses");
+    let card_text =
+        |n: &roxmltree::Node| -> String { n.descendants().filter(|d| d.is_text()).filter_map(|d| d.text()).collect() };
+    let first_card = card_text(&cards[0]);
+    assert!(first_card.trim_start().starts_with("onboarding"), "the first question first: {first_card}");
+    let cum = common::forecast().effect.cumulative.expect("cumulative");
+    let d = aftercast_report::numbers::decimals_for(&[cum.estimate, cum.hdi_lower, cum.hdi_upper]);
+    let point = aftercast_report::numbers::signed(cum.estimate, d);
+    assert!(first_card.contains(&format!("{point} users")), "the total in the outcome's unit: {first_card}");
+    assert!(first_card.contains("90% HDI ["), "the interval: {first_card}");
+    assert!(first_card.contains("True effect (known for these invented data): +3.40%"), "the truth: {first_card}");
+    assert!(first_card.contains("methods agree") || first_card.contains("methods compatible"), "{first_card}");
+    assert!(first_card.contains("one family (forecast)"), "agreement within one family is named as such");
+    let sale_card = card_text(&cards[1]);
+    assert!(
+        sale_card.contains("-$190") && sale_card.contains("[-$257, -$123]"),
+        "a currency sign after the sign: {sale_card}"
+    );
+    // the cards come before any analysis section in the page
+    let page_pos = |needle: &str| page.find(needle).expect(needle);
+    assert!(page_pos("class=\"answer\"") < page_pos("id=\"analysis-forecast\""));
+    // diagnostics are tables and sentences, never raw JSON
+    assert!(!page.contains("<pre>{") && !page.contains("<details>"), "no raw JSON dump");
+    // the table the run built is shown with the data
+    assert!(page.contains("Built by the run: windows"));
 
     // no external requests: no fetching attribute leaves the page, no @import / url() in CSS, no scripts
     for n in doc.descendants().filter(|n| n.is_element()) {
@@ -103,7 +154,11 @@ fn report_is_well_formed_complete_and_self_contained() {
     let planned: usize =
         input.analyses.iter().map(|a| charts::charts_for(&a.result, &a.draws, &a.figures, &a.stem).len()).sum();
     let svgs = doc.descendants().filter(|n| n.has_tag_name("svg")).count();
-    assert_eq!(svgs, planned + 1, "inline SVG charts");
+    // each chart twice (a desktop and a phone drawing)
+    assert_eq!(svgs, 2 * (planned + 1), "inline SVG charts");
+    let narrow =
+        doc.descendants().filter(|n| n.has_tag_name("svg") && n.attribute("class") == Some("chart narrow")).count();
+    assert_eq!(narrow, planned + 1, "a phone drawing of every chart");
     for f in doc.descendants().filter(|n| n.has_tag_name("figure")) {
         assert!(f.descendants().any(|n| n.has_tag_name("figcaption")), "each figure has its caption");
     }
@@ -137,8 +192,7 @@ fn report_is_well_formed_complete_and_self_contained() {
     assert!(text.contains("Effect relative to the counterfactual: +3.52%"), "the judged quantity leads");
     assert!(text.contains("'spend_pre' is still imbalanced"), "derived plain-language warning");
     assert!(text.contains("'naive difference' on pool misses the experimental answer"));
-    assert!(text.contains("Question: onboarding"), "the triangulated question");
-    assert!(!text.contains("Question: sale"), "a single-method question is not triangulated");
+    assert!(text.contains("2 methods answer it"), "the triangulated question");
 }
 
 #[test]
@@ -158,6 +212,7 @@ fn an_empty_report_still_has_every_section() {
         title: "Empty".into(),
         question: "Nothing yet?".into(),
         analyses: vec![],
+        tables: vec![],
         command: "aftercast run s.toml --out o".into(),
         study_file: None,
     };
@@ -165,7 +220,7 @@ fn an_empty_report_still_has_every_section() {
     let doc = parse(&page).expect("parses");
     let ids: Vec<&str> =
         doc.descendants().filter(|n| n.has_tag_name("section")).filter_map(|n| n.attribute("id")).collect();
-    assert_eq!(ids, ["question", "data", "triangulation", "caution", "reproduce"]);
+    assert_eq!(ids, ["answers", "triangulation", "data", "appendix", "caution", "reproduce"]);
 }
 
 #[test]

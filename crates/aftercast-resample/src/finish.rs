@@ -211,7 +211,7 @@ pub fn finish<D: Serialize>(
             let out = series_block(times, observed, counterfactual, point_path, est.total, inf);
             if out.nonfinite_relative > 0 {
                 warnings.push(format!(
-                    "{} draws had a zero counterfactual sum; their relative effect is not a number and is left out",
+                    "{} draws had a zero counterfactual sum; their relative effect is not a number and is left out, so the relative effect rests on the other draws: if that is many, read the effect in outcome units instead",
                     out.nonfinite_relative
                 ));
             }
@@ -255,6 +255,7 @@ pub fn finish<D: Serialize>(
         seed: inf.seed,
         inputs,
         estimand: Some(est.estimand),
+        outcome_unit: None,
         scope: est.scope,
         effect: block,
         verdict,

@@ -273,7 +273,10 @@ impl ValidParams {
         let draws = match &placebo {
             Some(pl) => placebo_draws(&prep, &units, &shares, pl, &synthetic, &mut warnings),
             None => {
-                warnings.push("placebo runs are off: the counterfactual has no interval (a single draw)".into());
+                warnings.push(
+                    "placebo runs are off, so the counterfactual has no interval (a single draw) and the result shows no uncertainty at all: do not read it as exact, and turn placebo runs on for an interval"
+                        .into(),
+                );
                 Draws { source: "none".into(), counterfactual: vec![synthetic[prep.t0..].to_vec()] }
             }
         };
@@ -538,14 +541,17 @@ fn placebo_draws(
         devs.push(d);
     }
     if devs.is_empty() {
-        warnings.push("no placebo run could be used for the interval: the counterfactual has no interval".into());
+        warnings.push(
+            "no placebo run could be used for the interval, so the counterfactual has no interval and the result shows no uncertainty at all: raise or drop --placebo-exclude, or add untreated units to the panel"
+                .into(),
+        );
         return Draws { source: "none".into(), counterfactual: vec![synthetic[t0..].to_vec()] };
     }
     let n = devs.len() as f64;
     let mean: Vec<f64> = (0..tp).map(|k| devs.iter().map(|d| d[k]).sum::<f64>() / n).collect();
     if devs.len() < 19 {
         warnings.push(format!(
-            "only {} placebo runs shape the interval: its ends are coarse (at 90% they need about 20 or more)",
+            "only {} placebo runs shape the interval: its ends are coarse (at 90% they need about 20 or more), so treat them as rough: add untreated units to the panel, or raise or drop --placebo-exclude if it removed some",
             devs.len()
         ));
     }
@@ -556,7 +562,7 @@ fn placebo_draws(
     };
     if units.iter().any(|u| u.pre_rmspe < 0.1 * med_pre) {
         warnings.push(
-            "the treated unit's pre-period fit is far tighter than the placebos' (pre-RMSPE under a tenth of their median): intervals scaled by it may be too narrow".into(),
+            "the treated unit's pre-period fit is far tighter than the placebos' (pre-RMSPE under a tenth of their median): intervals scaled by it may be too narrow, so treat the interval as a lower bound on the uncertainty and check the placebo-in-time and leave-one-out results".into(),
         );
     }
     let counterfactual = devs.iter().map(|d| (0..tp).map(|k| synthetic[t0 + k] + d[k] - mean[k]).collect()).collect();

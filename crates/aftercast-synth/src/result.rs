@@ -203,7 +203,7 @@ pub fn estimate(fit: &Fitted, robustness: Robustness) -> Estimate<SynthDiagnosti
     }
     for u in fit.units.iter().filter(|u| u.solver.stop != "optimal") {
         est.warn(format!(
-            "the weight solver for '{}' stopped just short of its tolerance (KKT residual {:.1e} of the problem's scale, {}): the weights are optimal to that precision, far finer than the intervals",
+            "the weight solver for '{}' stopped just short of its tolerance (KKT residual {:.1e} of the problem's scale, {}): the weights are optimal to that precision, far finer than the intervals, so no action is needed",
             u.unit, u.solver.kkt_relative, u.solver.stop
         ));
     }
@@ -239,16 +239,22 @@ pub fn run(
         if treated.len() == 1 && matches!(fit.method, Method::Weights | Method::Intercept) {
             match crate::inference::conformal(params, panel, &treated[0], start) {
                 Ok(c) => rb.conformal = Some(c),
-                Err(e) => rb.warnings.push(format!("conformal inference skipped: {e}")),
+                Err(e) => rb.warnings.push(format!(
+                    "conformal inference skipped ({e}), so the result lacks its p-value of no effect: rely on the placebo-unit rank instead"
+                )),
             }
         }
         match crate::inference::placebo_in_time(params, panel, treated, start, None) {
             Ok(p) => rb.placebo_in_time = Some(p),
-            Err(e) => rb.warnings.push(format!("placebo in time skipped: {e}")),
+            Err(e) => rb.warnings.push(format!(
+                "placebo in time skipped ({e}), so the result lacks the check that the method finds no effect at an earlier, fake start: a longer pre-period makes room for it"
+            )),
         }
         match crate::inference::leave_one_out(params, panel, treated, start, &fit) {
             Ok(l) => rb.leave_one_out = Some(l),
-            Err(e) => rb.warnings.push(format!("leave-one-out skipped: {e}")),
+            Err(e) => rb.warnings.push(format!(
+                "leave-one-out skipped ({e}), so the result does not show whether a single donor drives the estimate: check the donor weights yourself"
+            )),
         }
     }
     let est = estimate(&fit, rb);

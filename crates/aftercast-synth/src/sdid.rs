@@ -364,7 +364,9 @@ pub(crate) fn fit_sdid(prep: &Prepared, p: &SynthParams, outcome: &str, shares: 
         f64::NAN
     };
     if reps < 20 {
-        warnings.push(format!("the SDID {variance_method} variance rests on only {reps} replications"));
+        warnings.push(format!(
+            "the SDID {variance_method} variance rests on only {reps} replications, so the interval's width is itself uncertain: treat it as rough, and add untreated units to the panel (or name fewer in --exclude) to firm it up"
+        ));
     }
     let counterfactual: Vec<Vec<f64>> =
         effect_draws.iter().map(|e| (0..t1).map(|k| core.treated_avg[t0 + k] - e[k]).collect()).collect();

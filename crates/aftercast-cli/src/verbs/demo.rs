@@ -42,6 +42,12 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
         "regional-sale = \"What did the spring sale add to regional store revenue, net of the dip after?\""
     );
     let _ = writeln!(s, "loyalty = \"How much more do loyalty members spend because of the scheme?\"");
+    if has_verb("windows") && has_verb("match") {
+        let _ = writeln!(
+            s,
+            "trail-planner = \"Once the novelty week has passed, did the Trail Planner invitation raise what customers order?\""
+        );
+    }
     let _ = writeln!(s);
     if has_verb("forecast") && has_verb("plan") {
         // the plan an analyst makes before the launch: the structural set-up below, placebo
@@ -75,7 +81,7 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
             let _ = writeln!(s, "controls = \"catalogue_orders,weather_index\"\nevents = \"data/calendar.csv\"");
             let _ = writeln!(
                 s,
-                "start = {}\nmodel = {}\nlog = true\nlog_controls = \"catalogue_orders\"\n",
+                "start = {}\nmodel = {}\nlog = true\nlog_controls = \"catalogue_orders\"\noutcome_unit = \"orders\"\n",
                 q(&t.app_launch.launch_date),
                 q(model)
             );
@@ -100,12 +106,37 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
             );
             let _ = writeln!(
                 s,
-                "treated = {}\nstart = {}\nend = {}\nmethod = \"{method}\"\n",
+                "treated = {}\nstart = {}\nend = {}\nmethod = \"{method}\"\noutcome_unit = \"$\"\n",
                 q(&r.sale_regions.join(",")),
                 q(&r.sale_weeks[0]),
                 q(&last)
             );
         }
+    }
+    if has_verb("forecast") {
+        // a second, independent family for the sale: the sale regions' summed revenue against a
+        // forecast from its own past and the untouched regions' sum
+        let r = &t.regional_sale;
+        let last = r.pull_forward_weeks.last().cloned().unwrap_or_else(|| r.last_week.clone());
+        let _ = writeln!(
+            s,
+            "[[analysis]]\nname = \"regional-sale-forecast\"\nquestion = \"regional-sale\"\nverb = \"forecast\""
+        );
+        let _ = writeln!(
+            s,
+            "describe = \"Summed weekly revenue of the sale regions against a structural forecast with the other regions' sum as control\""
+        );
+        let _ = writeln!(s, "truth = {}\ntruth_of = \"relative\"", r.relative_net_effect);
+        let _ = writeln!(
+            s,
+            "[analysis.flags]\ndata = \"data/regions_weekly_totals.csv\"\ntime = \"week\"\noutcome = \"sale_regions_revenue\""
+        );
+        let _ = writeln!(
+            s,
+            "controls = \"other_regions_revenue\"\nstart = {}\nend = {}\nmodel = \"structural\"\nlog = true\nlog_controls = \"other_regions_revenue\"\noutcome_unit = \"$\"\n",
+            q(&r.sale_weeks[0]),
+            q(&last)
+        );
     }
     if has_verb("match") {
         for method in ["nearest", "ipw", "aipw"] {
@@ -118,8 +149,47 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
             );
             let _ =
                 writeln!(s, "covariates = \"spend_pre,visits_pre,tenure_months\"\ncategorical = \"region,age_band\"");
-            let _ = writeln!(s, "method = \"{method}\"\nestimand = \"att\"\nrope = \"1\"\n");
+            let _ = writeln!(s, "method = \"{method}\"\nestimand = \"att\"\nrope = \"1\"\noutcome_unit = \"$\"\n");
         }
+    }
+    if has_verb("windows") && has_verb("match") {
+        // the event log to a per-customer table (56 days before as covariates, the outcome from
+        // day 7 to day 35 so the novelty week is left out), then matched on it
+        let e = &t.trail_planner;
+        let _ = writeln!(s, "[[analysis]]\nname = \"trail-planner-windows\"\nverb = \"windows\"");
+        let _ = writeln!(
+            s,
+            "describe = \"The app event log turned into one row per customer: orders and visits in the 56 days before the invitation (or the reference time), order value from day 7 to day 35 after it (the novelty week deferred)\""
+        );
+        let _ = writeln!(
+            s,
+            "[analysis.flags]\nevents = \"data/events.csv\"\nexposures = \"data/exposures.csv\"\nevent_columns = \"customer_id,ts,metric,value\"\nunit = \"customer_id\"\nexposure = \"exposed_at\""
+        );
+        let _ = writeln!(
+            s,
+            "window = [\"pre=pre:56d\", \"outcome=deferred:7d+28d\"]\nmetric = [\"order=sum,count\", \"visit=count\"]"
+        );
+        let _ = writeln!(
+            s,
+            "launch = {}\npopulation = \"exposures-and-events\"\nuntil = {}\noutput = \"tables/trail-planner-windows.csv\"\n",
+            q(&e.reference_time),
+            q(&e.data_end)
+        );
+        let _ =
+            writeln!(s, "[[analysis]]\nname = \"trail-planner-aipw\"\nquestion = \"trail-planner\"\nverb = \"match\"");
+        let _ = writeln!(
+            s,
+            "describe = \"Order value of invited customers from day 7 to day 35 against similar customers never invited (aipw on the windows table)\""
+        );
+        let _ = writeln!(s, "truth = {}\ntruth_of = \"average\"", e.sample_att_order_value_deferred);
+        let _ = writeln!(
+            s,
+            "[analysis.flags]\ndata = \"out:tables/trail-planner-windows.csv\"\ntreatment = \"exposed\"\noutcome = \"outcome_order_sum\""
+        );
+        let _ = writeln!(
+            s,
+            "covariates = \"pre_order_sum,pre_order_count,pre_visit_count\"\nmethod = \"aipw\"\nestimand = \"att\"\nrope = \"1\"\noutcome_unit = \"$\"\n"
+        );
     }
     if has_verb("compare") {
         let _ = writeln!(s, "[[analysis]]\nname = \"past-test-compare\"\nverb = \"compare\"");
@@ -134,7 +204,7 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
         );
         let _ = writeln!(
             s,
-            "pool = \"data/past_test/pool.csv\"\ncovariates = \"spend_pre,visits_pre,tenure_months\"\nrope = \"1\"\n"
+            "pool = \"data/past_test/pool.csv\"\ncovariates = \"spend_pre,visits_pre,tenure_months\"\nrope = \"1\"\noutcome_unit = \"$\"\n"
         );
     }
     s

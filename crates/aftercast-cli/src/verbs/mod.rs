@@ -44,6 +44,12 @@ impl Outcome {
         let finished = aftercast_resample::finish(est, inf, inputs)?;
         Ok(Outcome { finished, headline, tables: Vec::new(), interrupted: None })
     }
+
+    /// The outcome's unit label of the run (`--outcome-unit`) set on the result.
+    pub fn labelled(mut self, common: &Common) -> Outcome {
+        self.finished.result.outcome_unit.clone_from(&common.outcome_unit);
+        self
+    }
 }
 
 /// Print the terminal summary (unless quiet) and write `--json` / `--out` outputs.
@@ -51,6 +57,7 @@ impl Outcome {
 /// # Errors
 /// Output failures.
 pub fn finish(common: &Common, outcome: Outcome) -> anyhow::Result<()> {
+    let outcome = outcome.labelled(common);
     write_outputs(common, &outcome)?;
     if !common.quiet {
         say!("{}", aftercast_report::terminal_summary(&outcome.finished.result, &outcome.headline, &outcome.tables));

@@ -55,6 +55,9 @@ pub struct StudyResult {
     pub command: String,
     /// The analyses in order.
     pub analyses: Vec<StudyEntry>,
+    /// The tables the run built (a `windows` step: an event log to a per-unit table).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub tables: Vec<aftercast_report::html::TableStep>,
 }
 
 /// Run a study file into `out`; returns the result document.
@@ -84,6 +87,7 @@ fn write_study_parsed(study_path: &Path, study: &Study, dir: &OutDir, quiet: boo
     let base = study_path.parent().map(Path::to_path_buf).unwrap_or_else(|| PathBuf::from("."));
     let mut entries = Vec::new();
     let mut outcomes = Vec::new();
+    let mut tables = Vec::new();
     for (k, a) in study.analyses.iter().enumerate() {
         let _stage = aftercast_core::progress::stage(
             format!("analysis {} of {}: {}", k + 1, study.analyses.len(), a.name),
@@ -100,6 +104,25 @@ fn write_study_parsed(study_path: &Path, study: &Study, dir: &OutDir, quiet: boo
                 first.trim_start_matches("error: ")
             ))
         })?;
+        if let crate::Verb::Windows(w) = &cli.verb {
+            // a table-building step: its output is an input of a later analysis ("out:...")
+            let mut w = w.clone();
+            w.quiet = true;
+            crate::verbs::windows::run_verb(&w)
+                .map_err(|e| e.context(format!("analysis '{}' of {}", a.name, study_path.display())))?;
+            let step = table_step(a, &argv, &w)?;
+            if !quiet {
+                sayln!("== {} ==", a.name);
+                sayln!(
+                    "aftercast windows: {} rows of {} columns written to {}",
+                    aftercast_core::result::count_text(step.rows),
+                    step.columns.len(),
+                    step.output
+                );
+            }
+            tables.push(step);
+            continue;
+        }
         let outcome = match crate::analyze(&cli.verb) {
             Some(r) => r.map_err(|e| e.context(format!("analysis '{}' of {}", a.name, study_path.display())))?,
             None => {
@@ -144,8 +167,10 @@ fn write_study_parsed(study_path: &Path, study: &Study, dir: &OutDir, quiet: boo
             study_path.display().to_string(),
             "--out".into(),
             out.display().to_string(),
+            "--force".into(),
         ]),
         analyses: entries,
+        tables,
     };
     let charts = out.join("charts");
     let mut analyses = Vec::new();
@@ -153,7 +178,11 @@ fn write_study_parsed(study_path: &Path, study: &Study, dir: &OutDir, quiet: boo
         let label = e.describe.clone().unwrap_or_else(|| e.headline.clone());
         // The report groups analyses by their question, shown in the study's own words.
         let question = e.question.as_ref().map(|k| study.questions.get(k).cloned().unwrap_or_else(|| k.clone()));
-        let a = crate::common::report_analysis(outcome, &label, question, &e.name);
+        let truth = e
+            .truth
+            .zip(e.truth_of.as_deref().and_then(aftercast_report::html::TruthOf::parse))
+            .map(|(value, of)| aftercast_report::html::KnownTruth { value, of });
+        let a = crate::common::report_analysis(outcome, &label, question, &e.name, truth);
         aftercast_report::charts::write_all(&a.result, &a.draws, &a.figures, &charts, &a.stem)?;
         analyses.push(a);
     }
@@ -161,6 +190,7 @@ fn write_study_parsed(study_path: &Path, study: &Study, dir: &OutDir, quiet: boo
         title: doc.title.clone(),
         question: doc.summary.clone().unwrap_or_else(|| doc.title.clone()),
         analyses,
+        tables: doc.tables.clone(),
         command: doc.command.clone(),
         study_file: Some(aftercast_report::html::StudyFile {
             path: study_path.display().to_string(),
@@ -171,6 +201,28 @@ fn write_study_parsed(study_path: &Path, study: &Study, dir: &OutDir, quiet: boo
     // result.json last: its presence says every other output is complete
     aftercast_report::write_json(&out.join("result.json"), &doc)?;
     Ok(doc)
+}
+
+/// What a `windows` step wrote: its output's rows and columns (read back from the CSV header;
+/// a Parquet output reports its rows from the sidecar's count when present).
+fn table_step(
+    a: &crate::study::AnalysisSpec,
+    argv: &[String],
+    w: &crate::verbs::windows::Args,
+) -> anyhow::Result<aftercast_report::html::TableStep> {
+    let output = w
+        .output
+        .as_ref()
+        .ok_or_else(|| bad_input_msg(format!("analysis '{}': a windows step needs 'output'", a.name)))?;
+    let table = crate::common::read_table(output, &aftercast_core::Projection::none())?;
+    Ok(aftercast_report::html::TableStep {
+        name: a.name.clone(),
+        describe: a.describe.clone(),
+        command: shell_line(argv),
+        output: output.file_name().map_or_else(|| output.display().to_string(), |f| f.to_string_lossy().into_owned()),
+        rows: table.row_count(),
+        columns: table.header().to_vec(),
+    })
 }
 
 /// Run `run`.

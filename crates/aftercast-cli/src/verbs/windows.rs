@@ -30,7 +30,7 @@ pub enum Dialect {
 }
 
 /// Arguments of `windows`.
-#[derive(Debug, clap::Args)]
+#[derive(Debug, Clone, clap::Args)]
 pub struct Args {
     /// Event log: CSV, gzip CSV (.gz) or Parquet (.parquet), one event per row.
     #[arg(long)]

@@ -38,8 +38,6 @@ pub(crate) struct Coverage {
     /// Layout box: advance width and line height (ascent - descent), in pixels.
     pub width: i32,
     pub height: i32,
-    /// Baseline, from the top of the layout box.
-    pub baseline: i32,
 }
 
 /// Lay out `text` at pixel size `size` (the line height, as plotters sizes fonts) and return
@@ -71,12 +69,7 @@ pub(crate) fn layout(text: &str, size: f64, bold: bool) -> Option<Coverage> {
         }
         pen += font.h_advance(id);
     }
-    Some(Coverage {
-        pixels,
-        width: pen.ceil() as i32,
-        height: (font.ascent() - font.descent()).ceil() as i32,
-        baseline: baseline as i32,
-    })
+    Some(Coverage { pixels, width: pen.ceil() as i32, height: (font.ascent() - font.descent()).ceil() as i32 })
 }
 
 /// The bitmap backend with text of our own layout.
@@ -263,7 +256,6 @@ mod tests {
         let c = layout("0000", 20.0, false).expect("font");
         let one = layout("0", 20.0, false).expect("font");
         assert_eq!(c.width, 4 * one.width);
-        assert!(c.baseline > 0 && c.baseline < c.height);
         assert!(c.pixels.iter().all(|&(x, y, _)| x >= 0 && x <= c.width && y >= 0 && y <= c.height));
     }
 }

@@ -320,6 +320,30 @@ impl Chart {
     }
 }
 
+/// Axis limits that a few far outliers cannot stretch: the full range of the finite values,
+/// except that a side reaching more than half the central 98%'s span beyond it is cut to a
+/// tenth of that span past it. Returns (low, high, values outside); None without finite values.
+/// Fewer than 20 values are never cut.
+pub fn robust_extent(values: &[f64]) -> Option<(f64, f64, usize)> {
+    let mut v: Vec<f64> = values.iter().copied().filter(|x| x.is_finite()).collect();
+    if v.is_empty() {
+        return None;
+    }
+    v.sort_by(f64::total_cmp);
+    let n = v.len();
+    let (lo, hi) = (v[0], v[n - 1]);
+    if n < 20 {
+        return Some((lo, hi, 0));
+    }
+    let q = |p: f64| v[((n - 1) as f64 * p).round() as usize];
+    let (a, b) = (q(0.01), q(0.99));
+    let core = (b - a).max(f64::EPSILON * a.abs().max(b.abs()).max(1.0));
+    let lo2 = if a - lo > 0.5 * core { a - 0.1 * core } else { lo };
+    let hi2 = if hi - b > 0.5 * core { b + 0.1 * core } else { hi };
+    let outside = v.iter().filter(|x| **x < lo2 || **x > hi2).count();
+    Some((lo2, hi2, outside))
+}
+
 fn finite_count(v: &[f64]) -> usize {
     v.iter().filter(|x| x.is_finite()).count()
 }
@@ -366,14 +390,21 @@ pub fn counterfactual_chart(
     // dashes break up on long, wiggly series: dashed only while the periods are few
     let dashed = n <= 150;
     let caption = format!(
-        "The {} line against the {} the model expects without the change, with its {:.0}% band; the tinted area is the period after the change.",
+        "The {} line against the {} the model expects without the change, with its {:.0}% band; the green area between them after the change is the effect.",
         names.observed,
         names.counterfactual,
         level * 100.0
     );
+    // the effect itself: the area between the two lines after the change
+    let after = |v: &[f64]| -> Vec<f64> {
+        x.iter().zip(pad_to(v, n)).map(|(t, y)| if change.is_some_and(|c| *t >= c) { y } else { f64::NAN }).collect()
+    };
     let body = Body::Lines(LinePlot {
         xkind,
-        bands: vec![Band { x: x.to_vec(), lo: pad_to(lo, n), hi: pad_to(hi, n), color: theme::CLAY, alpha: 0.18 }],
+        bands: vec![
+            Band { x: x.to_vec(), lo: pad_to(lo, n), hi: pad_to(hi, n), color: theme::CLAY, alpha: 0.18 },
+            Band { x: x.to_vec(), lo: after(mid), hi: after(observed), color: theme::TEAL, alpha: 0.45 },
+        ],
         lines: vec![
             Line { x: x.to_vec(), y: pad_to(mid, n), color: theme::CLAY, alpha: 1.0, width: 2, dashed, points: false },
             Line {
@@ -399,6 +430,7 @@ pub fn counterfactual_chart(
         (names.observed, theme::INK, Swatch::Line),
         (names.counterfactual, theme::CLAY, if dashed { Swatch::Dashed } else { Swatch::Line }),
         (&band_label, theme::CLAY, Swatch::Band),
+        ("effect (the gap after the change)", theme::TEAL, Swatch::Band),
     ])
 }
 
@@ -516,7 +548,7 @@ pub fn running_total_chart(name: &str, x: &[f64], xkind: XKind, total: (&[f64], 
     let band_label = format!("{:.0}% band", level * 100.0);
     Chart::new(
         name,
-        "Running total since the change",
+        "Accumulated effect since the change",
         "The effect added up period by period from the change onwards; the band is where the total lies with the stated probability.",
         body,
     )
@@ -609,12 +641,17 @@ pub fn weights_chart(name: &str, weights: &[(String, f64)], max_rows: usize) -> 
         .enumerate()
         .map(|(i, (u, v))| Row {
             label: u.clone(),
-            value: *v,
+            // the remainder is a note, not a bar: summed, it would outgrow every donor named
+            value: if summed && i + 1 == shown { f64::NAN } else { *v },
             lo: f64::NAN,
             hi: f64::NAN,
             before: f64::NAN,
             color: if summed && i + 1 == shown { theme::MUTED } else { theme::SLATE },
-            note: format!("{:.1}%", v * 100.0),
+            note: if summed && i + 1 == shown {
+                format!("{:.1}% together", v * 100.0)
+            } else {
+                format!("{:.1}%", v * 100.0)
+            },
         })
         .collect();
     let h = rows_height(rows.len());

@@ -12,8 +12,23 @@ use aftercast_core::estimate::{Figures, KeptDraws};
 use aftercast_core::result::{AnalysisResult, Judged};
 use std::path::{Path, PathBuf};
 
-/// The charts of one result, named `<stem>-<view>`:
-/// - series verbs (`path`): `counterfactual` (or `treated-vs-synthetic`), `effect`, `running-total`;
+/// Periods of context shown before the change: twice the post-period, at least 24, at most the
+/// whole pre-period.
+fn focus_start(path: &[aftercast_core::result::PathPoint]) -> usize {
+    match path.iter().position(|p| p.post) {
+        Some(k) => k.saturating_sub((2 * (path.len() - k)).max(24)),
+        None => 0,
+    }
+}
+
+/// Width of the charts after the first: two share a row of the report on a desktop.
+pub const COMPACT_WIDTH: u32 = 640;
+
+/// The charts of one result, named `<stem>-<view>`, the lead view first at full width and the
+/// rest compact:
+/// - series verbs (`path`): `counterfactual` (or `treated-vs-synthetic`) around the change
+///   (the post-period and twice its length before it, the effect shaded), `running-total` (the
+///   accumulated effect), then `effect` (the gap over the whole history, robust limits);
 /// - synthetic: `placebo-gaps`, `weights`;
 /// - match: `propensity`, `balance`, `rosenbaum`;
 /// - compare: `versus-truth`;
@@ -37,7 +52,17 @@ pub fn charts_for(r: &AnalysisResult, draws: &KeptDraws, figures: &Figures, stem
             SeriesNames::default()
         };
         let view = if synthetic { "treated-vs-synthetic" } else { "counterfactual" };
-        out.push(counterfactual_chart(&name(view), &x, kind, &observed, (&cf, &lo, &hi), change, names, r.level));
+        let f = focus_start(path);
+        out.push(counterfactual_chart(
+            &name(view),
+            &x[f..],
+            kind,
+            &observed[f..],
+            (&cf[f..], &lo[f..], &hi[f..]),
+            change,
+            names,
+            r.level,
+        ));
         // effect per period: the summary where stored (post), observed - counterfactual band otherwise (pre)
         let gap: Vec<f64> = observed.iter().zip(&cf).map(|(o, c)| o - c).collect();
         let eff = |f: fn(&aftercast_core::result::Summary) -> f64, fallback: &dyn Fn(usize) -> f64| -> Vec<f64> {
@@ -46,7 +71,7 @@ pub fn charts_for(r: &AnalysisResult, draws: &KeptDraws, figures: &Figures, stem
         let e_mid = eff(|s| s.estimate, &|i| gap[i]);
         let e_lo = eff(|s| s.lower, &|i| observed[i] - hi[i]);
         let e_hi = eff(|s| s.upper, &|i| observed[i] - lo[i]);
-        out.push(effect_chart(&name("effect"), &x, kind, (&e_mid, &e_lo, &e_hi), change, r.level));
+        let effect = effect_chart(&name("effect"), &x, kind, (&e_mid, &e_lo, &e_hi), change, r.level);
         let post: Vec<usize> = (0..path.len()).filter(|&i| path[i].post && path[i].cumulative.is_some()).collect();
         if !post.is_empty() {
             let px: Vec<f64> = post.iter().map(|&i| x[i]).collect();
@@ -61,10 +86,17 @@ pub fn charts_for(r: &AnalysisResult, draws: &KeptDraws, figures: &Figures, stem
                 r.level,
             ));
         }
+        if let Some(c) = posterior_for(r, draws, &name("posterior")) {
+            out.push(c);
+        }
+        out.push(effect);
         if synthetic && !figures.placebo_gaps.is_empty() {
-            let placebos: Vec<(String, Vec<f64>)> =
-                figures.placebo_gaps.iter().map(|c| (c.name.clone(), c.values.clone())).collect();
-            out.push(placebo_gap_chart(&name("placebo-gaps"), &x, kind, &gap, &placebos, change));
+            let placebos: Vec<(String, Vec<f64>)> = figures
+                .placebo_gaps
+                .iter()
+                .map(|c| (c.name.clone(), c.values.get(f..).map_or_else(Vec::new, <[f64]>::to_vec)))
+                .collect();
+            out.push(placebo_gap_chart(&name("placebo-gaps"), &x[f..], kind, &gap[f..], &placebos, change));
         }
     }
     if let Some(w) = r.weights.as_ref() {
@@ -115,8 +147,15 @@ pub fn charts_for(r: &AnalysisResult, draws: &KeptDraws, figures: &Figures, stem
         let v: Vec<f64> = m.iter().map(|x| x.mde.unwrap_or(f64::NAN)).collect();
         out.push(mde_chart(&name("mde"), &l, &v, p.target_power, &p.wait_unit));
     }
-    if let Some(c) = posterior_for(r, draws, &name("posterior")) {
-        out.push(c);
+    if r.path.is_none()
+        && let Some(c) = posterior_for(r, draws, &name("posterior"))
+    {
+        // the distribution of the effect right after the lead view
+        out.insert(out.len().min(1), c);
+    }
+    for c in out.iter_mut().skip(1) {
+        let h = (f64::from(c.height) * 0.8).round().max(300.0) as u32;
+        *c = c.clone().with_size(COMPACT_WIDTH, h);
     }
     out
 }

@@ -196,7 +196,16 @@ fn lines<DB: DrawingBackend>(root: &DrawingArea<DB, Shift>, area: &DrawingArea<D
         .flat_map(|l| l.x.iter().zip(&l.y).filter(|(x, _)| x.is_finite()).map(|(_, y)| y))
         .chain(p.bands.iter().flat_map(|b| b.lo.iter().chain(&b.hi)))
         .chain(p.refs.iter().map(|r| &r.value));
-    let Some(yr) = p.y_range.or_else(|| extent(ys).map(|r| widen(r, 0.06))) else {
+    let ys: Vec<f64> = ys.copied().collect();
+    // robust limits: a few far outliers are clipped and marked instead of squeezing the data
+    let robust = super::robust_extent(&ys);
+    let Some(yr) = p.y_range.or_else(|| {
+        robust.map(|(lo, hi, _)| {
+            let refs = p.refs.iter().map(|r| r.value).filter(|v| v.is_finite());
+            let (lo, hi) = refs.fold((lo, hi), |(a, b), v| (a.min(v), b.max(v)));
+            widen((lo, hi), 0.06)
+        })
+    }) else {
         return note(area, "Nothing finite to draw.");
     };
     let (x0, x1) = if xr.0 == xr.1 { widen(xr, 0.0) } else { xr };
@@ -269,15 +278,29 @@ fn lines<DB: DrawingBackend>(root: &DrawingArea<DB, Shift>, area: &DrawingArea<D
             cc.draw_series(DashedLineSeries::new(vec![(x0, rl.value), (x1, rl.value)], 9, 6, rl.color.stroke_width(2)))
                 .map_err(e)?;
         }
-        if !rl.label.is_empty() {
-            let el = EmptyElement::at((x0, rl.value))
-                + Text::new(rl.label.clone(), (6, -18), font(NOTE_SIZE, false, &rl.color));
+        // the zero line speaks through its tick; other references are named at the right end,
+        // above the line, where the legend does not reach
+        if !rl.label.is_empty() && rl.label != "no effect" {
+            let style = font(NOTE_SIZE, false, &rl.color).pos(Pos::new(HPos::Right, VPos::Bottom));
+            let el = EmptyElement::at((x1, rl.value)) + Text::new(rl.label.clone(), (-6, -4), style);
             cc.draw_series(std::iter::once(el)).map_err(e)?;
         }
     }
+    let mut clipped = 0usize;
     for l in &p.lines {
         let n = l.x.len().min(l.y.len());
         let style = l.color.mix(l.alpha).stroke_width(l.width);
+        // values beyond the axis: a triangle on the edge, pointing where the value lies
+        for i in (0..n).filter(|&i| l.x[i].is_finite() && l.y[i].is_finite() && l.x[i] >= x0 && l.x[i] <= x1) {
+            let up = l.y[i] > y1;
+            if up || l.y[i] < y0 {
+                clipped += 1;
+                let tip = if up { vec![(0, 0), (-5, 9), (5, 9)] } else { vec![(0, 0), (-5, -9), (5, -9)] };
+                let el =
+                    EmptyElement::at((l.x[i], if up { y1 } else { y0 })) + Polygon::new(tip, l.color.mix(0.9).filled());
+                cc.draw_series(std::iter::once(el)).map_err(e)?;
+            }
+        }
         for r in runs(n, |i| l.x[i].is_finite() && l.y[i].is_finite()) {
             let pts: Vec<(f64, f64)> = r.map(|i| (l.x[i], l.y[i].clamp(y0, y1))).collect();
             if pts.len() == 1 || l.points {
@@ -292,6 +315,14 @@ fn lines<DB: DrawingBackend>(root: &DrawingArea<DB, Shift>, area: &DrawingArea<D
                 }
             }
         }
+    }
+    if clipped > 0 {
+        let msg = format!(
+            "{clipped} value{} beyond the axis, marked by triangles on its edge",
+            if clipped == 1 { "" } else { "s" }
+        );
+        let el = EmptyElement::at((x0, y0)) + Text::new(msg, (8, -22), font(NOTE_SIZE, false, &MUTED));
+        cc.draw_series(std::iter::once(el)).map_err(e)?;
     }
     if let Some(ch) = p.change.filter(|c| c.is_finite() && *c >= x0 && *c <= x1) {
         cc.draw_series(DashedLineSeries::new(vec![(ch, y0), (ch, y1)], 6, 4, INK.stroke_width(2))).map_err(e)?;
@@ -342,6 +373,22 @@ fn rows<DB: DrawingBackend>(root: &DrawingArea<DB, Shift>, area: &DrawingArea<DB
         .unwrap_or(40)
         .clamp(40, (area.dim_in_pixel().0 as i32) * 2 / 5)
         + 18;
+    // a label longer than its area is shortened with an ellipsis instead of running off the left
+    let fit = |label: &str| -> String {
+        let room = label_w - 18;
+        if text_width(root, label, &label_style) <= room {
+            return label.to_string();
+        }
+        let mut chars: Vec<char> = label.chars().collect();
+        while chars.len() > 1 {
+            chars.pop();
+            let t: String = chars.iter().collect::<String>().trim_end().to_string() + "…";
+            if text_width(root, &t, &label_style) <= room {
+                return t;
+            }
+        }
+        "…".into()
+    };
     let (yb, yt) = (-0.7, n as f64 - 0.3);
     let mut cc = ChartBuilder::on(area)
         .x_label_area_size(if p.x_label.is_empty() { 30 } else { 50 })
@@ -450,7 +497,9 @@ fn rows<DB: DrawingBackend>(root: &DrawingArea<DB, Shift>, area: &DrawingArea<DB
         }
         if !r.note.is_empty() {
             let end = [r.value, r.hi].into_iter().filter(|v| v.is_finite()).fold(f64::NEG_INFINITY, f64::max);
-            if end.is_finite() {
+            // a row without a value (a summed remainder) writes its note from the axis
+            let end = if end.is_finite() { end } else { x0 };
+            {
                 let el = EmptyElement::at((cl(end), y))
                     + Text::new(r.note.clone(), (10, -7), font(NOTE_SIZE, false, &MUTED));
                 cc.draw_series(std::iter::once(el)).map_err(e)?;
@@ -458,7 +507,7 @@ fn rows<DB: DrawingBackend>(root: &DrawingArea<DB, Shift>, area: &DrawingArea<DB
         }
         let (px, py) = cc.backend_coord(&(x0, y));
         let style = label_style.clone().pos(Pos::new(HPos::Right, VPos::Center));
-        root.draw(&Text::new(r.label.clone(), (px - 10, py), style)).map_err(e)?;
+        root.draw(&Text::new(fit(&r.label), (px - 10, py), style)).map_err(e)?;
     }
     Ok(())
 }

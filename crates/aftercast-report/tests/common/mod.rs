@@ -64,6 +64,7 @@ fn erf(x: f64) -> f64 {
 
 fn base(verb: &str, method: &str, effect: EffectBlock, verdict: Verdict, rope: Rope) -> AnalysisResult {
     AnalysisResult {
+        outcome_unit: None,
         tool_version: "0.1.0".into(),
         verb: verb.into(),
         method: method.into(),
