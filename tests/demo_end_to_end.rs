@@ -97,6 +97,7 @@ fn demo_writes_everything_and_covers_every_true_effect() {
         serde_json::from_slice(&std::fs::read(out.join("truth.json")).expect("truth")).expect("truth.json");
     issue_11_one_estimate_everywhere(&out, &doc, &terminal, &html, &truth);
     issue_15_the_plan_before_the_launch(&doc, &terminal, &html, &truth);
+    issue_16_answers_first(&out, &doc, &html);
     for needle in ["<html", "randomized", "aftercast run"] {
         assert!(html.contains(needle), "report.html lacks {needle}");
     }
@@ -137,13 +138,13 @@ fn issue_11_one_estimate_everywhere(
     html: &str,
     truth: &serde_json::Value,
 ) {
-    use aftercast_report::numbers::{judged_line, point_and_interval};
+    use aftercast_report::numbers::{judged_line, summary_numbers};
     assert!(!html.contains("No draws were kept") && !html.contains("no draws were kept"));
     for a in &doc.analyses {
         let r = &a.result;
         let shown = if r.verb == "compare" { r.effect.average } else { judged_line(r).summary };
         let pct = r.verb != "compare" && judged_line(r).percent;
-        let (point, interval) = point_and_interval(&shown, pct);
+        let (point, interval) = summary_numbers(&shown, pct, r.outcome_unit.as_deref());
         let block = terminal.split(&format!("== {} ==", a.name)).nth(1).expect("terminal block");
         let block = block.split("\n== ").next().unwrap_or(block);
         assert!(block.contains(&point) && block.contains(&interval), "{}: terminal lacks {point} {interval}", a.name);
@@ -168,4 +169,35 @@ fn issue_11_one_estimate_everywhere(
     }
     assert!(terminal.contains("total over all 6 treated units") && html.contains("total over all 6 treated units"));
     assert!(terminal.contains("per period, per treated unit") && html.contains("per period, per treated unit"));
+}
+
+/// Issue 16: the report opens with one card per question, each with its answer in the
+/// outcome's unit, the interval and the known truth; the regional sale is answered by two
+/// independent method families; the windows step built the table the Trail Planner match reads.
+fn issue_16_answers_first(out: &std::path::Path, doc: &StudyDoc, html: &str) {
+    let first_card = html.find("class=\"answer\"").expect("answer cards");
+    let first_section = html.find("id=\"analysis-").expect("analysis sections");
+    assert!(first_card < first_section, "the answers come before the details");
+    let cards = &html[first_card..html.find("id=\"triangulation\"").expect("triangulation")];
+    for q in [
+        "Did the app feature raise daily app orders?",
+        "What did the spring sale add to regional store revenue, net of the dip after?",
+        "How much more do loyalty members spend because of the scheme?",
+        "Once the novelty week has passed, did the Trail Planner invitation raise what customers order?",
+    ] {
+        assert!(cards.contains(q), "no card for {q}");
+    }
+    assert!(cards.contains(" orders</span>") && cards.contains("+$"), "unit-labelled answers");
+    assert_eq!(
+        cards.matches("True effect (known for these invented data)").count(),
+        4,
+        "the truth beside each question's answer"
+    );
+    assert!(cards.contains("2 independent method families answer it (synthetic control, forecast)"));
+    assert!(!html.contains("<details>"), "no raw JSON in the appendix");
+    let table = out.join("tables").join("trail-planner-windows.csv");
+    let text = std::fs::read_to_string(&table).expect("the windows step's table");
+    assert!(text.starts_with("unit,group,exposed,anchor,pre_order_sum"), "{}", &text[..80.min(text.len())]);
+    let trail = doc.analyses.iter().find(|a| a.name == "trail-planner-aipw").expect("the match on the windows table");
+    assert_eq!(trail.result.sample.as_ref().map(|s| s.treated), Some(2548));
 }

@@ -545,7 +545,7 @@ fn derived_warnings(r: &AnalysisResult) -> Vec<String> {
     let mut w = Vec::new();
     let avg = &r.effect.average;
     if [avg.mean, avg.lower, avg.upper].iter().any(|v| !v.is_finite()) {
-        w.push("The effect summary contains values that are not numbers; treat this analysis as failed.".into());
+        w.push("The effect summary contains values that are not numbers; treat this analysis as failed and look at the warnings above for the cause.".into());
     }
     if r.verdict == Verdict::Inconclusive {
         w.push("The interval includes both no effect and effects large enough to matter: the data cannot settle the question yet: wait for more data after the change (`aftercast plan` says how long) or narrow the question.".into());
@@ -558,11 +558,12 @@ fn derived_warnings(r: &AnalysisResult) -> Vec<String> {
             expected * 100.0
         ));
     }
-    if let Some(path) = &r.path {
-        if path.iter().all(|p| !p.post) {
-            w.push("The path has no period after the change.".into());
-        }
+    if let Some(path) = &r.path
+        && path.iter().all(|p| !p.post)
+    {
+        w.push("The path has no period after the change, so there is no effect to estimate: check --start and --end against the data's last date.".into());
     }
+
     if let Some(b) = &r.balance {
         for row in b.iter().filter(|x| x.smd_after.abs() > 0.1) {
             w.push(format!(
@@ -797,9 +798,9 @@ fn verb_tables(out: &mut String, r: &AnalysisResult) {
     }
 }
 
-/// Width of the phone drawing of a chart (px): drawn at 400 px and shown about 350 px wide, its
-/// 13 px text reads at about 11 px.
-const NARROW: u32 = 400;
+/// Width of the phone drawing of a chart (px): drawn at 360 px and shown about 348 px wide on a
+/// 390 px screen, so its smallest text (10.5 px in the SVG) stays above 10 px.
+const NARROW: u32 = 360;
 
 fn svg_of(c: &charts::Chart, class: &str) -> String {
     match c.to_svg(false) {
@@ -898,7 +899,7 @@ fn data_section(out: &mut String, input: &ReportInput) {
         } else {
             "no period or unit counts in the result".into()
         };
-        let _ = writeln!(out, "<tr><td>{}</td><td>{}</td></tr>", escape(&a.label), escape(&desc));
+        let _ = writeln!(out, "<tr><td><code>{}</code></td><td>{}</td></tr>", escape(&a.stem), escape(&desc));
     }
     out.push_str("</tbody></table></div>\n</section>\n");
 }
@@ -1083,7 +1084,7 @@ fn question_card(out: &mut String, key: &str, group: &[&ReportAnalysis], index: 
         let truth_col = group.iter().any(|a| a.truth.is_some());
         let _ = write!(
             out,
-            "<div class=\"table-wrap\"><table class=\"mini\"><thead><tr><th>method</th><th>family</th><th>{}</th><th>{}</th><th>verdict</th>{}</tr></thead><tbody>\n",
+            "<div class=\"table-wrap\"><table class=\"mini\"><thead><tr><th>method</th><th>family</th><th>{}</th><th>{}</th><th>verdict</th>{}</tr></thead><tbody>",
             if pct { "relative effect" } else { "average effect" },
             numbers::interval_name(r.level),
             if truth_col { "<th>truth inside</th>" } else { "" }
@@ -1349,8 +1350,8 @@ pub fn render(input: &ReportInput) -> String {
         let r = &a.result;
         let _ = writeln!(
             out,
-            "<tr><td>{}</td><td><code>{} {}</code></td><td class=\"num\">{}</td><td>{}</td></tr>",
-            escape(&a.label),
+            "<tr><td><code>{}</code></td><td><code>{} {}</code></td><td class=\"num\">{}</td><td>{}</td></tr>",
+            escape(&a.stem),
             escape(&r.verb),
             escape(&r.method),
             r.seed,

@@ -204,7 +204,7 @@ pub fn kind(r: &AnalysisResult) -> Kind {
 /// are, with no verdict about a change.
 pub fn headline(r: &AnalysisResult) -> String {
     let hdi = interval_name(r.level);
-    let (p, i) = point_and_interval(&r.effect.average, false);
+    let (p, i) = summary_numbers(&r.effect.average, false, r.outcome_unit.as_deref());
     match kind(r) {
         Kind::Effect => lead_sentence(r),
         Kind::Comparison => {

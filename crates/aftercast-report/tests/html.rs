@@ -273,3 +273,32 @@ fn triangulation_follows_the_documented_rule() {
     g.result.effect.relative = None;
     assert_eq!(html::triangulate("q", &[&a, &g]).quantity, Quantity::Average);
 }
+
+/// The layout check of a phone (scripts/check-report-layout.sh: no sideways scroll, tables in
+/// scrolling wrappers, no row taller than 200 px, chart text at 10 px or more at 390 px), run on
+/// the fixture report when headless Chromium and python3 are installed; skipped otherwise.
+#[test]
+fn the_report_reads_on_a_phone_when_chromium_is_present() {
+    let have = |p: &str| {
+        std::process::Command::new("sh")
+            .arg("-c")
+            .arg(format!("command -v {p}"))
+            .output()
+            .is_ok_and(|o| o.status.success())
+    };
+    let script = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../../scripts/check-report-layout.sh");
+    if !(have("chromium") && have("python3") && script.exists()) {
+        eprintln!("skipped: chromium, python3 or the script is missing");
+        return;
+    }
+    let tmp = tempfile::tempdir().expect("tempdir");
+    let page = tmp.path().join("report.html");
+    html::write(&study(), &page).expect("write");
+    let out = std::process::Command::new("bash").arg(&script).arg(&page).arg("390").output().expect("run the check");
+    let text = format!("{}{}", String::from_utf8_lossy(&out.stdout), String::from_utf8_lossy(&out.stderr));
+    match out.status.code() {
+        Some(0) => {}
+        Some(2) => eprintln!("skipped: the layout check could not run: {text}"),
+        _ => panic!("the report does not read on a phone:\n{text}"),
+    }
+}

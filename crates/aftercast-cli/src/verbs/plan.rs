@@ -343,7 +343,7 @@ pub fn waits(
     }
     let note = (!drop.is_empty()).then(|| {
         format!(
-            "waits of {} {unit} cannot be checked: placebo windows must end before the real change and start after the shortest fitting span, which leaves room for {room} {unit}; a smaller --min-train or more history would check them",
+            "waits of {} {unit} cannot be checked and are left out of the plan: placebo windows must end before the real change and start after the shortest fitting span, which leaves room for {room} {unit}; a smaller --min-train or more history would check them",
             drop.iter().map(ToString::to_string).collect::<Vec<_>>().join(", ")
         )
     });

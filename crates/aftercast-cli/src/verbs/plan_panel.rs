@@ -70,7 +70,7 @@ pub fn plan_synthetic(s: &SyntheticPlanArgs) -> anyhow::Result<crate::verbs::Out
         }));
     } else {
         notes.push(format!(
-            "no placebo units: the real post-period ({post_len} periods) is shorter than the longest wait ({h}), so only placebo dates are used; give --waits of at most {post_len} to add each untouched unit at the real start"
+            "no placebo units: the real post-period ({post_len} periods) is shorter than the longest wait ({h}), so only placebo dates are used and the rates rest on fewer runs: give --waits of at most {post_len} to add each untouched unit at the real start"
         ));
     }
     let treated = &setup.treated;
@@ -211,12 +211,12 @@ pub fn plan_match(m: &MatchPlanArgs) -> anyhow::Result<crate::verbs::Outcome> {
     }
     if let Some((size, msg)) = plan.failures.first() {
         est.warn(format!(
-            "{} simulated data sets failed and are left out of their size's numbers (first at {size} units: {msg}); many failures at a size mean the method cannot run there",
+            "{} simulated data sets failed and are left out of their size's numbers (first at {size} units: {msg}); many failures at a size mean the method cannot run there and that size's numbers are unreliable: leave it out of --sizes, or simplify the propensity model (fewer --squares, --interact or --terms)",
             plan.failures.len()
         ));
     }
     if plan.interrupted {
-        est.warn("interrupted: the numbers use the simulated data sets that finished".to_string());
+        est.warn("interrupted: the numbers use the simulated data sets that finished, so they are rougher than a full plan's: rerun to the end for the full set".to_string());
     }
     est.assumptions = vec![
         "Outcomes follow a linear model of the covariates with normal noise, fitted on the untreated units: a stand-in for the real outcomes.".into(),
