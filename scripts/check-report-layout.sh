@@ -150,6 +150,8 @@ cat >"$work/measure.js" <<'JS'
     for (var i = 0; i < svgs.length; i++) {
       var s = svgs[i];
       if (s.parentElement && s.parentElement.closest('svg')) continue;
+      // a drawing the page hides at this width (the desktop copy on a phone) is not read
+      if (getComputedStyle(s).display === 'none') continue;
       out.svgs++;
       var rw = s.getBoundingClientRect().width, uw = 0;
       if (s.viewBox && s.viewBox.baseVal && s.viewBox.baseVal.width > 0) uw = s.viewBox.baseVal.width;
