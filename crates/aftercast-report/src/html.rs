@@ -360,7 +360,7 @@ figure h4{margin:0 0 2px;font-size:16px}
 figcaption{font-size:14px;color:var(--muted);margin:0 0 6px}
 figure svg{display:block;width:100%;height:auto}
 svg.chart text{font-family:"DejaVu Sans",Verdana,sans-serif}
-.figs{display:grid;grid-template-columns:repeat(auto-fit,minmax(min(100%,760px),1fr));gap:14px}
+.figs{display:grid;grid-template-columns:repeat(auto-fit,minmax(min(100%,440px),1fr));gap:14px}
 .figs figure{margin:0}
 .warnings{list-style:none;padding:0;margin:8px 0}
 .warnings li{background:#fbefe9;border-left:5px solid var(--brick);padding:8px 12px;margin:6px 0;border-radius:3px}
@@ -451,7 +451,9 @@ fn verdict_words(r: &AnalysisResult) -> String {
     }
     let hdi = numbers::interval_name(r.level);
     let mut s = numbers::lead_sentence(r);
-    for l in lines.iter().filter(|l| !l.judged && l.summary.estimate.is_finite()) {
+    // the lead sentence already gives the judged row and the one in the other scale
+    let led = if numbers::judged_line(r).percent { numbers::units_line(r).label } else { String::new() };
+    for l in lines.iter().filter(|l| !l.judged && !l.percent && l.label != led && l.summary.estimate.is_finite()) {
         let (p, i) = numbers::line_numbers(r, l);
         let _ = write!(s, " {}: {p} ({hdi} {i}).", numbers::effect_words(&l.label));
     }

@@ -321,7 +321,7 @@ impl Chart {
 }
 
 /// Axis limits that a few far outliers cannot stretch: the full range of the finite values,
-/// except that a side reaching more than half the central 98%'s span beyond it is cut to a
+/// except that a side reaching more than the central 98%'s span beyond it is cut to a
 /// tenth of that span past it. Returns (low, high, values outside); None without finite values.
 /// Fewer than 20 values are never cut.
 pub fn robust_extent(values: &[f64]) -> Option<(f64, f64, usize)> {
@@ -338,8 +338,8 @@ pub fn robust_extent(values: &[f64]) -> Option<(f64, f64, usize)> {
     let q = |p: f64| v[((n - 1) as f64 * p).round() as usize];
     let (a, b) = (q(0.01), q(0.99));
     let core = (b - a).max(f64::EPSILON * a.abs().max(b.abs()).max(1.0));
-    let lo2 = if a - lo > 0.5 * core { a - 0.1 * core } else { lo };
-    let hi2 = if hi - b > 0.5 * core { b + 0.1 * core } else { hi };
+    let lo2 = if a - lo > core { a - 0.1 * core } else { lo };
+    let hi2 = if hi - b > core { b + 0.1 * core } else { hi };
     let outside = v.iter().filter(|x| **x < lo2 || **x > hi2).count();
     Some((lo2, hi2, outside))
 }
