@@ -100,6 +100,9 @@ pub enum Per {
     AllTreated,
     /// Per recorded comparison (a history of method-versus-experiment comparisons).
     Comparison,
+    /// Per adopted unit and period (a rollout: the average over every unit-period after
+    /// adoption that the estimate covers); `units` counts those unit-periods.
+    UnitPeriod,
 }
 
 /// The scope of the numbers: what `average` is per, and how many treated units stand behind it.
@@ -125,6 +128,7 @@ impl Scope {
             (Per::Unit, _) => "per treated unit",
             (Per::AllTreated, _) => "all treated units",
             (Per::Comparison, _) => "per comparison",
+            (Per::UnitPeriod, _) => "per adopted unit and period",
         }
     }
 
@@ -135,6 +139,7 @@ impl Scope {
             (Per::Period, _) => "post-period total, per treated unit",
             (Per::Unit | Per::AllTreated, _) => "total over the treated units",
             (Per::Comparison, _) => "total over the comparisons",
+            (Per::UnitPeriod, _) => "total over the adopted unit-periods",
         }
     }
 }
@@ -231,6 +236,49 @@ pub struct Sections {
     pub estimates: Option<Vec<EstimateRow>>,
     /// A plan's power, minimum detectable effects and waits.
     pub planning: Option<Planning>,
+    /// The effect broken down by event time, wave, calendar period, segment or placebo date,
+    /// each row with draws aligned with the main draws.
+    pub breakdowns: Vec<BreakdownInput>,
+}
+
+/// One row of a breakdown before it is summarised.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PartInput {
+    /// What the row is (an event time "-2", a wave's start, a segment's value).
+    pub label: String,
+    /// Its position on a numeric axis (event time, shift), if it has one.
+    pub key: Option<f64>,
+    /// The estimator's point answer for the row.
+    pub point: f64,
+    /// Draws, the same resamples (by index) as the main draws; empty when the row has none.
+    pub draws: Vec<f64>,
+    /// Units behind the row.
+    pub units: usize,
+    /// A short note (e.g. "reference period", "too few units").
+    pub note: Option<String>,
+}
+
+/// Which joint question a breakdown answers from its draws.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum JointQuestion {
+    /// Are the rows of `rows` all zero? (e.g. the leads before adoption)
+    AllZero,
+    /// Are the rows all equal? (e.g. segment effects)
+    AllEqual,
+}
+
+/// A breakdown of the effect before it is summarised.
+#[derive(Debug, Clone, PartialEq)]
+pub struct BreakdownInput {
+    /// What the rows are by: `event-time`, `wave`, `calendar`, `segment`, `placebo-date`.
+    pub by: String,
+    /// A title in words.
+    pub title: String,
+    /// The rows.
+    pub rows: Vec<PartInput>,
+    /// A joint question over some rows (indices into `rows`), answered from the draws.
+    pub joint: Option<(JointQuestion, Vec<usize>)>,
 }
 
 /// What every estimator returns: one typed value from which every output is built.

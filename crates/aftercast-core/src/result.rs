@@ -520,9 +520,65 @@ pub struct AnalysisResult {
     /// `plan`: power, minimum detectable effects and waits.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub planning: Option<Planning>,
+    /// The effect by event time, wave, calendar period, segment or placebo date.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub breakdowns: Vec<Breakdown>,
     /// The assumptions the estimate rests on, in plain words.
     #[serde(default)]
     pub assumptions: Vec<String>,
+}
+
+/// One row of a breakdown: its label, position, units and summary.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct BreakdownRow {
+    /// What the row is (an event time, a wave's start, a segment's value).
+    pub label: String,
+    /// Its position on a numeric axis (event time, shift), if any.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub key: Option<f64>,
+    /// Units behind the row.
+    pub units: usize,
+    /// The summary of the row's draws (estimate = the method's point answer).
+    pub summary: Summary,
+    /// A short note.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub note: Option<String>,
+}
+
+/// The answer to a joint question over rows of a breakdown, from the draws: a Wald statistic
+/// with the draws' covariance, its chi-square p-value, and for `all-equal` the chance that the
+/// row with the highest point answer truly exceeds the one with the lowest.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct JointTest {
+    /// `all-zero` or `all-equal`.
+    pub question: crate::estimate::JointQuestion,
+    /// Labels of the rows tested.
+    pub rows: Vec<String>,
+    /// Wald statistic.
+    #[serde(deserialize_with = "nullable_f64")]
+    pub statistic: f64,
+    /// Degrees of freedom.
+    pub df: usize,
+    /// Chi-square tail probability of the statistic.
+    #[serde(deserialize_with = "nullable_f64")]
+    pub p_value: f64,
+    /// `all-equal`: the share of draws in which the highest row exceeds the lowest.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub prob_order: Option<f64>,
+}
+
+/// The effect broken down by one dimension.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Breakdown {
+    /// `event-time`, `wave`, `calendar`, `segment`, `placebo-date`.
+    pub by: String,
+    /// Title in words.
+    pub title: String,
+    /// Rows in order.
+    pub rows: Vec<BreakdownRow>,
+    /// The joint question answered from the draws, if any.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub test: Option<JointTest>,
 }
 
 /// The version string written into results.

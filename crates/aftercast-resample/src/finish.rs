@@ -8,10 +8,10 @@
 //! counterfactual path; for a unit-level estimand, the point effect.
 
 use crate::summary::{quantile_sorted, summarize, verdict};
-use aftercast_core::estimate::{Estimate, Figures, Inference, KeptDraws, Per, Point, TotalRule};
+use aftercast_core::estimate::{BreakdownInput, Estimate, Figures, Inference, KeptDraws, Per, Point, TotalRule};
 use aftercast_core::result::{
-    AnalysisResult, EffectBlock, EffectDraws, IntervalKind, Judged, JudgedOn, PathPoint, Rope, RopeUnits, Summary,
-    TOOL_VERSION, Verdict,
+    AnalysisResult, Breakdown, BreakdownRow, EffectBlock, EffectDraws, IntervalKind, Judged, JudgedOn, PathPoint, Rope,
+    RopeUnits, Summary, TOOL_VERSION, Verdict,
 };
 use aftercast_core::table::InputInfo;
 use aftercast_core::time::TimePoint;
@@ -222,6 +222,7 @@ pub fn finish<D: Serialize>(
         (EffectDraws::Scalar { effect, baseline }, Point::Scalar { effect: p, baseline: pb }) => {
             let units = match est.scope.per {
                 Per::Unit => Some(est.scope.units),
+                Per::UnitPeriod => Some(est.scope.units),
                 Per::Period | Per::AllTreated | Per::Comparison => None,
             };
             let (block, kept) = scalar_block(*p, *pb, effect, baseline.as_deref(), units, inf);
@@ -244,6 +245,7 @@ pub fn finish<D: Serialize>(
             return Err(FinishError::Diagnostics { verb: est.verb.clone(), method: est.method.clone(), source });
         }
     };
+    let breakdowns = est.sections.breakdowns.iter().map(|b| breakdown(b, inf)).collect();
     let mut seen = std::collections::HashSet::new();
     warnings.retain(|w| seen.insert(w.clone()));
     let s = est.sections;
@@ -272,9 +274,33 @@ pub fn finish<D: Serialize>(
         truth: s.truth,
         estimates: s.estimates,
         planning: s.planning,
+        breakdowns,
         assumptions: est.assumptions,
     };
     Ok(Finished { result, draws: kept, figures: est.figures })
+}
+
+/// Summarise one breakdown: each row's draws at the run's level (estimate = the row's point),
+/// and the joint question from the rows' draws.
+fn breakdown(b: &BreakdownInput, inf: &Inference) -> Breakdown {
+    let rows = b
+        .rows
+        .iter()
+        .map(|r| BreakdownRow {
+            label: r.label.clone(),
+            key: r.key,
+            units: r.units,
+            summary: summarize(&r.draws, inf.level, None).with_estimate(r.point),
+            note: r.note.clone(),
+        })
+        .collect();
+    let test = b.joint.as_ref().and_then(|(q, idx)| {
+        let labels: Vec<String> = idx.iter().map(|&i| b.rows[i].label.clone()).collect();
+        let points: Vec<f64> = idx.iter().map(|&i| b.rows[i].point).collect();
+        let draws: Vec<Vec<f64>> = idx.iter().map(|&i| b.rows[i].draws.clone()).collect();
+        crate::joint::wald(*q, &labels, &points, &draws)
+    });
+    Breakdown { by: b.by.clone(), title: b.title.clone(), rows, test }
 }
 
 /// The summary the verdict of a result was judged on (relative or average).

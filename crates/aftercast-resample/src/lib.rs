@@ -5,6 +5,7 @@
 pub mod bayes;
 pub mod blocks;
 pub mod finish;
+pub mod joint;
 pub mod rng;
 pub mod summary;
 

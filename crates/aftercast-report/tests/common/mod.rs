@@ -99,6 +99,7 @@ fn base(verb: &str, method: &str, effect: EffectBlock, verdict: Verdict, rope: R
         truth: None,
         estimates: None,
         planning: None,
+        breakdowns: vec![],
         assumptions: vec![],
     }
 }
