@@ -65,9 +65,12 @@ fn demo_writes_everything_and_covers_every_true_effect() {
                 &["posterior", "treated-vs-synthetic", "effect", "running-total", "weights"]
             }
             "synthetic" => &["posterior", "treated-vs-synthetic", "effect", "running-total", "placebo-gaps", "weights"],
+            "match" if a.result.breakdowns.iter().any(|b| b.by == "segment") => &["posterior", "balance", "segment"],
             "match" => &["posterior", "propensity", "balance"],
             "compare" => &["posterior", "versus-truth"],
             "plan" => &["posterior", "power", "mde"],
+            "rollout" if a.result.method == "sdid" => &["event-time", "posterior", "wave"],
+            "rollout" => &["event-time", "posterior", "wave", "placebo-date"],
             _ => &["posterior"],
         };
         for view in views {
@@ -98,6 +101,7 @@ fn demo_writes_everything_and_covers_every_true_effect() {
     issue_11_one_estimate_everywhere(&out, &doc, &terminal, &html, &truth);
     issue_15_the_plan_before_the_launch(&doc, &terminal, &html, &truth);
     issue_16_answers_first(&out, &doc, &html);
+    issue_17_rollout_in_waves(&doc, &terminal, &html);
     for needle in ["<html", "randomized", "aftercast run"] {
         assert!(html.contains(needle), "report.html lacks {needle}");
     }
@@ -105,6 +109,50 @@ fn demo_writes_everything_and_covers_every_true_effect() {
 
     let again = Command::new(env!("CARGO_BIN_EXE_aftercast")).args(["demo", "--out"]).arg(&out).output().expect("run");
     assert_eq!(again.status.code(), Some(2), "a non-empty --out must be refused without --force");
+}
+
+/// Issue 17: the price cut in three waves, by two cohort estimators and synthetic
+/// difference-in-differences per wave, and by region size: event-time, wave and fake-date
+/// breakdowns with their joint tests, the two-way decomposition, segments, and the same numbers
+/// in the terminal and the report.
+fn issue_17_rollout_in_waves(doc: &StudyDoc, terminal: &str, html: &str) {
+    let rollouts: Vec<_> = doc.analyses.iter().filter(|a| a.result.verb == "rollout").collect();
+    assert_eq!(rollouts.len(), 4, "the demo's rollout analyses");
+    for a in &rollouts {
+        let r = &a.result;
+        let by = |name: &str| r.breakdowns.iter().find(|b| b.by == name);
+        let ev = by("event-time").unwrap_or_else(|| panic!("{}: no event-time breakdown", a.name));
+        assert!(ev.rows.iter().any(|x| x.key == Some(0.0)), "{}: no effect at adoption", a.name);
+        let waves = by("wave").unwrap_or_else(|| panic!("{}: no wave breakdown", a.name));
+        assert_eq!(waves.rows.len(), 3, "{}", a.name);
+        assert!(waves.test.is_some(), "{}: no equality test of the waves", a.name);
+        if r.method != "sdid" {
+            assert!(ev.rows.iter().any(|x| x.key.is_some_and(|k| k < -1.0)), "{}: no leads", a.name);
+            assert!(ev.test.is_some(), "{}: no joint test of the leads", a.name);
+            assert!(by("placebo-date").is_some_and(|b| !b.rows.is_empty()), "{}: no fake dates", a.name);
+        }
+        // the two-way coefficient and what it averages, on every rollout
+        let d = &r.diagnostics["twfe_decomposition"];
+        let w: f64 = d["pairs"].as_array().expect("pairs").iter().map(|p| p["weight"].as_f64().unwrap_or(0.0)).sum();
+        assert!((w - 1.0).abs() < 1e-9, "{}: decomposition weights sum to {w}", a.name);
+        // the terminal shows the same judged interval as the JSON
+        let rel = r.effect.relative.expect("relative effect");
+        let text = format!("[{:+.2}%, {:+.2}%]", rel.hdi_lower * 100.0, rel.hdi_upper * 100.0);
+        assert!(terminal.contains(&text), "{}: terminal lacks {text}", a.name);
+        assert!(html.contains(&text), "{}: report lacks {text}", a.name);
+    }
+    let seg = rollouts.iter().find(|a| a.name == "price-waves-by-size").expect("by size");
+    let b = seg.result.breakdowns.iter().find(|b| b.by == "segment").expect("segment breakdown");
+    let labels: Vec<&str> = b.rows.iter().map(|x| x.label.as_str()).collect();
+    assert_eq!(labels, ["large", "small"]);
+    assert!(b.test.as_ref().is_some_and(|t| t.prob_order.is_some()));
+    for needle in
+        ["Effect by periods since adoption", "Effect by wave", "Effect by segment", "two-way fixed-effects regression"]
+    {
+        assert!(html.contains(needle), "report.html lacks {needle}");
+    }
+    let loyalty = doc.analyses.iter().find(|a| a.name == "loyalty-by-age").expect("loyalty by age band");
+    assert!(loyalty.result.breakdowns.iter().any(|b| b.by == "segment" && b.rows.len() >= 3));
 }
 
 /// Issue 15: the demo's plan of the app launch (the structural forecast's own set-up, placebo
@@ -184,16 +232,18 @@ fn issue_16_answers_first(out: &std::path::Path, doc: &StudyDoc, html: &str) {
         "What did the spring sale add to regional store revenue, net of the dip after?",
         "How much more do loyalty members spend because of the scheme?",
         "Once the novelty week has passed, did the Trail Planner invitation raise what customers order?",
+        "What did the footwear price cut do to weekly orders as it reached the regions in three waves, and does the effect grow?",
     ] {
         assert!(cards.contains(q), "no card for {q}");
     }
     assert!(cards.contains(" orders</span>") && cards.contains("+$"), "unit-labelled answers");
     assert_eq!(
         cards.matches("True effect (known for these invented data)").count(),
-        4,
+        5,
         "the truth beside each question's answer"
     );
     assert!(cards.contains("2 independent method families answer it (synthetic control, forecast)"));
+    assert!(cards.contains("2 independent method families answer it (difference in differences, synthetic control)"));
     assert!(!html.contains("<details>"), "no raw JSON in the appendix");
     let table = out.join("tables").join("trail-planner-windows.csv");
     let text = std::fs::read_to_string(&table).expect("the windows step's table");

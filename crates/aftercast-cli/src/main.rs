@@ -35,6 +35,8 @@ pub(crate) enum Verb {
     Forecast(verbs::forecast::Args),
     /// Synthetic control: a weighted mix of untouched units as the counterfactual of treated units.
     Synthetic(verbs::synthetic::Args),
+    /// A change adopted in waves: group-time effects, imputation, synthetic difference-in-differences per wave.
+    Rollout(verbs::rollout::Args),
     /// Observational estimates against a randomized experiment's answer; history of comparisons.
     Compare(verbs::compare::Args),
     /// How long to wait (or how many units to have) to see a change of a given size: placebo
@@ -54,6 +56,7 @@ fn threads_of(verb: &Verb) -> Option<u64> {
         Verb::Demo(a) => a.output.threads,
         Verb::Match(a) => a.common.threads,
         Verb::Synthetic(a) => a.common.threads,
+        Verb::Rollout(a) => a.common.threads,
         Verb::Compare(a) => a.common.threads,
         Verb::Plan(a) => verbs::plan::common(a).and_then(|c| c.threads),
     }
@@ -68,6 +71,7 @@ fn quiet_of(verb: &Verb) -> bool {
         Verb::Demo(a) => a.output.quiet,
         Verb::Match(a) => a.common.quiet,
         Verb::Synthetic(a) => a.common.quiet,
+        Verb::Rollout(a) => a.common.quiet,
         Verb::Compare(a) => a.common.quiet,
         Verb::Plan(a) => verbs::plan::quiet(a),
     }
@@ -81,6 +85,7 @@ pub(crate) fn analyze(verb: &Verb) -> Option<anyhow::Result<verbs::Outcome>> {
         Verb::Inspect(_) | Verb::Run(_) | Verb::Demo(_) => None,
         Verb::Match(a) => Some(verbs::match_::run(a).map(|o| o.labelled(&a.common))),
         Verb::Synthetic(a) => Some(verbs::synthetic::run(a).map(|o| o.labelled(&a.common))),
+        Verb::Rollout(a) => Some(verbs::rollout::run(a).map(|o| o.labelled(&a.common))),
         Verb::Compare(a) => Some(verbs::compare::run(a).map(|o| o.labelled(&a.common))),
         Verb::Plan(a) => Some(verbs::plan::run(a)),
     }
@@ -95,6 +100,7 @@ fn dispatch(verb: &Verb) -> anyhow::Result<()> {
         Verb::Demo(a) => verbs::demo::run(a),
         Verb::Match(a) => verbs::finish(&a.common, verbs::match_::run(a)?),
         Verb::Synthetic(a) => verbs::finish(&a.common, verbs::synthetic::run(a)?),
+        Verb::Rollout(a) => verbs::finish(&a.common, verbs::rollout::run(a)?),
         Verb::Compare(a) => verbs::finish(&a.common, verbs::compare::run(a)?),
         Verb::Plan(a) => verbs::plan::run_verb(a),
     }

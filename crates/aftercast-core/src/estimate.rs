@@ -279,6 +279,9 @@ pub struct BreakdownInput {
     pub rows: Vec<PartInput>,
     /// A joint question over some rows (indices into `rows`), answered from the draws.
     pub joint: Option<(JointQuestion, Vec<usize>)>,
+    /// Units resampled as clusters by the draws, when few enough to matter (the joint test then
+    /// uses an F reference with clusters − 1 denominator degrees of freedom).
+    pub clusters: Option<usize>,
 }
 
 /// What every estimator returns: one typed value from which every output is built.

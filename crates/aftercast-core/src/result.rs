@@ -559,7 +559,11 @@ pub struct JointTest {
     pub statistic: f64,
     /// Degrees of freedom.
     pub df: usize,
-    /// Chi-square tail probability of the statistic.
+    /// Denominator degrees of freedom when the draws resample few clusters (units): the
+    /// p-value is then the F(df, df_denominator) tail of statistic / df.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub df_denominator: Option<usize>,
+    /// Tail probability of the statistic (chi-square, or F with clusters).
     #[serde(deserialize_with = "nullable_f64")]
     pub p_value: f64,
     /// `all-equal`: the share of draws in which the highest row exceeds the lowest.

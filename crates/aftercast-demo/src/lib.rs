@@ -8,6 +8,7 @@
 //! Files written (all CSV with a header, dates ISO 8601, timestamps UTC):
 //! - `app_daily.csv`, `calendar.csv`: the app launch of 2026-03-02 ([`app`]).
 //! - `regions_weekly.csv`: the spring sale in 6 of 40 regions ([`regions`]).
+//! - `price_waves.csv`, `price_waves_starts.csv`: a price cut reaching the regions in three waves ([`waves`]).
 //! - `members.csv`: the loyalty scheme ([`customers`]).
 //! - `past_test/experiment.csv`, `past_test/pool.csv`: the randomized win-back test and a
 //!   non-experimental pool ([`customers`]).
@@ -27,6 +28,7 @@ pub mod events;
 pub mod readme;
 pub mod regions;
 pub mod util;
+pub mod waves;
 
 pub use error::{DemoError, DemoResult};
 
@@ -46,6 +48,8 @@ pub const STREAM_MEMBERS: u64 = 3;
 pub const STREAM_PAST_TEST: u64 = 4;
 /// Stream index of `events.csv` and `exposures.csv`.
 pub const STREAM_EVENTS: u64 = 5;
+/// Stream index of `price_waves.csv` and `price_waves_starts.csv`.
+pub const STREAM_WAVES: u64 = 6;
 
 /// One written file: its path relative to the output folder and its number of data rows.
 #[derive(Debug, Clone, Serialize)]
@@ -76,6 +80,9 @@ pub struct ScenarioTruth {
     /// The Trail Planner exposure measured through event windows (`events.csv`,
     /// `exposures.csv`).
     pub trail_planner: events::ExposureTruth,
+    /// The footwear price cut reaching the regions in three waves (`price_waves.csv`,
+    /// `price_waves_starts.csv`).
+    pub price_waves: waves::PriceWavesTruth,
 }
 
 /// Writes every demo file into `dir` (created if missing; existing demo files are replaced)
@@ -113,6 +120,10 @@ pub fn write_scenario(dir: &Path) -> DemoResult<ScenarioTruth> {
     files.push(util::write_file(dir, "events.csv", &ev.events_csv, ev.event_rows)?);
     files.push(util::write_file(dir, "exposures.csv", &ev.exposures_csv, ev.exposure_rows)?);
 
+    let pw = waves::generate(DEMO_SEED, STREAM_WAVES)?;
+    files.push(util::write_file(dir, "price_waves.csv", &pw.csv, pw.rows)?);
+    files.push(util::write_file(dir, "price_waves_starts.csv", &pw.starts_csv, pw.start_rows)?);
+
     let truth = ScenarioTruth {
         seed: DEMO_SEED,
         files,
@@ -121,6 +132,7 @@ pub fn write_scenario(dir: &Path) -> DemoResult<ScenarioTruth> {
         loyalty: members.truth,
         past_test: past.truth,
         trail_planner: ev.truth,
+        price_waves: pw.truth,
     };
     let text = readme::render(&truth);
     util::write_file(dir, "README.md", &text, text.lines().count())?;

@@ -2,7 +2,7 @@
 //! states are always the ones in the files.
 
 use crate::ScenarioTruth;
-use crate::{DEMO_SEED, STREAM_APP, STREAM_EVENTS, STREAM_MEMBERS, STREAM_PAST_TEST, STREAM_REGIONS};
+use crate::{DEMO_SEED, STREAM_APP, STREAM_EVENTS, STREAM_MEMBERS, STREAM_PAST_TEST, STREAM_REGIONS, STREAM_WAVES};
 
 fn money(x: f64) -> String {
     let neg = x < 0.0;
@@ -68,7 +68,7 @@ pub fn render(t: &ScenarioTruth) -> String {
         "(Xoshiro256++): index {STREAM_APP} `app_daily.csv` (and `calendar.csv`, which uses no randomness),"
     ));
     line(&format!(
-        "{STREAM_REGIONS} `regions_weekly.csv`, {STREAM_MEMBERS} `members.csv`, {STREAM_PAST_TEST} `past_test/`, {STREAM_EVENTS} `events.csv` and `exposures.csv`."
+        "{STREAM_REGIONS} `regions_weekly.csv`, {STREAM_MEMBERS} `members.csv`, {STREAM_PAST_TEST} `past_test/`, {STREAM_EVENTS} `events.csv` and `exposures.csv`, {STREAM_WAVES} `price_waves.csv` and `price_waves_starts.csv`."
     ));
     line("Distributions are those of `rand_distr` 0.6. Amounts are written in whole cents, the");
     line("weather index with one decimal, timestamps in UTC to the second.");
@@ -87,6 +87,8 @@ pub fn render(t: &ScenarioTruth) -> String {
             "past_test/pool.csv" => "customers outside that test",
             "events.csv" => "per-customer app event log",
             "exposures.csv" => "customers exposed to the Trail Planner invitation",
+            "price_waves.csv" => "weekly footwear orders of 40 regions, a price cut in three waves",
+            "price_waves_starts.csv" => "each region's first week at the new price",
             _ => "",
         };
         line(&format!("| `{}` | {} | {} |", f.path, f.rows, what));
@@ -369,5 +371,55 @@ pub fn render(t: &ScenarioTruth) -> String {
         money(e.control_mean)
     ));
     line(&format!("is {}.", money(e.raw_difference)));
+    line("");
+
+    let w = &t.price_waves;
+    line("## 6. The footwear price cut in waves (`price_waves.csv`, `price_waves_starts.csv`)");
+    line("");
+    line("Fernhill lowered its trail-footwear prices region by region, in three waves of ten regions;");
+    line("ten regions kept the old price to the end of the data. Question: what did the lower price do");
+    line("to weekly footwear orders, and does the effect grow as customers learn of it?");
+    line("");
+    line(&format!(
+        "Columns of `price_waves.csv`, one row per region and week (Mondays from {} to {}):",
+        w.first_week, w.last_week
+    ));
+    line("- `region`, `week`; `orders`: footwear orders of the week (whole orders).");
+    line("- `store_count`: stores in the region; `size_band`: `large` (at least the median store");
+    line("  count) or `small`.");
+    line("");
+    line("`price_waves_starts.csv` (`region,start`) gives each region's first week at the new price;");
+    line("the start is empty for a region that kept the old price.");
+    line("");
+    line("How it is made: orders = 55 per store (a region factor with sd 15%) + a yearly outdoor season");
+    line("and a national demand factor shared by every region (in orders) + the region's own AR(1)");
+    line("noise. The shared parts are the same number of orders in every region, so the untreated");
+    line("paths of the waves are parallel; the waves were drawn at random.");
+    line("");
+    line("**True effect.** From its first week at the new price, a region's orders rise by its base");
+    line("times `m (0.02 + 0.06 (1 - exp(-k / 10)))` in week `k` since adoption (k = 0 at adoption),");
+    line("with `m` 1.0, 1.15 and 1.3 in waves 1, 2 and 3: about 2% at first, growing towards 8%.");
+    line("");
+    line("| wave | first week | regions | mean effect per region-week |");
+    line("| --- | --- | --- | --- |");
+    for (j, wave) in w.waves.iter().enumerate() {
+        line(&format!(
+            "| {} | {} | {} | {:+.2} orders |",
+            j + 1,
+            wave.start,
+            wave.regions.join(", "),
+            wave.average_effect
+        ));
+    }
+    line("");
+    line(&format!(
+        "Over all {} adopted region-weeks the mean effect is **{:+.3} orders** per region-week",
+        w.adopted_region_weeks, w.sample_att
+    ));
+    line(&format!(
+        "(summed effect over summed counterfactual: {:+.2}%). Regions never at the new price: {}.",
+        100.0 * w.relative_effect,
+        w.never.join(", ")
+    ));
     s
 }

@@ -211,6 +211,7 @@ fn breakdowns(data: &Rollout, spec: &Spec, reps: &Replicates) -> Vec<BreakdownIn
         .map(|(i, _)| i)
         .collect();
     let mut out = vec![BreakdownInput {
+        clusters: Some(data.n_units()),
         by: "event-time".into(),
         title: "Effect by periods since adoption".into(),
         joint: (!leads.is_empty()).then_some((JointQuestion::AllZero, leads)),
@@ -221,6 +222,7 @@ fn breakdowns(data: &Rollout, spec: &Spec, reps: &Replicates) -> Vec<BreakdownIn
     if !wv.is_empty() {
         let all: Vec<usize> = (0..wv.len()).collect();
         out.push(BreakdownInput {
+            clusters: Some(data.n_units()),
             by: "wave".into(),
             title: "Effect by wave (first adopted period)".into(),
             joint: (wv.len() >= 2).then_some((JointQuestion::AllEqual, all)),
@@ -231,6 +233,7 @@ fn breakdowns(data: &Rollout, spec: &Spec, reps: &Replicates) -> Vec<BreakdownIn
     let cal = rows(reps, |f| &f.calendar, |t| data.times[t].to_string(), |t| Some(t as f64), adopted_by, |_| true);
     if !cal.is_empty() {
         out.push(BreakdownInput {
+            clusters: Some(data.n_units()),
             by: "calendar".into(),
             title: "Effect by calendar period".into(),
             joint: None,
@@ -277,6 +280,7 @@ fn placebo_dates(data: &Rollout, spec: &Spec, inf: &Inference) -> (Option<Breakd
         }
     }
     let b = (!rows_out.is_empty()).then(|| BreakdownInput {
+        clusters: Some(data.n_units()),
         by: "placebo-date".into(),
         title: "Fake adoption dates before the real rollout (should be near zero)".into(),
         joint: Some((JointQuestion::AllZero, (0..rows_out.len()).collect())),
@@ -369,7 +373,7 @@ fn assemble(data: &Rollout, spec: &Spec, inf: &Inference, parts: Parts) -> DidRe
         let labels: Vec<String> = idx.iter().map(|&i| b.rows[i].label.clone()).collect();
         let points: Vec<f64> = idx.iter().map(|&i| b.rows[i].point).collect();
         let draws: Vec<Vec<f64>> = idx.iter().map(|&i| b.rows[i].draws.clone()).collect();
-        let Some(t) = aftercast_resample::joint::wald(*q, &labels, &points, &draws) else { continue };
+        let Some(t) = aftercast_resample::joint::wald(*q, &labels, &points, &draws, b.clusters) else { continue };
         if t.p_value < 0.05 {
             match b.by.as_str() {
                 "event-time" => warnings.push(format!(
@@ -518,6 +522,7 @@ pub fn estimate_by(
         .collect();
     let all: Vec<usize> = (0..rows.len()).collect();
     let seg = BreakdownInput {
+        clusters: Some(data.n_units()),
         by: "segment".into(),
         title: "Effect by segment (each fitted on its own units)".into(),
         joint: (rows.len() >= 2).then_some((JointQuestion::AllEqual, all)),

@@ -151,3 +151,32 @@ fn segment_intervals_cover_their_truths_and_pool_to_the_overall() {
     }
     assert!(differ >= 90, "difference found in {differ} of 100");
 }
+
+/// Fake adoption dates where nothing happened: the joint test of the placebo estimates should
+/// reject at about its 5% level on panels where the truth is parallel (binomial: at most 12 of
+/// 100 at a true 5% rate with probability above 0.99). The same for the leads before adoption.
+#[test]
+fn placebo_dates_and_leads_reject_at_about_the_nominal_rate() {
+    let inf = Inference { draws: 300, ..Inference::default() };
+    for method in [Method::GroupTime, Method::Imputation] {
+        let spec = Spec { method, ..Spec::default() };
+        let (mut placebo, mut leads, mut runs) = (0, 0, 0);
+        for seed in 0..100 {
+            let (data, _) = panel(20_000 + seed);
+            let f = finish(estimate(&data, &spec, &inf).unwrap(), &inf, vec![]).unwrap();
+            let p = |by: &str| {
+                f.result.breakdowns.iter().find(|b| b.by == by).and_then(|b| b.test.as_ref()).map(|t| t.p_value)
+            };
+            runs += 1;
+            if p("placebo-date").is_some_and(|p| p < 0.05) {
+                placebo += 1;
+            }
+            if p("event-time").is_some_and(|p| p < 0.05) {
+                leads += 1;
+            }
+        }
+        eprintln!("{method:?}: placebo-date rejections {placebo}/{runs}, lead rejections {leads}/{runs}");
+        assert!(placebo <= 12, "{method:?}: fake dates rejected in {placebo} of {runs}");
+        assert!(leads <= 12, "{method:?}: leads rejected in {leads} of {runs}");
+    }
+}

@@ -100,6 +100,8 @@ pub fn family(r: &AnalysisResult) -> &'static str {
         "synthetic" => "synthetic control",
         "match" => "propensity score",
         "compare" => "experiment comparison",
+        "rollout" if r.method == "sdid" => "synthetic control",
+        "rollout" => "difference in differences",
         "plan" => "plan",
         _ => "other",
     }
@@ -210,7 +212,7 @@ impl Triangulation {
         match self.families.len() {
             0 => String::new(),
             1 => format!(
-                "All {} methods are of one family ({}): they share its assumptions, so their agreement is not an independent check; answer the question with a second family (forecast, synthetic control or propensity score) as well.",
+                "All {} methods are of one family ({}): they share its assumptions, so their agreement is not an independent check; answer the question with a second family (forecast, synthetic control, propensity score or difference in differences) as well.",
                 self.rows.len(),
                 self.families[0]
             ),
@@ -533,6 +535,23 @@ pub fn fragility(r: &AnalysisResult) -> Vec<String> {
             if p < 0.001 { "< 0.001".to_string() } else { format!("= {p:.3}") }
         ));
     }
+    for b in &r.breakdowns {
+        let Some(t) = b.test.as_ref().filter(|t| t.p_value < 0.05) else { continue };
+        match b.by.as_str() {
+            "event-time" => f.push(format!(
+                "Trends differ before adoption: the periods before adoption are jointly away from zero (p = {:.3}); parallel trends is in doubt.",
+                t.p_value
+            )),
+            "placebo-date" => f.push(format!(
+                "Fake adoption dates show effects (p = {:.3}): the comparison may drift even where nothing happened (one such check in twenty fires by chance alone; see the fake-date chart).",
+                t.p_value
+            )),
+            _ => {}
+        }
+    }
+    if r.verb == "rollout" && r.method == "twfe" {
+        f.push("Two-way fixed-effects baseline: biased when effects differ by wave or grow over time; read the group-time or imputation answer.".into());
+    }
     if let Some(b) = &r.balance {
         let bad: Vec<&str> = b.iter().filter(|x| x.smd_after.abs() > 0.1).map(|x| x.covariate.as_str()).collect();
         if !bad.is_empty() {
@@ -797,6 +816,24 @@ fn verb_tables(out: &mut String, r: &AnalysisResult) {
     }
     if let Some(t) = crate::comparison_table(r) {
         table_html(out, &t);
+    }
+    for t in crate::breakdown_tables(r, usize::MAX, true) {
+        table_html(out, &t);
+    }
+    if let Some(c) = diag_f64(r, &["twfe_decomposition", "coefficient"]) {
+        let adopted = diag_f64(r, &["twfe_decomposition", "weight_on_adopted_comparisons"]).unwrap_or(0.0);
+        let neg = diag_f64(r, &["twfe_decomposition", "negative_cells"]).unwrap_or(0.0);
+        let _ = writeln!(
+            out,
+            "<p>The familiar two-way fixed-effects regression on the same panel gives {}. {:.0}% of its weight comes from comparing later waves with waves that had already adopted{}; when effects grow with time since adoption, those comparisons pull it away from the effect on the adopters.</p>",
+            escape(&numbers::with_unit(&numbers::signed(c, numbers::decimals_for(&[c])), r.outcome_unit.as_deref())),
+            adopted * 100.0,
+            if neg > 0.0 {
+                format!(", and {neg:.0} adopted wave-periods get a negative weight")
+            } else {
+                String::new()
+            }
+        );
     }
 }
 

@@ -178,6 +178,83 @@ pub fn effect_table(r: &AnalysisResult) -> Table {
     }
 }
 
+/// The sentence of a breakdown's joint test, if it has one.
+pub fn joint_sentence(b: &aftercast_core::result::Breakdown) -> Option<String> {
+    let t = b.test.as_ref()?;
+    let p = if t.p_value < 0.001 { "p < 0.001".to_string() } else { format!("p = {:.3}", t.p_value) };
+    let reference = match t.df_denominator {
+        Some(d) => format!("Wald, F({}, {d})", t.df),
+        None => format!("Wald, {} df", t.df),
+    };
+    Some(match (t.question, b.by.as_str()) {
+        (aftercast_core::estimate::JointQuestion::AllZero, "event-time") => format!(
+            "Periods before adoption tested together against zero: {p} ({reference}). A small p says adopters and comparison units already drifted apart before adoption."
+        ),
+        (aftercast_core::estimate::JointQuestion::AllZero, _) => format!(
+            "Tested together against zero: {p} ({reference}). A small p says effects appear where nothing happened."
+        ),
+        (aftercast_core::estimate::JointQuestion::AllEqual, _) => {
+            let hi = b.rows.iter().max_by(|a, b| a.summary.estimate.total_cmp(&b.summary.estimate));
+            let lo = b.rows.iter().min_by(|a, b| a.summary.estimate.total_cmp(&b.summary.estimate));
+            let order = match (hi, lo, t.prob_order) {
+                (Some(h), Some(l), Some(q)) => {
+                    format!(" Chance that '{}' truly gains more than '{}': {:.0}%.", h.label, l.label, q * 100.0)
+                }
+                _ => String::new(),
+            };
+            format!("Equal effects tested: {p} ({reference}); a small p says the effects differ.{order}")
+        }
+    })
+}
+
+/// The breakdowns of a result as tables (event time, wave, calendar period, segment, fake
+/// adoption dates), each with its joint test under it. `max_rows` caps long tables (the rest
+/// is counted in the note); `calendar` includes the calendar-period table.
+pub fn breakdown_tables(r: &AnalysisResult, max_rows: usize, calendar: bool) -> Vec<Table> {
+    let unit = r.outcome_unit.as_deref();
+    r.breakdowns
+        .iter()
+        .filter(|b| calendar || b.by != "calendar")
+        .map(|b| {
+            let first = match b.by.as_str() {
+                "event-time" => "periods since adoption",
+                "wave" => "wave (first adopted period)",
+                "calendar" => "period",
+                "segment" => "segment",
+                _ => "",
+            };
+            let shown: Vec<&aftercast_core::result::BreakdownRow> = if b.rows.len() > max_rows {
+                // keep every row before adoption and the first periods after it
+                b.rows.iter().take(max_rows).collect()
+            } else {
+                b.rows.iter().collect()
+            };
+            let all: Vec<f64> =
+                shown.iter().flat_map(|x| [x.summary.estimate, x.summary.hdi_lower, x.summary.hdi_upper]).collect();
+            let d = numbers::decimals_for(&all);
+            let rows = shown
+                .iter()
+                .map(|x| {
+                    let (p, i) = numbers::summary_numbers_at(&x.summary, d, unit);
+                    let i = if x.note.as_deref() == Some("reference period") { "reference".into() } else { i };
+                    vec![x.label.clone(), p, i, x.units.to_string()]
+                })
+                .collect();
+            let mut note = joint_sentence(b);
+            if b.rows.len() > shown.len() {
+                let more = format!("{} more rows in result.json and the report.", b.rows.len() - shown.len());
+                note = Some(note.map_or(more.clone(), |n| format!("{n} {more}")));
+            }
+            Table {
+                title: b.title.clone(),
+                headers: vec![first.into(), "estimate".into(), numbers::interval_name(r.level), "units".into()],
+                rows,
+                note,
+            }
+        })
+        .collect()
+}
+
 /// The terminal summary: one sentence with the answer, then a compact table, the verb's own
 /// tables, warnings, assumptions and the caution. `compare` leads with its comparison table and
 /// `backtest` with its planning tables instead of a verdict about placebo effects.
@@ -212,6 +289,9 @@ pub fn terminal_summary(r: &AnalysisResult, headline: &str, tables: &[Table]) ->
             ));
         }
         _ => {}
+    }
+    for t in breakdown_tables(r, 16, false) {
+        out.push(t.to_text("  "));
     }
     for t in tables {
         out.push(t.to_text("  "));

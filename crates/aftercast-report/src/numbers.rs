@@ -144,7 +144,11 @@ pub fn summary_numbers(s: &Summary, pct: bool, unit: Option<&str>) -> (String, S
     if pct || unit.is_none() {
         return point_and_interval(s, pct);
     }
-    let d = decimals_for(&[s.estimate, s.hdi_lower, s.hdi_upper]);
+    summary_numbers_at(s, decimals_for(&[s.estimate, s.hdi_lower, s.hdi_upper]), unit)
+}
+
+/// [`summary_numbers`] in outcome units with given decimals (rows of one table share them).
+pub fn summary_numbers_at(s: &Summary, d: usize, unit: Option<&str>) -> (String, String) {
     let f = |v: f64| with_unit(&signed(v, d), unit);
     match unit {
         // a word is said once, after the interval: [+68, +135] orders

@@ -298,7 +298,7 @@ fn breakdown(b: &BreakdownInput, inf: &Inference) -> Breakdown {
         let labels: Vec<String> = idx.iter().map(|&i| b.rows[i].label.clone()).collect();
         let points: Vec<f64> = idx.iter().map(|&i| b.rows[i].point).collect();
         let draws: Vec<Vec<f64>> = idx.iter().map(|&i| b.rows[i].draws.clone()).collect();
-        crate::joint::wald(*q, &labels, &points, &draws)
+        crate::joint::wald(*q, &labels, &points, &draws, b.clusters)
     });
     Breakdown { by: b.by.clone(), title: b.title.clone(), rows, test }
 }

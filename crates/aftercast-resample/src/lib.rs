@@ -7,6 +7,7 @@ pub mod blocks;
 pub mod finish;
 pub mod joint;
 pub mod rng;
+pub mod segments;
 pub mod summary;
 
 pub use finish::{FinishError, Finished, finish, judge, scalar_block};

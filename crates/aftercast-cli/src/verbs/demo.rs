@@ -30,7 +30,7 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
     let _ = writeln!(s, "title = \"Fernhill Outfitters: what did this spring's changes do?\"");
     let _ = writeln!(
         s,
-        "summary = \"Three changes without a holdout: an app feature launched to everyone on {}, a spring sale in {} of 40 regions, and a loyalty scheme customers joined by choice. A past randomized test checks how far the observational methods land from an experiment's answer.\"",
+        "summary = \"Changes without a holdout: an app feature launched to everyone on {}, a spring sale in {} of 40 regions, a loyalty scheme customers joined by choice, and a footwear price cut that reached the regions in three waves. A past randomized test checks how far the observational methods land from an experiment's answer.\"",
         t.app_launch.launch_date,
         t.regional_sale.sale_regions.len()
     );
@@ -46,6 +46,12 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
         let _ = writeln!(
             s,
             "trail-planner = \"Once the novelty week has passed, did the Trail Planner invitation raise what customers order?\""
+        );
+    }
+    if has_verb("rollout") {
+        let _ = writeln!(
+            s,
+            "price-waves = \"What did the footwear price cut do to weekly orders as it reached the regions in three waves, and does the effect grow?\""
         );
     }
     let _ = writeln!(s);
@@ -151,6 +157,20 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
                 writeln!(s, "covariates = \"spend_pre,visits_pre,tenure_months\"\ncategorical = \"region,age_band\"");
             let _ = writeln!(s, "method = \"{method}\"\nestimand = \"att\"\nrope = \"1\"\noutcome_unit = \"$\"\n");
         }
+        // for whom: the same weighting fitted within each age band, pooled by treated members
+        let _ = writeln!(s, "[[analysis]]\nname = \"loyalty-by-age\"\nquestion = \"loyalty\"\nverb = \"match\"");
+        let _ =
+            writeln!(s, "describe = \"90-day spend of scheme members by age band (aipw within each band, pooled)\"");
+        let _ = writeln!(s, "truth = {}\ntruth_of = \"average\"", t.loyalty.sample_att);
+        let _ = writeln!(
+            s,
+            "[analysis.flags]\ndata = \"data/members.csv\"\ntreatment = \"joined\"\noutcome = \"spend_90d\""
+        );
+        let _ = writeln!(
+            s,
+            "covariates = \"spend_pre,visits_pre,tenure_months\"\ncategorical = \"region\"\nby = \"age_band\""
+        );
+        let _ = writeln!(s, "method = \"aipw\"\nestimand = \"att\"\nrope = \"1\"\noutcome_unit = \"$\"\n");
     }
     if has_verb("windows") && has_verb("match") {
         // the event log to a per-customer table (56 days before as covariates, the outcome from
@@ -190,6 +210,42 @@ pub fn demo_study(t: &ScenarioTruth) -> String {
             s,
             "covariates = \"pre_order_sum,pre_order_count,pre_visit_count\"\nmethod = \"aipw\"\nestimand = \"att\"\nrope = \"1\"\noutcome_unit = \"$\"\n"
         );
+    }
+    if has_verb("rollout") {
+        // the price cut in three waves: two cohort estimators and synthetic difference-in-differences
+        // per wave (a second family), and the group-time effects by region size
+        let w = &t.price_waves;
+        for (name, method, extra) in [
+            ("price-waves-group-time", "group-time", ""),
+            ("price-waves-imputation", "imputation", ""),
+            ("price-waves-sdid", "sdid", ""),
+            ("price-waves-by-size", "group-time", "by = \"size_band\"\n"),
+        ] {
+            let _ = writeln!(s, "[[analysis]]\nname = {}\nquestion = \"price-waves\"\nverb = \"rollout\"", q(name));
+            let what = match method {
+                "sdid" => {
+                    "synthetic difference-in-differences per wave against the ten regions that kept the old price"
+                }
+                "imputation" => {
+                    "the imputation estimator (region and week effects from the weeks before each region's price cut)"
+                }
+                _ if extra.is_empty() => "group-time effects against regions not yet at the new price",
+                _ => "group-time effects within large and within small regions, pooled",
+            };
+            let _ = writeln!(
+                s,
+                "describe = \"Weekly footwear orders after the price cut reached the regions in three waves: {what}\""
+            );
+            let _ = writeln!(s, "truth = {}\ntruth_of = \"average\"", w.sample_att);
+            let _ = writeln!(
+                s,
+                "[analysis.flags]\ndata = \"data/price_waves.csv\"\nunit = \"region\"\ntime = \"week\"\noutcome = \"orders\""
+            );
+            let _ = writeln!(
+                s,
+                "starts = \"data/price_waves_starts.csv\"\nmethod = \"{method}\"\n{extra}outcome_unit = \"orders\"\n"
+            );
+        }
     }
     if has_verb("compare") {
         let _ = writeln!(s, "[[analysis]]\nname = \"past-test-compare\"\nverb = \"compare\"");

@@ -78,10 +78,91 @@ pub struct Args {
     /// On separation of the groups: `penalise` (warn, refit with penalty 1) or `error`.
     #[arg(long, default_value = "penalise")]
     pub separation: SeparationPolicy,
+    /// Segment column (any text): one estimate per segment, each with its own propensity and
+    /// outcome models, and the overall estimate pooled from them.
+    #[arg(long)]
+    pub by: Option<String>,
     #[command(flatten)]
     pub data_options: DataOptions,
     #[command(flatten)]
     pub common: Common,
+}
+
+/// The segment of each unit of a table, read from the same file by source line.
+///
+/// # Errors
+/// Bad input for a missing column or an empty cell (located).
+pub fn unit_segments(path: &std::path::Path, units: &UnitTable, by: &str) -> anyhow::Result<Vec<String>> {
+    let table = crate::common::read_table(path, &aftercast_core::Projection::none().text(by))?;
+    let col = table.column(by).map_err(bad_input)?;
+    let mut at_line = std::collections::HashMap::new();
+    for r in 0..table.row_count() {
+        let v = table.text(r, col).trim().to_string();
+        if v.is_empty() {
+            return Err(bad_input(aftercast_core::DataError::MissingValue { at: table.at(r, col) }));
+        }
+        at_line.insert(table.line(r), v);
+    }
+    Ok(units.lines.iter().map(|l| at_line.get(l).cloned().unwrap_or_default()).collect())
+}
+
+/// Fit every segment on its own units (own propensity and outcome models: the segment is
+/// interacted with every term, which is what a separate fit is) with its own random stream,
+/// and pool them weighted by the units the estimand averages over.
+fn run_by(a: &Args, units: &UnitTable, params: MatchParams, by: &str) -> anyhow::Result<crate::verbs::Outcome> {
+    let seg = unit_segments(&a.data, units, by)?;
+    let mut names: Vec<String> = seg.clone();
+    names.sort();
+    names.dedup();
+    let inf = params.inference;
+    let mut parts = Vec::new();
+    let mut left_out = Vec::new();
+    for name in &names {
+        let rows: Vec<usize> = (0..units.len()).filter(|&i| seg[i] == *name).collect();
+        let part = units.take(&rows);
+        let treated = part.n_treated();
+        let controls = part.len() - treated;
+        if treated < 2 || controls < 2 {
+            left_out.push((
+                name.clone(),
+                format!("{treated} treated and {controls} control units; at least 2 of each are needed"),
+            ));
+            continue;
+        }
+        let p = params.clone().seed(aftercast_resample::rng::child_seed(inf.seed, &format!("segment-{name}")));
+        match aftercast_match::run(&part, &a.outcome, p) {
+            Ok((fitted, est)) => {
+                let used = fitted
+                    .counts
+                    .treated
+                    .saturating_sub(fitted.counts.treated_unmatched + fitted.counts.treated_trimmed);
+                let weight = match a.estimand {
+                    aftercast_match::Estimand::Ate => part.len(),
+                    aftercast_match::Estimand::Att => used,
+                };
+                parts.push(aftercast_resample::segments::Segment {
+                    name: name.clone(),
+                    estimate: est,
+                    weight: weight as f64,
+                    units: used,
+                });
+            }
+            Err(e) => left_out.push((name.clone(), e.to_string())),
+        }
+    }
+    let weighting = match a.estimand {
+        aftercast_match::Estimand::Ate => "weighted by the segment's units",
+        aftercast_match::Estimand::Att => "weighted by the segment's treated units kept",
+    };
+    let est = aftercast_resample::segments::pool(by, weighting, parts, left_out).map_err(bad_input)?;
+    let headline = format!(
+        "effect of '{}' on '{}' by {} within each segment of '{by}' ({} segments)",
+        a.treatment,
+        a.outcome,
+        a.method.name(),
+        names.len()
+    );
+    crate::verbs::Outcome::new(est, &inf, vec![units.input.clone()], headline)
 }
 
 /// Read the unit table and check the flags of a matching analysis: the table and the
@@ -132,6 +213,9 @@ pub fn setup(a: &Args) -> anyhow::Result<(UnitTable, MatchParams)> {
 /// `--separation error`, no overlap, no match within the caliper; internal failures otherwise.
 pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     let (units, params) = setup(a)?;
+    if let Some(by) = &a.by {
+        return run_by(a, &units, params, by);
+    }
     let method = a.method;
     let inf = params.inference;
     let (fitted, est) = aftercast_match::run(&units, &a.outcome, params).map_err(bad_input)?;

@@ -7,6 +7,7 @@ pub mod inspect;
 pub mod match_;
 pub mod plan;
 pub mod plan_panel;
+pub mod rollout;
 pub mod run;
 pub mod synthetic;
 pub mod windows;

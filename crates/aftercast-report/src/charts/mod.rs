@@ -4,7 +4,8 @@
 //! - constructors that take plain data (slices of times, values, bands) and return a [`Chart`]
 //!   ([`counterfactual_chart`], [`effect_chart`], [`running_total_chart`], [`placebo_gap_chart`],
 //!   [`weights_chart`], [`propensity_chart`], [`balance_chart`], [`rosenbaum_chart`],
-//!   [`posterior_chart`], [`estimates_chart`], [`power_chart`], [`mde_chart`]);
+//!   [`posterior_chart`], [`estimates_chart`], [`power_chart`], [`mde_chart`],
+//!   [`event_time_chart`], [`breakdown_chart`]);
 //! - [`charts_for`] / [`write_all`], which pick what to draw from an [`AnalysisResult`](aftercast_core::result::AnalysisResult) plus the
 //!   kept draws and typed figure data (`aftercast_core::estimate::Figures`).
 //!
@@ -125,6 +126,8 @@ pub(crate) struct LinePlot {
     pub refs: Vec<RefLine>,
     /// The change date: a vertical marker and a tint over the period after it.
     pub change: Option<f64>,
+    /// The marker's label.
+    pub change_label: &'static str,
     pub x_label: String,
     pub y_label: String,
     pub y_format: ValueFormat,
@@ -419,6 +422,7 @@ pub fn counterfactual_chart(
         ],
         refs: vec![],
         change,
+        change_label: "change",
         x_label: String::new(),
         y_label: String::new(),
         y_format: ValueFormat::Number,
@@ -503,6 +507,7 @@ pub fn effect_chart(
         lines,
         refs: vec![RefLine { value: 0.0, label: "no effect".into(), color: theme::INK }],
         change,
+        change_label: "change",
         x_label: String::new(),
         y_label: "observed − counterfactual".into(),
         y_format: ValueFormat::Number,
@@ -516,6 +521,60 @@ pub fn effect_chart(
         (&band_label, theme::TEAL, Swatch::Band),
         ("fit error before the change", theme::MUTED, Swatch::Line),
     ])
+}
+
+/// Effects by periods since adoption: before adoption in grey (they should sit on zero; a
+/// reference period is drawn hollow at zero), from adoption on in teal, each with its band; the
+/// tint starts at adoption.
+pub fn event_time_chart(name: &str, k: &[f64], effect: (&[f64], &[f64], &[f64]), level: f64) -> Chart {
+    let (mid, lo, hi) = effect;
+    if k.is_empty() || finite_count(mid) == 0 {
+        return Chart::note(name, "Effect by periods since adoption", "No event-time effects to draw.");
+    }
+    let side = |post: bool, v: &[f64]| -> Vec<f64> {
+        k.iter().zip(v).map(|(x, y)| if (*x >= 0.0) == post { *y } else { f64::NAN }).collect()
+    };
+    let mut bands = Vec::new();
+    let mut lines = Vec::new();
+    for (post, color, width) in [(false, theme::MUTED, 1), (true, theme::TEAL, 2)] {
+        bands.push(Band { x: k.to_vec(), lo: side(post, lo), hi: side(post, hi), color, alpha: 0.18 });
+        lines.push(Line { x: k.to_vec(), y: side(post, mid), color, alpha: 1.0, width, dashed: false, points: true });
+    }
+    let body = Body::Lines(LinePlot {
+        xkind: XKind::Numbers,
+        bands,
+        lines,
+        refs: vec![RefLine { value: 0.0, label: String::new(), color: theme::INK }],
+        change: Some(-0.5),
+        change_label: "adoption",
+        x_label: "periods since adoption".into(),
+        y_label: "effect".into(),
+        y_format: ValueFormat::Number,
+        x_format: ValueFormat::Number,
+        y_range: None,
+    });
+    let band_label = format!("{:.0}% band", level * 100.0);
+    Chart::new(
+        name,
+        "Effect by periods since adoption",
+        "Each point averages the waves at that many periods since they adopted; before adoption the points test the comparison (they should sit on zero).",
+        body,
+    )
+    .legend(&[
+        ("after adoption", theme::TEAL, Swatch::Dot),
+        ("before adoption", theme::MUTED, Swatch::Dot),
+        (&band_label, theme::TEAL, Swatch::Band),
+    ])
+}
+
+/// Rows of a breakdown (waves, segments, fake dates) with their intervals against zero.
+pub fn breakdown_chart(name: &str, title: &str, caption: &str, rows: &[EstimateBar], quantity: &str) -> Chart {
+    let mut c = estimates_chart(name, rows, None, 0.9, quantity, ValueFormat::Number);
+    if !c.is_note() {
+        c.title = title.to_string();
+        c.caption = caption.to_string();
+    }
+    c
 }
 
 /// Running total of the effect over the post-period with its band.
@@ -539,6 +598,7 @@ pub fn running_total_chart(name: &str, x: &[f64], xkind: XKind, total: (&[f64], 
         }],
         refs: vec![RefLine { value: 0.0, label: "no effect".into(), color: theme::INK }],
         change: None,
+        change_label: "change",
         x_label: String::new(),
         y_label: "effect added up since the change".into(),
         y_format: ValueFormat::Number,
@@ -598,6 +658,7 @@ pub fn placebo_gap_chart(
         lines,
         refs: vec![RefLine { value: 0.0, label: String::new(), color: theme::INK }],
         change,
+        change_label: "change",
         x_label: String::new(),
         y_label: "unit − its synthetic".into(),
         y_format: ValueFormat::Number,
@@ -783,6 +844,7 @@ pub fn rosenbaum_chart(name: &str, gamma: &[f64], p_upper: &[f64], alpha: f64) -
             }],
             refs: vec![RefLine { value: alpha, label: format!("significance level {alpha}"), color: theme::BRICK }],
             change: None,
+            change_label: "change",
             x_label: "Gamma (odds of hidden bias)".into(),
             y_label: "upper bound of the p-value".into(),
             y_format: ValueFormat::Share,
@@ -1022,6 +1084,7 @@ pub fn power_chart(name: &str, curves: &[(String, Vec<f64>, Vec<f64>)], target: 
             lines,
             refs: vec![RefLine { value: target, label: format!("target {target_pct}"), color: theme::BRICK }],
             change: None,
+            change_label: "change",
             x_label: wait_label(wait_unit),
             y_label: "power".into(),
             y_format: ValueFormat::Share,
@@ -1073,6 +1136,7 @@ pub fn mde_chart(name: &str, waits: &[f64], mde: &[f64], target: f64, wait_unit:
             }],
             refs: vec![],
             change: None,
+            change_label: "change",
             x_label: wait_label(wait_unit),
             y_label: "minimum detectable effect".into(),
             y_format: ValueFormat::Percent,

@@ -3,9 +3,9 @@
 
 use super::theme::ValueFormat;
 use super::{
-    Chart, EstimateBar, PosteriorSource, SeriesNames, balance_chart, counterfactual_chart, effect_chart,
-    estimates_chart, mde_chart, placebo_gap_chart, posterior_chart, power_chart, propensity_chart, rosenbaum_chart,
-    running_total_chart, weights_chart, x_values,
+    Chart, EstimateBar, PosteriorSource, SeriesNames, balance_chart, breakdown_chart, counterfactual_chart,
+    effect_chart, estimates_chart, event_time_chart, mde_chart, placebo_gap_chart, posterior_chart, power_chart,
+    propensity_chart, rosenbaum_chart, running_total_chart, weights_chart, x_values,
 };
 use crate::ReportError;
 use aftercast_core::estimate::{Figures, KeptDraws};
@@ -33,6 +33,8 @@ pub const COMPACT_WIDTH: u32 = 640;
 /// - match: `propensity`, `balance`, `rosenbaum`;
 /// - compare: `versus-truth`;
 /// - backtest: `power`, `mde`;
+/// - rollout: `event-time` (the lead view), `wave`, `placebo-date`; any verb with segments:
+///   `segment`;
 /// - every verb: `posterior` (of the quantity the verdict is judged on).
 pub fn charts_for(r: &AnalysisResult, draws: &KeptDraws, figures: &Figures, stem: &str) -> Vec<Chart> {
     let name = |view: &str| if stem.is_empty() { view.to_string() } else { format!("{stem}-{view}") };
@@ -146,6 +148,47 @@ pub fn charts_for(r: &AnalysisResult, draws: &KeptDraws, figures: &Figures, stem
         let l: Vec<f64> = m.iter().map(|x| x.wait as f64).collect();
         let v: Vec<f64> = m.iter().map(|x| x.mde.unwrap_or(f64::NAN)).collect();
         out.push(mde_chart(&name("mde"), &l, &v, p.target_power, &p.wait_unit));
+    }
+    for b in &r.breakdowns {
+        let rows: Vec<&aftercast_core::result::BreakdownRow> = b.rows.iter().collect();
+        match b.by.as_str() {
+            "event-time" => {
+                let k: Vec<f64> = rows.iter().map(|r| r.key.unwrap_or(f64::NAN)).collect();
+                let pick = |f: fn(&aftercast_core::result::Summary) -> f64| -> Vec<f64> {
+                    rows.iter().map(|r| f(&r.summary)).collect()
+                };
+                // the lead view of a rollout
+                out.insert(
+                    0,
+                    event_time_chart(
+                        &name("event-time"),
+                        &k,
+                        (&pick(|s| s.estimate), &pick(|s| s.hdi_lower), &pick(|s| s.hdi_upper)),
+                        r.level,
+                    ),
+                );
+            }
+            "wave" | "segment" | "placebo-date" => {
+                let bars: Vec<EstimateBar> =
+                    rows.iter().map(|x| EstimateBar { label: x.label.clone(), summary: x.summary }).collect();
+                let (title, caption) = match b.by.as_str() {
+                    "wave" => (
+                        "Effect by wave",
+                        "Each wave's average effect over its periods after adoption, with its interval; waves are named by their first adopted period.",
+                    ),
+                    "segment" => (
+                        "Effect by segment",
+                        "Each segment's average effect with its interval, each fitted on its own units; the vertical rule marks no effect.",
+                    ),
+                    _ => (
+                        "Fake adoption dates",
+                        "Estimates with every wave moved earlier, on data before the real rollout: nothing happened there, so they should sit on zero.",
+                    ),
+                };
+                out.push(breakdown_chart(&name(b.by.as_str()), title, caption, &bars, "average effect"));
+            }
+            _ => {}
+        }
     }
     if r.path.is_none()
         && let Some(c) = posterior_for(r, draws, &name("posterior"))

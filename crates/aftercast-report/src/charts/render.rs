@@ -326,7 +326,7 @@ fn lines<DB: DrawingBackend>(root: &DrawingArea<DB, Shift>, area: &DrawingArea<D
     }
     if let Some(ch) = p.change.filter(|c| c.is_finite() && *c >= x0 && *c <= x1) {
         cc.draw_series(DashedLineSeries::new(vec![(ch, y0), (ch, y1)], 6, 4, INK.stroke_width(2))).map_err(e)?;
-        let el = EmptyElement::at((ch, y1)) + Text::new("change", (6, 4), font(NOTE_SIZE, true, &INK));
+        let el = EmptyElement::at((ch, y1)) + Text::new(p.change_label, (6, 4), font(NOTE_SIZE, true, &INK));
         cc.draw_series(std::iter::once(el)).map_err(e)?;
     }
     let _ = root;
