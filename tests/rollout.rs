@@ -199,3 +199,93 @@ fn match_by_segment_pools_to_the_treated_weighted_mean() {
     assert!((r.effect.average.estimate - pooled).abs() < 1e-9);
     assert_eq!(seg.rows.len(), 6);
 }
+
+/// `forecast --group`: the headline is exactly the forecast of the summed series, each group has
+/// its own row, and the "sum of the groups" row adds them up.
+#[test]
+fn grouped_forecast_is_the_total_plus_one_row_per_group() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let d = dir.path();
+    let regions = Path::new(env!("CARGO_MANIFEST_DIR")).join("../../demo-data/regions_weekly.csv");
+    let text = std::fs::read_to_string(regions).expect("regions");
+    let keep = ["Ashcombe", "Birchfold", "Dunmere"];
+    let mut long = String::from("region,week,revenue\n");
+    let mut sums: std::collections::BTreeMap<String, f64> = std::collections::BTreeMap::new();
+    for line in text.lines().skip(1) {
+        let f: Vec<&str> = line.split(',').collect();
+        if keep.contains(&f[0]) {
+            long.push_str(&format!("{},{},{}\n", f[0], f[1], f[2]));
+            *sums.entry(f[1].to_string()).or_insert(0.0) += f[2].parse::<f64>().expect("revenue");
+        }
+    }
+    std::fs::write(d.join("long.csv"), long).expect("write");
+    let total: String = std::iter::once("week,revenue".to_string())
+        .chain(sums.iter().map(|(w, v)| format!("{w},{v:?}")))
+        .collect::<Vec<_>>()
+        .join("\n");
+    std::fs::write(d.join("total.csv"), total + "\n").expect("write");
+    let common =
+        ["--time", "week", "--outcome", "revenue", "--start", "2026-04-06", "--draws", "100", "--log", "--quiet"];
+    let mut g = vec!["forecast", "--data", "long.csv", "--group", "region", "--json", "g.json"];
+    g.extend(common);
+    let (code, _, err) = run(&g, d);
+    assert_eq!(code, 0, "{err}");
+    let mut t = vec!["forecast", "--data", "total.csv", "--json", "t.json"];
+    t.extend(common);
+    assert_eq!(run(&t, d).0, 0);
+    let (rg, rt) = (result(&d.join("g.json")), result(&d.join("t.json")));
+    assert_eq!(rg.effect.average, rt.effect.average);
+    let seg = rg.breakdowns.iter().find(|b| b.by == "segment").expect("group rows");
+    assert_eq!(seg.rows.len(), 4);
+    let sum: f64 = seg.rows[..3].iter().map(|r| r.summary.estimate).sum();
+    assert!((seg.rows[3].summary.estimate - sum).abs() < 1e-6 * sum.abs().max(1.0));
+}
+
+/// `compare --by`: the experiment's answer pooled over segments by treated units, and every
+/// method row judged against its own segment's experimental answer.
+#[test]
+fn compare_by_segment_judges_each_method_within_its_segment() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let d = dir.path();
+    let past = Path::new(env!("CARGO_MANIFEST_DIR")).join("../../demo-data/past_test");
+    let (e, p) = (past.join("experiment.csv"), past.join("pool.csv"));
+    let (e, p) = (e.to_string_lossy().into_owned(), p.to_string_lossy().into_owned());
+    let args = [
+        "compare",
+        "--experiment",
+        &e,
+        "--arm",
+        "arm",
+        "--outcome",
+        "spend_90d",
+        "--pool",
+        &p,
+        "--covariates",
+        "spend_pre,visits_pre,tenure_months",
+        "--methods",
+        "naive,ipw",
+        "--by",
+        "age_band",
+        "--draws",
+        "100",
+        "--json",
+        "c.json",
+        "--quiet",
+    ];
+    let (code, _, err) = run(&args, d);
+    assert_eq!(code, 0, "{err}");
+    let r = result(&d.join("c.json"));
+    let seg = r.breakdowns.iter().find(|b| b.by == "segment").expect("segments");
+    let total: usize = seg.rows.iter().map(|x| x.units).sum();
+    let pooled: f64 = seg.rows.iter().map(|x| x.units as f64 * x.summary.estimate).sum::<f64>() / total as f64;
+    assert!((r.effect.average.estimate - pooled).abs() < 1e-9);
+    let truth = r.truth.expect("pooled truth");
+    assert!((truth.estimate - pooled).abs() < 1e-9);
+    let rows = r.estimates.expect("method rows");
+    assert_eq!(rows.len(), 2 * seg.rows.len());
+    for row in &rows {
+        let s = row.method.split(" · ").next().expect("segment prefix");
+        let t = seg.rows.iter().find(|x| x.label == s).expect("its segment").summary.estimate;
+        assert!((row.bias - (row.summary.estimate - t)).abs() < 1e-9, "{}", row.method);
+    }
+}

@@ -90,6 +90,11 @@ pub struct Args {
     /// Other segments untouched by the test, comma-separated (donors of the synthetic control).
     #[arg(long, value_delimiter = ',')]
     pub donors: Vec<String>,
+    /// Segment column (text) of the experiment and the pools: the comparison is run within each
+    /// segment (its own truth, each method fitted on the segment's units), and the experiment's
+    /// answer is pooled over the segments by their treated units.
+    #[arg(long, conflicts_with_all = ["summarize", "arms_data", "plasmode"])]
+    pub by: Option<String>,
     #[command(flatten)]
     pub data_options: DataOptions,
     #[command(flatten)]
@@ -321,6 +326,9 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     let methods = methods_from(&a.methods, &a.terms)?;
     let refs: Vec<&dyn UnitEstimator> = methods.iter().map(|m| m.as_ref()).collect();
     let inf = a.common.inference();
+    if let Some(by) = &a.by {
+        return compare_by(a, by, &exp_path, &experiment, &pools, &spec, &refs, &inf);
+    }
     let c = compare_units(&experiment, &pools, &spec, &refs, &inf).map_err(classify)?;
     if let Some(h) = &a.history {
         history::append(h, &c.history_records()).map_err(classify)?;
@@ -332,4 +340,119 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         experiment.len() - experiment.n_treated(),
     );
     crate::verbs::Outcome::new(c.estimate(), &inf, c.inputs.clone(), headline)
+}
+
+/// The segment of each row of a file, by source line.
+fn segment_by_line(path: &std::path::Path, by: &str) -> anyhow::Result<std::collections::HashMap<u64, String>> {
+    let table = read_table(path, &aftercast_core::Projection::none().text(by))?;
+    let col = table.column(by).map_err(bad_input)?;
+    let mut out = std::collections::HashMap::new();
+    for r in 0..table.row_count() {
+        let v = table.text(r, col).trim().to_string();
+        if v.is_empty() {
+            return Err(bad_input(aftercast_core::DataError::MissingValue { at: table.at(r, col) }));
+        }
+        out.insert(table.line(r), v);
+    }
+    Ok(out)
+}
+
+/// `compare --by`: the comparison within each segment (the experiment's units and every pool's
+/// units of that segment), with its own random stream. The headline is the experiment's answer
+/// pooled over the segments by treated units; each method's row is kept per segment and judged
+/// against that segment's own experimental answer.
+#[allow(clippy::too_many_arguments)]
+fn compare_by(
+    a: &Args,
+    by: &str,
+    exp_path: &std::path::Path,
+    experiment: &aftercast_core::units::UnitTable,
+    pools: &[aftercast_calibrate::sample::Pool],
+    spec: &UnitCompareSpec,
+    methods: &[&dyn UnitEstimator],
+    inf: &aftercast_core::Inference,
+) -> anyhow::Result<crate::verbs::Outcome> {
+    let exp_seg = segment_by_line(exp_path, by)?;
+    let pool_segs: Vec<std::collections::HashMap<u64, String>> =
+        a.pool.iter().map(|p| segment_by_line(p, by)).collect::<anyhow::Result<_>>()?;
+    let seg_of_exp: Vec<String> =
+        experiment.lines.iter().map(|l| exp_seg.get(l).cloned().unwrap_or_default()).collect();
+    let mut names: Vec<String> = seg_of_exp.clone();
+    names.sort();
+    names.dedup();
+    let mut parts = Vec::new();
+    let mut left_out = Vec::new();
+    let mut rows = Vec::new();
+    for name in &names {
+        let idx: Vec<usize> = (0..experiment.len()).filter(|&i| seg_of_exp[i] == *name).collect();
+        let part = experiment.take(&idx);
+        let treated = part.n_treated();
+        if treated < 2 || part.len() - treated < 2 {
+            left_out.push((
+                name.clone(),
+                format!(
+                    "the experiment has {treated} treated and {} control units in it; at least 2 of each are needed",
+                    part.len() - treated
+                ),
+            ));
+            continue;
+        }
+        let sub_pools: Vec<aftercast_calibrate::sample::Pool> = pools
+            .iter()
+            .zip(&pool_segs)
+            .map(|(p, segs)| {
+                let keep: Vec<usize> = (0..p.lines.len()).filter(|&i| segs.get(&p.lines[i]) == Some(name)).collect();
+                aftercast_calibrate::sample::Pool {
+                    name: p.name.clone(),
+                    input: p.input.clone(),
+                    lines: keep.iter().map(|&i| p.lines[i]).collect(),
+                    outcome: keep.iter().map(|&i| p.outcome[i]).collect(),
+                    numeric: p.numeric.iter().map(|(n, v)| (n.clone(), keep.iter().map(|&i| v[i]).collect())).collect(),
+                    dropped_rows: 0,
+                }
+            })
+            .collect();
+        if sub_pools.iter().all(|p| p.lines.len() < 2) {
+            left_out.push((name.clone(), "no pool has at least 2 units in it".into()));
+            continue;
+        }
+        let seg_inf = aftercast_core::Inference {
+            seed: aftercast_resample::rng::child_seed(inf.seed, &format!("segment-{name}")),
+            ..*inf
+        };
+        match compare_units(&part, &sub_pools, spec, methods, &seg_inf) {
+            Ok(c) => {
+                let est = c.estimate();
+                if let Some(es) = &est.sections.estimates {
+                    rows.extend(es.iter().map(|r| aftercast_core::result::EstimateRow {
+                        method: format!("{name} · {}", r.method),
+                        ..r.clone()
+                    }));
+                }
+                parts.push(aftercast_resample::segments::Segment {
+                    name: name.clone(),
+                    estimate: est,
+                    weight: treated as f64,
+                    units: treated,
+                });
+            }
+            Err(e) => left_out.push((name.clone(), e.to_string())),
+        }
+    }
+    let mut est = aftercast_resample::segments::pool(by, "weighted by the experiment's treated units", parts, left_out)
+        .map_err(bad_input)?;
+    if let (aftercast_core::Point::Scalar { effect, .. }, aftercast_core::EffectDraws::Scalar { effect: draws, .. }) =
+        (&est.point, &est.draws)
+    {
+        est.sections.truth = Some(aftercast_resample::summarize(draws, inf.level, None).with_estimate(*effect));
+    }
+    est.sections.estimates = Some(rows);
+    let headline = format!(
+        "observational methods against a randomized experiment on '{}', within each segment of '{by}' ({} segments)",
+        spec.outcome,
+        names.len()
+    );
+    let mut inputs = vec![experiment.input.clone()];
+    inputs.extend(pools.iter().map(|p| p.input.clone()));
+    crate::verbs::Outcome::new(est, inf, inputs, headline)
 }
