@@ -162,9 +162,9 @@ pub fn decompose(data: &Rollout) -> DidResult<Decomposition> {
         .sum();
     let mut cells = Vec::new();
     for wk in &waves {
-        for t in wk.start..nt {
+        for (t, time) in data.times.iter().enumerate().skip(wk.start) {
             let weight = wk.units.iter().map(|&u| dres[u][t]).sum::<f64>() / treated_sum;
-            cells.push(CellWeight { wave: label(wk.start), period: data.times[t].to_string(), weight });
+            cells.push(CellWeight { wave: label(wk.start), period: time.to_string(), weight });
         }
     }
     let negative_cells = cells.iter().filter(|c| c.weight < 0.0).count();

@@ -288,11 +288,11 @@ pub fn twfe(data: &Rollout, spec: &Spec, w: &[f64]) -> DidResult<Fit> {
         event.insert(-1, (0.0, lead_weight(data, -1, w)));
     }
     let (mut sy, mut sw, mut n) = (0.0, 0.0, 0usize);
-    for u in 0..data.n_units() {
+    for (u, wu) in w.iter().enumerate().take(data.n_units()) {
         for t in 0..data.n_times() {
             if data.treated(u, t) {
-                sy += w[u] * data.y[u][t];
-                sw += w[u];
+                sy += wu * data.y[u][t];
+                sw += wu;
                 n += 1;
             }
         }

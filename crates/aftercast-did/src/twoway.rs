@@ -240,8 +240,8 @@ fn check_connected(mask: &[Vec<bool>], weight: &[f64], identified: &[bool]) -> D
         if weight[i] <= 0.0 {
             continue;
         }
-        for t in 0..nt {
-            if mask[i][t] {
+        for (t, &m) in mask[i].iter().enumerate().take(nt) {
+            if m {
                 let (a, b) = (find(&mut parent, i), find(&mut parent, n + t));
                 parent[a] = b;
             }
@@ -249,8 +249,8 @@ fn check_connected(mask: &[Vec<bool>], weight: &[f64], identified: &[bool]) -> D
     }
     let Some(first) = (0..nt).find(|&t| identified[t]) else { return Ok(()) };
     let root = find(&mut parent, n + first);
-    for t in 0..nt {
-        if identified[t] && find(&mut parent, n + t) != root {
+    for (t, &id) in identified.iter().enumerate() {
+        if id && find(&mut parent, n + t) != root {
             return Err(DidError::NotConnected { detail: format!("period {t} is cut off from period {first}") });
         }
     }
