@@ -137,7 +137,7 @@ fn bad_rollout_input_exits_2_with_a_located_message() {
     c.extend(["y", "--starts", "all.csv"]);
     let (code, _, err) = run(&c, d);
     assert_eq!(code, 2);
-    assert!(err.contains("comparison"), "{err}");
+    assert!(err.contains("left to compare with") && err.lines().count() == 1, "{err}");
 
     // a segment with one unit: left out with a warning, the rest goes on
     let lone = panel

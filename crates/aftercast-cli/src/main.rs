@@ -137,7 +137,21 @@ fn main() {
             {
                 text = text.replace(v.as_str(), &aftercast_core::error::shown(v));
             }
-            let line: String = crate::study::one_line(&text)
+            // a first line ending in ':' announces a list (the missing arguments): keep it
+            let first = crate::study::one_line(&text);
+            let first = if first.ends_with(':') {
+                let rest: Vec<&str> = text
+                    .lines()
+                    .map(str::trim)
+                    .filter(|l| !l.is_empty())
+                    .skip(1)
+                    .take_while(|l| !l.starts_with("Usage:") && !l.starts_with("For more information"))
+                    .collect();
+                format!("{first} {}", rest.join(", "))
+            } else {
+                first
+            };
+            let line: String = first
                 .chars()
                 .flat_map(|c| {
                     let bidi = matches!(c, '\u{200E}' | '\u{200F}' | '\u{202A}'..='\u{202E}' | '\u{2066}'..='\u{2069}');

@@ -151,7 +151,8 @@ fn start_index(panel: &Panel, unit: &str, t: TimePoint) -> DidResult<usize> {
 }
 
 /// First adopted period of each panel unit from a starts table (`unit` column, `start` column;
-/// an empty start, or a unit not in the table, means never adopted).
+/// an empty start, or a unit not in the table, means never adopted), and a note for each start
+/// that falls between two periods (taken as the first period after it).
 ///
 /// # Errors
 /// Located errors for a missing column, an unreadable date, a unit that is not in the panel, a
@@ -162,8 +163,9 @@ pub fn starts_from_table(
     unit_col: &str,
     start_col: &str,
     date_format: &DateFormat,
-) -> DidResult<Vec<Option<usize>>> {
+) -> DidResult<(Vec<Option<usize>>, Vec<String>)> {
     let uc = table.column(unit_col)?;
+    let mut notes = Vec::new();
     let sc = table.column(start_col)?;
     let index: HashMap<&str, usize> = panel.units.iter().enumerate().map(|(i, u)| (u.as_str(), i)).collect();
     let mut start: Vec<Option<usize>> = vec![None; panel.units.len()];
@@ -201,15 +203,23 @@ pub fn starts_from_table(
             }
             .into());
         }
-        start[u] = Some(start_index(panel, &name, t).map_err(|e| match e {
+        let i = start_index(panel, &name, t).map_err(|e| match e {
             DidError::StartOutside { .. } => DidError::Data(Box::new(aftercast_core::DataError::Invalid {
                 at: table.at(r, sc),
                 message: e.to_string(),
             })),
             other => other,
-        })?);
+        })?;
+        let at = panel.axis.points()[i];
+        if at != t {
+            notes.push(format!(
+                "{}: the start {t} of unit '{name}' is not a period of the data; it is taken as the first period after it, {at}",
+                table.at(r, sc)
+            ));
+        }
+        start[u] = Some(i);
     }
-    Ok(start)
+    Ok((start, notes))
 }
 
 /// First adopted period of each panel unit from a 0/1 adoption column of the panel (0 before
@@ -230,7 +240,7 @@ pub fn starts_from_column(panel: &Panel, column: &str) -> DidResult<Vec<Option<u
         for (t, &v) in row.iter().enumerate() {
             if v != 0.0 && v != 1.0 {
                 return Err(DidError::BadOption {
-                    what: format!("--adopted {column}"),
+                    what: format!("{}: --adopted {column}", panel.input.path),
                     detail: format!("unit '{}' at {} has {v}; the column must be 0 or 1", panel.units[u], points[t]),
                 });
             }

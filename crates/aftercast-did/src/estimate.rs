@@ -141,6 +141,9 @@ pub struct RolloutDiagnostics {
     /// The static two-way coefficient and what it averages.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub twfe_decomposition: Option<Decomposition>,
+    /// The segment column, when the effect is broken down by one.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub by: Option<String>,
     /// Segments, when the effect is broken down by one.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub segments: Option<Vec<SegmentInfo>>,
@@ -326,12 +329,17 @@ pub fn assumptions(spec: &Spec, covariates: bool) -> Vec<String> {
     a
 }
 
+/// A p-value in words: "p = 0.031", "p < 0.001".
+fn p_text(p: f64) -> String {
+    if p < 0.001 { "p < 0.001".into() } else { format!("p = {p:.3}") }
+}
+
 /// Everything beyond the fits that an estimate needs.
 struct Parts {
     reps: Replicates,
     extra: Vec<BreakdownInput>,
     warnings: Vec<String>,
-    segments: Option<Vec<SegmentInfo>>,
+    segments: Option<(String, Vec<SegmentInfo>)>,
 }
 
 fn assemble(data: &Rollout, spec: &Spec, inf: &Inference, parts: Parts) -> DidResult<Estimate<RolloutDiagnostics>> {
@@ -353,7 +361,8 @@ fn assemble(data: &Rollout, spec: &Spec, inf: &Inference, parts: Parts) -> DidRe
         failed_draws: reps.failed(),
         left_out_units: data.left_out.clone(),
         twfe_decomposition: decomposition.clone(),
-        segments,
+        by: segments.as_ref().map(|(b, _)| b.clone()),
+        segments: segments.as_ref().map(|(_, s)| s.clone()),
     };
     let estimand = "average effect on the adopters per adopted unit and period (ATT), over the unit-periods after adoption that have a comparison";
     let mut est = Estimate::new(
@@ -377,12 +386,12 @@ fn assemble(data: &Rollout, spec: &Spec, inf: &Inference, parts: Parts) -> DidRe
         if t.p_value < 0.05 {
             match b.by.as_str() {
                 "event-time" => warnings.push(format!(
-                    "the periods before adoption already differ from zero (joint test p = {:.3}): parallel trends is in doubt; look at the event-time chart, add pre-period covariates, or compare only with units that look alike",
-                    t.p_value
+                    "the periods before adoption already differ from zero (joint test {}): parallel trends is in doubt; look at the event-time chart, add pre-period covariates, or compare only with units that look alike",
+                    p_text(t.p_value)
                 )),
                 "placebo-date" => warnings.push(format!(
-                    "fake adoption dates before the real rollout show effects (joint test p = {:.3}): the comparison units drift apart from the adopters even without the change, so the estimate may carry that drift",
-                    t.p_value
+                    "fake adoption dates before the real rollout show effects (joint test {}): the comparison units may drift apart from the adopters even without the change (one such check in twenty fires by chance alone), so the estimate may carry that drift",
+                    p_text(t.p_value)
                 )),
                 _ => {}
             }
@@ -411,8 +420,10 @@ fn assemble(data: &Rollout, spec: &Spec, inf: &Inference, parts: Parts) -> DidRe
     }
     if !data.left_out.is_empty() {
         warnings.push(format!(
-            "{} units had adopted by the first period and are left out (no period before adoption to compare): {}",
+            "{} unit{} had adopted by the first period and {} left out (no period before adoption to compare): {}",
             data.left_out.len(),
+            if data.left_out.len() == 1 { "" } else { "s" },
+            if data.left_out.len() == 1 { "is" } else { "are" },
             data.left_out.join(", ")
         ));
     }
@@ -423,6 +434,17 @@ fn assemble(data: &Rollout, spec: &Spec, inf: &Inference, parts: Parts) -> DidRe
             reps.draws.len()
         ));
     }
+    let shown = lead_count(data, spec.leads);
+    if spec.method != Method::Twfe && shown < spec.leads {
+        warnings.push(format!(
+            "{} period{} before adoption shown and tested, not the {} asked for: the first wave has only {} period{} before it, and each wave keeps one as its reference",
+            shown,
+            if shown == 1 { "" } else { "s" },
+            spec.leads,
+            shown + 1,
+            if shown == 0 { "" } else { "s" }
+        ));
+    }
     if spec.method == Method::Twfe {
         warnings.push("the two-way fixed-effects regression is shown as a baseline: when effects differ by wave or grow with time since adoption it is biased (see its decomposition); prefer group-time or imputation".into());
     }
@@ -431,7 +453,7 @@ fn assemble(data: &Rollout, spec: &Spec, inf: &Inference, parts: Parts) -> DidRe
     {
         if d.weight_on_adopted_comparisons > 0.0 {
             warnings.push(format!(
-                "{:.0}% of the two-way coefficient comes from comparing later waves with already-adopted ones",
+                "{:.0}% of the two-way coefficient's weight is on comparisons of later waves with already-adopted ones (Goodman-Bacon decomposition in the diagnostics)",
                 100.0 * d.weight_on_adopted_comparisons
             ));
         }
@@ -470,6 +492,7 @@ pub fn estimate(data: &Rollout, spec: &Spec, inf: &Inference) -> DidResult<Estim
 /// No segment can be estimated.
 pub fn estimate_by(
     data: &Rollout,
+    by: &str,
     segments: &[(String, Vec<usize>)],
     spec: &Spec,
     inf: &Inference,
@@ -482,23 +505,37 @@ pub fn estimate_by(
         let part = data.subset(units);
         let adopters = part.start.iter().filter(|s| s.is_some()).count();
         let mut info = SegmentInfo { segment: name.clone(), units: units.len(), adopters, left_out: None };
-        let why = if units.len() < 2 {
-            Some("one unit: nothing to compare within the segment".to_string())
-        } else if adopters == 0 {
-            Some("no unit adopts".to_string())
+        let why = if units.len() < 3 {
+            Some(format!(
+                "{} unit{}: too few to compare within the segment",
+                units.len(),
+                if units.len() == 1 { "" } else { "s" }
+            ))
+        } else if adopters < 2 {
+            Some(format!("{adopters} adopting unit{}; at least 2 are needed", if adopters == 1 { "" } else { "s" }))
         } else {
             match replicate(&part, &sub, inf.draws, child_seed(inf.seed, &format!("segment-{name}"))) {
                 Ok(r) => {
-                    fitted.push((name.clone(), adopters, r));
-                    None
+                    let draws: Vec<f64> = r.draws.iter().filter_map(|d| d.as_ref().map(|f| f.overall)).collect();
+                    let m = draws.iter().sum::<f64>() / draws.len().max(1) as f64;
+                    let sd = (draws.iter().map(|v| (v - m).powi(2)).sum::<f64>() / draws.len().max(1) as f64).sqrt();
+                    if sd <= 1e-12 * r.point.overall.abs().max(1.0) {
+                        Some("its interval cannot be estimated: a wave or its comparison holds a single unit, so resampling units leaves the estimate unchanged".to_string())
+                    } else {
+                        fitted.push((name.clone(), adopters, r));
+                        None
+                    }
                 }
                 Err(e) => Some(e.to_string()),
             }
         };
         if let Some(w) = &why {
             warnings.push(format!("segment '{name}' is left out: {w}"));
-        } else if adopters < 3 {
-            warnings.push(format!("segment '{name}' has only {adopters} adopting units: its interval says little"));
+        } else if units.len() < 10 {
+            warnings.push(format!(
+                "segment '{name}' has only {} units ({adopters} adopting): its interval is wide and says little",
+                units.len()
+            ));
         }
         info.left_out = why;
         infos.push(info);
@@ -532,5 +569,10 @@ pub fn estimate_by(
     warnings.extend(more);
     let mut extra = vec![seg];
     extra.extend(placebo);
-    assemble(data, spec, inf, Parts { reps: pooled, extra, warnings, segments: Some(infos) })
+    let mut est =
+        assemble(data, spec, inf, Parts { reps: pooled, extra, warnings, segments: Some((by.to_string(), infos)) })?;
+    est.assumptions.push(format!(
+        "Each segment of '{by}' is estimated on its own units (its adopters against its own comparison units); the overall effect is their mean weighted by covered adopted unit-periods."
+    ));
+    Ok(est)
 }

@@ -109,7 +109,10 @@ pub fn group_time_cells(data: &Rollout, comparison: Comparison, w: &[f64]) -> Di
     }
     if !cells.iter().any(|c| c.t >= waves[c.wave].start) {
         return Err(DidError::NoComparison {
-            detail: "no wave has a comparison unit after it adopts: every unit adopts by the time the first wave is compared; keep some units never adopting, or use --comparison not-yet with waves at different dates".into(),
+            detail: match comparison {
+                Comparison::Never => "no unit stays unadopted to compare with: --comparison never needs never-adopting units; use --comparison not-yet when the waves adopt at different dates".into(),
+                Comparison::NotYet => "no wave has a unit left to compare with after it adopts: every unit adopts at the same period and none stays unadopted; keep some units back".into(),
+            },
         });
     }
     Ok(cells)

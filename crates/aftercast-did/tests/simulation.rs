@@ -130,7 +130,7 @@ fn segment_intervals_cover_their_truths_and_pool_to_the_overall() {
         data.y.extend(b.y.clone());
         data.start.extend(b.start.clone());
         let segments = vec![("a".to_string(), (0..40).collect()), ("b".to_string(), (40..80).collect())];
-        let est = aftercast_did::estimate_by(&data, &segments, &spec, &inf).unwrap();
+        let est = aftercast_did::estimate_by(&data, "half", &segments, &spec, &inf).unwrap();
         let f = finish(est, &inf, vec![]).unwrap();
         let seg = f.result.breakdowns.iter().find(|b| b.by == "segment").unwrap();
         for (i, truth) in [ta, tb].iter().enumerate() {

@@ -231,7 +231,18 @@ fn direction(v: Verdict) -> i8 {
 
 /// A method's short name in comparisons: its method and family ("sdid, synthetic control").
 fn short_label(a: &ReportAnalysis) -> String {
-    format!("{} ({})", a.result.method, family(&a.result))
+    format!("{} ({})", method_label(&a.result), family(&a.result))
+}
+
+/// The method of an analysis as a reader tells it apart: with segments, "aipw by age_band".
+pub fn method_label(r: &AnalysisResult) -> String {
+    if !r.breakdowns.iter().any(|b| b.by == "segment") {
+        return r.method.clone();
+    }
+    match r.diagnostics.get("by").and_then(Value::as_str) {
+        Some(by) => format!("{} by {by}", r.method),
+        None => format!("{} by segment", r.method),
+    }
 }
 
 /// Compare the analyses that answer one question (see [`Agreement`] for the rule).
@@ -376,6 +387,7 @@ svg.chart text{font-family:"DejaVu Sans",Verdana,sans-serif}
 .answer .what{color:var(--muted);font-size:14px}
 .answer .range,.answer .truth,.answer .agree,.answer .more,.answer .lead-text,.answer .flagline,.answer .ok{margin:6px 0;font-size:14px}
 .answer table.mini{font-size:13px}
+.answer table.mini .fam{font-size:12px;color:var(--muted)}
 .truth{color:#7a5a12;background:#fbf3df;border-left:4px solid var(--ochre);padding:4px 8px}
 .flags{margin:6px 0;padding-left:18px;font-size:14px;color:var(--brick)}
 .flagline{color:var(--brick)}
@@ -924,6 +936,17 @@ fn data_section(out: &mut String, input: &ReportInput) {
                 "{} treated units, {} controls used, {} treated units left out",
                 s.treated, s.controls_used, s.treated_dropped
             )
+        } else if r.verb == "rollout" {
+            let n = |k: &str| r.diagnostics.get(k).and_then(Value::as_u64).unwrap_or(0);
+            let waves = r.diagnostics.get("waves").and_then(Value::as_array).map_or(0, Vec::len);
+            format!(
+                "{} units over {} periods; {} waves, {} units never adopting; {} adopted unit-periods covered",
+                n("units"),
+                n("periods"),
+                waves,
+                n("never_adopted"),
+                n("covered_unit_periods")
+            )
         } else if let Some(est) = &r.estimates {
             format!("{} observational methods compared with a randomized experiment", est.len())
         } else if let Some(p) = &r.planning {
@@ -1123,7 +1146,7 @@ fn question_card(out: &mut String, key: &str, group: &[&ReportAnalysis], index: 
         let truth_col = group.iter().any(|a| a.truth.is_some());
         let _ = write!(
             out,
-            "<div class=\"table-wrap\"><table class=\"mini\"><thead><tr><th>method</th><th>family</th><th>{}</th><th>{}</th><th>verdict</th>{}</tr></thead><tbody>",
+            "<div class=\"table-wrap\"><table class=\"mini\"><thead><tr><th>method (family)</th><th>{}</th><th>{}</th><th>verdict</th>{}</tr></thead><tbody>",
             if pct { "relative effect" } else { "average effect" },
             numbers::interval_name(r.level),
             if truth_col { "<th>truth inside</th>" } else { "" }
@@ -1143,9 +1166,9 @@ fn question_card(out: &mut String, key: &str, group: &[&ReportAnalysis], index: 
             };
             let _ = writeln!(
                 out,
-                "<tr><td><a href=\"#analysis-{}\">{}</a></td><td>{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td>{}</td>{truth_cell}</tr>",
+                "<tr><td><a href=\"#analysis-{}\">{}</a><br/><span class=\"fam\">{}</span></td><td class=\"num\">{}</td><td class=\"num\">{}</td><td>{}</td>{truth_cell}</tr>",
                 id_of(&a.stem),
-                escape(&a.result.method),
+                escape(&method_label(&a.result)),
                 family(&a.result),
                 escape(&p),
                 escape(&i),
@@ -1170,7 +1193,10 @@ fn question_card(out: &mut String, key: &str, group: &[&ReportAnalysis], index: 
     let mut flags: Vec<String> = Vec::new();
     for a in group {
         for f in fragility(&a.result) {
-            flags.push(if group.len() > 1 { format!("{}: {f}", a.result.method) } else { f });
+            let f = if group.len() > 1 { format!("{}: {f}", method_label(&a.result)) } else { f };
+            if !flags.contains(&f) {
+                flags.push(f);
+            }
         }
     }
     if flags.is_empty() {

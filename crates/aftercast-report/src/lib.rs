@@ -198,7 +198,12 @@ pub fn joint_sentence(b: &aftercast_core::result::Breakdown) -> Option<String> {
             let lo = b.rows.iter().min_by(|a, b| a.summary.estimate.total_cmp(&b.summary.estimate));
             let order = match (hi, lo, t.prob_order) {
                 (Some(h), Some(l), Some(q)) => {
-                    format!(" Chance that '{}' truly gains more than '{}': {:.0}%.", h.label, l.label, q * 100.0)
+                    format!(
+                        " '{}' (highest) is above '{}' (lowest) in {:.0}% of the draws; the two were picked as the extremes, so this overstates how sure the order is: the equality test is the guarded answer.",
+                        h.label,
+                        l.label,
+                        q * 100.0
+                    )
                 }
                 _ => String::new(),
             };
@@ -221,6 +226,7 @@ pub fn breakdown_tables(r: &AnalysisResult, max_rows: usize, calendar: bool) -> 
                 "wave" => "wave (first adopted period)",
                 "calendar" => "period",
                 "segment" => "segment",
+                "placebo-date" => "fake adoption date",
                 _ => "",
             };
             let shown: Vec<&aftercast_core::result::BreakdownRow> = if b.rows.len() > max_rows {
@@ -247,7 +253,12 @@ pub fn breakdown_tables(r: &AnalysisResult, max_rows: usize, calendar: bool) -> 
             }
             Table {
                 title: b.title.clone(),
-                headers: vec![first.into(), "estimate".into(), numbers::interval_name(r.level), "units".into()],
+                headers: vec![
+                    first.into(),
+                    "estimate".into(),
+                    numbers::interval_name(r.level),
+                    if b.by == "segment" && r.verb == "forecast" { "groups" } else { "treated units" }.into(),
+                ],
                 rows,
                 note,
             }

@@ -163,6 +163,12 @@ pub fn summary_numbers_at(s: &Summary, d: usize, unit: Option<&str>) -> (String,
 /// else the total over the post-period, else the average.
 pub fn units_line(r: &AnalysisResult) -> EffectLine {
     let lines = effect_lines(r);
+    if r.scope.per == aftercast_core::estimate::Per::UnitPeriod {
+        // a rollout: the effect per adopted unit and period reads better than a total over them
+        if let Some(l) = lines.iter().find(|l| !l.percent && l.label.starts_with("average")) {
+            return l.clone();
+        }
+    }
     let pick = |starts: &str| lines.iter().find(|l| !l.percent && l.label.starts_with(starts)).cloned();
     pick("total over all")
         .or_else(|| lines.iter().find(|l| !l.percent && !l.label.starts_with("average")).cloned())

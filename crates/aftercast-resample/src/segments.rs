@@ -79,6 +79,28 @@ pub fn pool<D: Serialize + Clone>(
     parts: Vec<Segment<D>>,
     left_out: Vec<(String, String)>,
 ) -> Result<Estimate<Pooled<D>>, PoolError> {
+    // a segment whose draws do not vary has no interval to pool (a single unit on one side)
+    let mut left_out = left_out;
+    let parts: Vec<Segment<D>> = parts
+        .into_iter()
+        .filter(|p| {
+            let flat = match &p.estimate.draws {
+                EffectDraws::Scalar { effect, .. } => {
+                    let m = effect.iter().sum::<f64>() / effect.len().max(1) as f64;
+                    let sd = (effect.iter().map(|v| (v - m).powi(2)).sum::<f64>() / effect.len().max(1) as f64).sqrt();
+                    effect.len() > 1 && !(sd > 1e-12 * m.abs().max(1.0))
+                }
+                EffectDraws::Path { .. } => false,
+            };
+            if flat {
+                left_out.push((
+                    p.name.clone(),
+                    "its draws do not vary, so it has no interval (too few units on one side)".into(),
+                ));
+            }
+            !flat
+        })
+        .collect();
     if parts.is_empty() {
         return Err(PoolError::Empty {
             by: by.to_string(),

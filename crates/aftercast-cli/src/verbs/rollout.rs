@@ -36,6 +36,7 @@ impl std::str::FromStr for RolloutMethod {
 
 /// Arguments of `rollout` (flag names are the contract in ../shared/DESIGN.md).
 #[derive(Debug, Clone, clap::Args)]
+#[command(group(clap::ArgGroup::new("adoption").required(true).args(["starts", "adopted"])))]
 pub struct Args {
     /// Panel in long format (CSV, or Parquet by extension .parquet or .pq): one row per unit and period.
     #[arg(long)]
@@ -51,7 +52,7 @@ pub struct Args {
     pub outcome: String,
     /// Starts file: a unit column (named as --unit, or `unit`) and a `start` column with each
     /// unit's first adopted period; units absent or with an empty start never adopted.
-    #[arg(long, conflicts_with = "adopted", required_unless_present = "adopted")]
+    #[arg(long)]
     pub starts: Option<PathBuf>,
     /// Adoption column of the panel: 0 before adoption, 1 from the first adopted period on.
     #[arg(long)]
@@ -59,9 +60,10 @@ pub struct Args {
     /// Estimator: group-time, imputation, sdid, twfe (the two-way regression, a baseline).
     #[arg(long, default_value = "group-time")]
     pub method: RolloutMethod,
-    /// Comparison units of group-time effects: not-yet (adopted later or never) or never.
-    #[arg(long, default_value = "not-yet")]
-    pub comparison: Comparison,
+    /// Comparison units of group-time effects: not-yet (adopted later or never; the default) or
+    /// never.
+    #[arg(long)]
+    pub comparison: Option<Comparison>,
     /// Pre-period covariates (group-time, doubly robust): panel columns averaged per unit over
     /// the periods before the first adoption, comma-separated.
     #[arg(long, value_delimiter = ',')]
@@ -79,6 +81,18 @@ pub struct Args {
     pub data_options: DataOptions,
     #[command(flatten)]
     pub common: Common,
+}
+
+/// Segments in order: numerically when every name is a number, else alphabetically.
+pub fn sort_segments<T>(groups: &mut [(String, T)]) {
+    if groups.iter().all(|(n, _)| n.trim().parse::<f64>().is_ok()) {
+        groups.sort_by(|a, b| {
+            let (x, y) = (a.0.trim().parse::<f64>().unwrap_or(0.0), b.0.trim().parse::<f64>().unwrap_or(0.0));
+            x.total_cmp(&y)
+        });
+    } else {
+        groups.sort_by(|a, b| a.0.cmp(&b.0));
+    }
 }
 
 /// Errors of the did crate: numerical ones are ours (exit 1), the rest the input's (exit 2).
@@ -117,7 +131,9 @@ fn segments(table: &aftercast_core::RawTable, a: &Args, col: &str, panel: &Panel
 }
 
 /// Read the panel and the adoption dates.
-fn load(a: &Args) -> anyhow::Result<(Rollout, Vec<aftercast_core::InputInfo>, Option<Vec<String>>)> {
+type Loaded = (Rollout, Vec<aftercast_core::InputInfo>, Option<Vec<String>>, Vec<String>);
+
+fn load(a: &Args) -> anyhow::Result<Loaded> {
     let mut covs = a.covariates.clone();
     if let Some(c) = &a.adopted
         && !covs.contains(c)
@@ -138,16 +154,36 @@ fn load(a: &Args) -> anyhow::Result<(Rollout, Vec<aftercast_core::InputInfo>, Op
     let table = read_table(&a.data, &projection)?;
     let panel = Panel::from_long(&table, &spec).map_err(bad_input)?;
     let mut inputs = vec![table.info()];
+    let mut notes = Vec::new();
     let start = match (&a.starts, &a.adopted) {
         (Some(path), _) => {
             let header = read_table(path, &Projection::all(aftercast_core::ColumnKind::Text))?;
-            let unit_col = if header.has_column(&a.unit) { a.unit.clone() } else { "unit".to_string() };
+            let unit_col = if header.has_column(&a.unit) {
+                a.unit.clone()
+            } else if header.has_column("unit") {
+                "unit".to_string()
+            } else {
+                return Err(bad_input_msg(format!(
+                    "{}: a starts file needs a unit column named '{}' (as --unit) or 'unit', and a 'start' column",
+                    path.display(),
+                    a.unit
+                )));
+            };
+            if !header.has_column("start") {
+                return Err(bad_input_msg(format!(
+                    "{}: a starts file needs a 'start' column (each unit's first adopted period; empty: never adopted)",
+                    path.display()
+                )));
+            }
             inputs.push(header.info());
-            aftercast_did::starts_from_table(&panel, &header, &unit_col, "start", &a.data_options.date_format())
-                .map_err(classify)?
+            let (s, n) =
+                aftercast_did::starts_from_table(&panel, &header, &unit_col, "start", &a.data_options.date_format())
+                    .map_err(classify)?;
+            notes = n;
+            s
         }
         (None, Some(col)) => aftercast_did::starts_from_column(&panel, col).map_err(classify)?,
-        (None, None) => return Err(bad_input_msg("give --starts FILE or --adopted COL")),
+        (None, None) => return Err(bad_input_msg("name the adoption dates: --starts FILE or --adopted COL")),
     };
     let segs = match &a.by {
         Some(col) => Some(segments(&table, a, col, &panel)?),
@@ -157,7 +193,7 @@ fn load(a: &Args) -> anyhow::Result<(Rollout, Vec<aftercast_core::InputInfo>, Op
     // segments of the units kept (units adopted by the first period are left out)
     let segs = segs
         .map(|s| data.units.iter().map(|u| s[panel.units.iter().position(|p| p == u).unwrap_or(0)].clone()).collect());
-    Ok((data, inputs, segs))
+    Ok((data, inputs, segs, notes))
 }
 
 /// Run the verb.
@@ -166,14 +202,20 @@ fn load(a: &Args) -> anyhow::Result<(Rollout, Vec<aftercast_core::InputInfo>, Op
 /// Bad input (exit 2): unreadable data or starts, unknown columns or units, a unit adopting
 /// twice, a start outside the data, no comparison units left; internal failures otherwise.
 pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
-    let (data, inputs, segs) = load(a)?;
+    let (data, inputs, segs, notes) = load(a)?;
     let inf = a.common.inference();
-    let est = match a.method {
+    let mut est = match a.method {
         RolloutMethod::Did(m) => {
             if !a.covariates.is_empty() && m != aftercast_did::Method::GroupTime {
                 return Err(bad_input_msg("--covariates: pre-period covariates are used by --method group-time only"));
             }
-            let spec = Spec { method: m, comparison: a.comparison, leads: a.leads, placebo_shifts: a.placebo_dates };
+            if a.comparison.is_some() && m != aftercast_did::Method::GroupTime {
+                return Err(bad_input_msg(
+                    "--comparison applies to --method group-time; imputation compares with every unit-period not yet adopted, twfe with every unit-period",
+                ));
+            }
+            let comparison = a.comparison.unwrap_or_default();
+            let spec = Spec { method: m, comparison, leads: a.leads, placebo_shifts: a.placebo_dates };
             match &segs {
                 None => aftercast_did::estimate(&data, &spec, &inf).map_err(classify)?,
                 Some(s) => {
@@ -181,8 +223,10 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
                     for (u, g) in s.iter().enumerate() {
                         groups.entry(g.clone()).or_default().push(u);
                     }
-                    let groups: Vec<(String, Vec<usize>)> = groups.into_iter().collect();
-                    aftercast_did::estimate_by(&data, &groups, &spec, &inf).map_err(classify)?
+                    let mut groups: Vec<(String, Vec<usize>)> = groups.into_iter().collect();
+                    sort_segments(&mut groups);
+                    let by = a.by.as_deref().unwrap_or_default();
+                    aftercast_did::estimate_by(&data, by, &groups, &spec, &inf).map_err(classify)?
                 }
             }
         }
@@ -190,9 +234,17 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
             if segs.is_some() {
                 return Err(bad_input_msg("--by is not available with --method sdid; use group-time or imputation"));
             }
+            if !a.covariates.is_empty() || a.comparison.is_some() {
+                return Err(bad_input_msg(
+                    "--covariates and --comparison apply to --method group-time; sdid compares each wave with the never-adopting units",
+                ));
+            }
             sdid_by_wave(&data, inputs[0].clone(), &inf)?
         }
     };
+    for n in notes {
+        est.warn(n);
+    }
     let waves = data.waves();
     let headline = format!(
         "effect on '{}' of a change adopted in {} wave{} by {} of {} units{}",
@@ -203,7 +255,7 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
         data.n_units(),
         match a.method {
             RolloutMethod::Did(aftercast_did::Method::GroupTime) =>
-                format!(" (comparison: {} adopted)", a.comparison.name()),
+                format!(" (comparison: {} adopted)", a.comparison.unwrap_or_default().name()),
             _ => String::new(),
         },
     );
@@ -269,9 +321,29 @@ fn sdid_by_wave(
         let EffectDraws::Path { observed, counterfactual, .. } = fit.effect_draws() else {
             return Err(anyhow::anyhow!("synthetic difference-in-differences returned no path draws"));
         };
-        let draws: Vec<Vec<f64>> =
+        // the method's own replications (jackknife over units with several treated units,
+        // placebo with one) give a covariance of the effect path; normal draws with that
+        // covariance, one stream per wave, so that waves can be pooled draw by draw
+        let reps: Vec<Vec<f64>> =
             counterfactual.iter().map(|cf| observed.iter().zip(cf).map(|(y, c)| y - c).collect()).collect();
-        let baseline_draws = counterfactual.iter().map(|cf| cf.iter().sum::<f64>() / cf.len() as f64).collect();
+        let m = reps.len().max(1) as f64;
+        let seed = aftercast_resample::rng::child_seed(inf.seed, &format!("sdid-wave-{}", w.start));
+        let draws: Vec<Vec<f64>> = aftercast_resample::rng::par_draws(seed, inf.draws, |_, s| {
+            let g: Vec<f64> = reps
+                .iter()
+                .map(|_| {
+                    let (u, v) = (s.uniform().max(1e-300), s.uniform());
+                    (-2.0 * u.ln()).sqrt() * (2.0 * std::f64::consts::PI * v).cos()
+                })
+                .collect();
+            (0..point.len())
+                .map(|k| point[k] + reps.iter().zip(&g).map(|(r, z)| z * (r[k] - point[k])).sum::<f64>() / m.sqrt())
+                .collect()
+        });
+        let baseline_draws = draws
+            .iter()
+            .map(|e| observed.iter().zip(e).map(|(y, e)| y - e).sum::<f64>() / e.len().max(1) as f64)
+            .collect();
         fits.push(WaveFit { units: w.units.len(), point, draws, baseline_point, baseline_draws });
     }
     let nd = fits.iter().map(|f| f.draws.len()).min().unwrap_or(0);
@@ -333,6 +405,7 @@ fn sdid_by_wave(
         failed_draws: 0,
         left_out_units: data.left_out.clone(),
         twfe_decomposition: aftercast_did::decompose::decompose(data).ok(),
+        by: None,
         segments: None,
     };
     let mut est = Estimate::new(
@@ -360,7 +433,7 @@ fn sdid_by_wave(
             rows: wave_rows,
         },
     ];
-    est.warn("synthetic difference-in-differences is fitted per wave and the waves' draws are combined as if independent; they share donors, so the pooled interval may run a little narrow");
+    est.warn("synthetic difference-in-differences is fitted per wave; each wave's draws are normal with the covariance of its jackknife (several units) or placebo (one unit) replications, and the waves are combined as if independent; they share donors, so the pooled interval may run a little narrow");
     if !data.left_out.is_empty() {
         est.warn(format!("{} units had adopted by the first period and are left out", data.left_out.len()));
     }
