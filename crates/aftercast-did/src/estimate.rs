@@ -38,10 +38,16 @@ impl Replicates {
 /// The point fit's errors.
 pub fn replicate(data: &Rollout, spec: &Spec, draws: usize, seed: u64) -> DidResult<Replicates> {
     let n = data.n_units();
-    let point = fit(data, spec, &vec![1.0; n])?;
+    // the two-way regressors do not change between replicates: built once
+    let design = (spec.method == Method::Twfe).then(|| crate::fit::TwfeDesign::new(data));
+    let one = |w: &[f64]| match &design {
+        Some(d) => crate::fit::twfe_with(data, spec, w, d),
+        None => fit(data, spec, w),
+    };
+    let point = one(&vec![1.0; n])?;
     let draws = par_draws(seed, draws, |_, s| {
         let w: Vec<f64> = dirichlet_weights(n, s).into_iter().map(|v| v * n as f64).collect();
-        fit(data, spec, &w).ok()
+        one(&w).ok()
     });
     Ok(Replicates { point, draws })
 }

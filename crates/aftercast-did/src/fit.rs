@@ -277,13 +277,43 @@ pub fn adoption(data: &Rollout) -> Vec<Vec<f64>> {
 /// # Errors
 /// A collinear design.
 pub fn twfe(data: &Rollout, spec: &Spec, w: &[f64]) -> DidResult<Fit> {
-    let full = vec![vec![true; data.n_times()]; data.n_units()];
-    let tw = TwoWay::new(&full, w)?;
-    let d = adoption(data);
-    let (beta, _) = tw.regress(&data.y, std::slice::from_ref(&d), &["adopted".to_string()])?;
-    let ks = twfe_event_times(data);
-    let names: Vec<String> = ks.iter().map(|k| format!("event time {k}")).collect();
-    let (bk, _) = tw.regress(&data.y, &event_dummies(data, &ks), &names)?;
+    twfe_with(data, spec, w, &TwfeDesign::new(data))
+}
+
+/// The regressors of the two-way regressions, built once per rollout (they do not depend on
+/// the unit weights of a replicate).
+#[derive(Debug, Clone)]
+pub struct TwfeDesign {
+    full: Vec<Vec<bool>>,
+    adoption: Vec<Vec<f64>>,
+    ks: Vec<i64>,
+    names: Vec<String>,
+    dummies: Vec<Vec<Vec<f64>>>,
+}
+
+impl TwfeDesign {
+    /// The design of `data`.
+    pub fn new(data: &Rollout) -> TwfeDesign {
+        let ks = twfe_event_times(data);
+        TwfeDesign {
+            full: vec![vec![true; data.n_times()]; data.n_units()],
+            adoption: adoption(data),
+            names: ks.iter().map(|k| format!("event time {k}")).collect(),
+            dummies: event_dummies(data, &ks),
+            ks,
+        }
+    }
+}
+
+/// [`twfe`] with a prepared design.
+///
+/// # Errors
+/// A collinear design.
+pub fn twfe_with(data: &Rollout, spec: &Spec, w: &[f64], design: &TwfeDesign) -> DidResult<Fit> {
+    let tw = TwoWay::new(&design.full, w)?;
+    let (beta, _) = tw.regress(&data.y, std::slice::from_ref(&design.adoption), &["adopted".to_string()])?;
+    let ks = &design.ks;
+    let (bk, _) = tw.regress(&data.y, &design.dummies, &design.names)?;
     let nl = spec.leads as i64;
     let mut event: BTreeMap<i64, (f64, f64)> =
         ks.iter().copied().zip(bk).filter(|(k, _)| *k >= -nl).map(|(k, b)| (k, (b, lead_weight(data, k, w)))).collect();

@@ -24,6 +24,9 @@ pub struct TwoWay {
     /// Periods whose effect is solved (identified, except the anchor).
     free: Vec<usize>,
     chol: Option<nalgebra::Cholesky<f64, nalgebra::Dyn>>,
+    /// Every cell observed: the effects have a closed form (weighted column means of the
+    /// unit-demeaned values), no system to solve.
+    balanced: bool,
 }
 
 /// Unit and period effects (`NaN` where not identified).
@@ -95,7 +98,8 @@ impl TwoWay {
                 detail: "the period effects cannot be solved (singular system); check that periods share units".into(),
             })?)
         };
-        Ok(TwoWay { mask: mask.to_vec(), weight: weight.to_vec(), identified, free, chol })
+        let balanced = mask.iter().all(|r| r.iter().all(|&m| m)) && weight.iter().all(|&w| w > 0.0);
+        Ok(TwoWay { mask: mask.to_vec(), weight: weight.to_vec(), identified, free, chol, balanced })
     }
 
     /// Unit and period effects of `v` over the mask.
@@ -133,6 +137,26 @@ impl TwoWay {
 
     /// Residuals `v − α − λ` over the mask (`NaN` elsewhere).
     pub fn residual(&self, v: &[Vec<f64>]) -> Vec<Vec<f64>> {
+        if self.balanced {
+            // balanced with unit weights: λ_t = Σ ω_i (v_it − v̄_i) / Σ ω up to a constant, and
+            // the residual is v_it − v̄_i − λ_t + mean λ (same least squares, no solve)
+            let nt = self.identified.len();
+            let total: f64 = self.weight.iter().sum();
+            let means: Vec<f64> = v.iter().map(|r| r.iter().sum::<f64>() / nt as f64).collect();
+            let mut lambda = vec![0.0; nt];
+            for (i, r) in v.iter().enumerate() {
+                let w = self.weight[i] / total;
+                for (l, x) in lambda.iter_mut().zip(r) {
+                    *l += w * (x - means[i]);
+                }
+            }
+            let lbar = lambda.iter().sum::<f64>() / nt as f64;
+            return v
+                .iter()
+                .enumerate()
+                .map(|(i, r)| r.iter().zip(&lambda).map(|(x, l)| x - means[i] - l + lbar).collect())
+                .collect();
+        }
         let e = self.fit(v);
         (0..self.mask.len())
             .map(|i| {
@@ -167,31 +191,37 @@ impl TwoWay {
     /// the other regressors.
     pub fn regress(&self, y: &[Vec<f64>], xs: &[Vec<Vec<f64>>], names: &[String]) -> DidResult<(Vec<f64>, Effects)> {
         let ry = self.residual(y);
-        let rx: Vec<Vec<Vec<f64>>> = xs.iter().map(|x| self.residual(x)).collect();
         let p = xs.len();
         let mut xtx = DMatrix::<f64>::zeros(p, p);
         let mut xty = DVector::<f64>::zeros(p);
         // X̃'ΩX̃ = X'ΩX̃ and X̃'Ωỹ = X'Ωỹ (the effects are an Ω-orthogonal projection), so only
-        // the nonzero entries of the raw regressors are visited: indicators stay cheap.
-        let mut nz: Vec<usize> = Vec::with_capacity(p);
-        for i in 0..self.mask.len() {
-            let w = self.weight[i];
-            if w <= 0.0 {
-                continue;
-            }
-            for t in 0..self.identified.len() {
-                if !self.mask[i][t] {
-                    continue;
-                }
-                nz.clear();
-                nz.extend((0..p).filter(|&a| xs[a][i][t] != 0.0));
-                for &a in &nz {
-                    let xa = w * xs[a][i][t];
-                    xty[a] += xa * ry[i][t];
-                    for b in 0..p {
-                        xtx[(a, b)] += xa * rx[b][i][t];
+        // the nonzero entries of the raw regressors are visited (indicators stay cheap), and one
+        // residual column is held at a time.
+        let nonzero: Vec<Vec<(usize, usize, f64)>> = xs
+            .iter()
+            .map(|x| {
+                let mut cells = Vec::new();
+                for (i, row) in x.iter().enumerate() {
+                    let w = self.weight[i];
+                    if w <= 0.0 {
+                        continue;
+                    }
+                    for (t, &v) in row.iter().enumerate() {
+                        if v != 0.0 && self.mask[i][t] {
+                            cells.push((i, t, w * v));
+                        }
                     }
                 }
+                cells
+            })
+            .collect();
+        for (a, cells) in nonzero.iter().enumerate() {
+            xty[a] = cells.iter().map(|&(i, t, wx)| wx * ry[i][t]).sum();
+        }
+        for (b, x) in xs.iter().enumerate() {
+            let rb = self.residual(x);
+            for (a, cells) in nonzero.iter().enumerate() {
+                xtx[(a, b)] = cells.iter().map(|&(i, t, wx)| wx * rb[i][t]).sum();
             }
         }
         let xtx = (&xtx + xtx.transpose()) * 0.5;
