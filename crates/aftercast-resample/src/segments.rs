@@ -86,9 +86,10 @@ pub fn pool<D: Serialize + Clone>(
         .filter(|p| {
             let flat = match &p.estimate.draws {
                 EffectDraws::Scalar { effect, .. } => {
-                    let m = effect.iter().sum::<f64>() / effect.len().max(1) as f64;
-                    let sd = (effect.iter().map(|v| (v - m).powi(2)).sum::<f64>() / effect.len().max(1) as f64).sqrt();
-                    effect.len() > 1 && !(sd > 1e-12 * m.abs().max(1.0))
+                    let v: Vec<f64> = effect.iter().copied().filter(|x| x.is_finite()).collect();
+                    let m = v.iter().sum::<f64>() / v.len().max(1) as f64;
+                    let sd = (v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / v.len().max(1) as f64).sqrt();
+                    v.len() > 1 && sd <= 1e-12 * m.abs().max(1.0)
                 }
                 EffectDraws::Path { .. } => false,
             };
