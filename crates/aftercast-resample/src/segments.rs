@@ -241,7 +241,8 @@ mod tests {
             vec![
                 seg("a", 1.0, vec![0.0, 2.0], 30.0),
                 seg("b", 4.0, vec![3.0, 5.0], 10.0),
-                seg("c", 0.0, vec![0.0, 0.0], 0.0),
+                seg("c", 0.0, vec![0.0, 1.0], 0.0),
+                seg("d", 2.0, vec![2.0, 2.0], 5.0),
             ],
             vec![],
         )
@@ -249,10 +250,12 @@ mod tests {
         let Point::Scalar { effect, .. } = e.point else { panic!() };
         assert!((effect - 1.75).abs() < 1e-12);
         let EffectDraws::Scalar { effect: d, .. } = &e.draws else { panic!() };
-        // a segment of weight zero counts for nothing but is still shown and flagged
+        // a segment of weight zero counts for nothing but is still shown and flagged; one whose
+        // draws do not vary has no interval and is left out, with the reason
         assert!((d[0] - 0.75).abs() < 1e-12 && (d[1] - 2.75).abs() < 1e-12);
         assert_eq!(e.sections.breakdowns[0].rows.len(), 3);
         assert!(e.warnings.iter().any(|w| w.contains("segment 'c' has only 0 units")));
+        assert!(e.warnings.iter().any(|w| w.contains("segment 'd' is left out: its draws do not vary")));
         assert!(!e.warnings.iter().any(|w| w.contains("segment 'b' has only")));
     }
 
