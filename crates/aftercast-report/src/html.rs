@@ -1156,10 +1156,11 @@ fn question_card(out: &mut String, key: &str, group: &[&ReportAnalysis], index: 
                 if pct { a.result.effect.relative.unwrap_or(a.result.effect.average) } else { a.result.effect.average };
             let (p, i) = numbers::summary_numbers(&s, pct, a.result.outcome_unit.as_deref());
             let truth_cell = if truth_col {
-                let inside = a
-                    .truth
-                    .filter(|t| (t.of == TruthOf::Relative) == pct)
-                    .map(|t| if s.hdi_lower <= t.value && t.value <= s.hdi_upper { "yes" } else { "no" });
+                // judged on the quantity the truth is stated for, whichever the table shows
+                let inside = a.truth.and_then(|t| {
+                    t.summary_of(&a.result)
+                        .map(|q| if q.hdi_lower <= t.value && t.value <= q.hdi_upper { "yes" } else { "no" })
+                });
                 format!("<td>{}</td>", inside.unwrap_or("n/a"))
             } else {
                 String::new()
