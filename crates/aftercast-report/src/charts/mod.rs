@@ -560,11 +560,15 @@ pub fn event_time_chart(name: &str, k: &[f64], effect: (&[f64], &[f64], &[f64]),
         "Each point averages the waves at that many periods since they adopted; before adoption the points test the comparison (they should sit on zero).",
         body,
     )
-    .legend(&[
-        ("after adoption", theme::TEAL, Swatch::Dot),
-        ("before adoption", theme::MUTED, Swatch::Dot),
-        (&band_label, theme::TEAL, Swatch::Band),
-    ])
+    .legend(&if k.iter().any(|x| *x < 0.0) {
+        vec![
+            ("after adoption", theme::TEAL, Swatch::Dot),
+            ("before adoption", theme::MUTED, Swatch::Dot),
+            (band_label.as_str(), theme::TEAL, Swatch::Band),
+        ]
+    } else {
+        vec![("after adoption", theme::TEAL, Swatch::Dot), (band_label.as_str(), theme::TEAL, Swatch::Band)]
+    })
 }
 
 /// Rows of a breakdown (waves, segments, fake dates) with their intervals against zero.
