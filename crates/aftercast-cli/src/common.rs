@@ -298,3 +298,42 @@ where
         bad_input(DataError::BadArgument { what: flag.to_string(), text: text.to_string(), detail: e.to_string() })
     })
 }
+
+/// Segments in order: numerically when every name is a number, else alphabetically.
+pub fn sort_segments<T>(groups: &mut [(String, T)]) {
+    if groups.iter().all(|(n, _)| n.trim().parse::<f64>().is_ok()) {
+        groups.sort_by(|a, b| {
+            let (x, y) = (a.0.trim().parse::<f64>().unwrap_or(0.0), b.0.trim().parse::<f64>().unwrap_or(0.0));
+            x.total_cmp(&y)
+        });
+    } else {
+        groups.sort_by(|a, b| a.0.cmp(&b.0));
+    }
+}
+
+/// The distinct segment values, in [`sort_segments`] order.
+pub fn ordered_segments(values: &[String]) -> Vec<String> {
+    let mut names: Vec<(String, ())> = values.iter().map(|v| (v.clone(), ())).collect();
+    names.sort_by(|a, b| a.0.cmp(&b.0));
+    names.dedup_by(|a, b| a.0 == b.0);
+    sort_segments(&mut names);
+    names.into_iter().map(|(n, _)| n).collect()
+}
+
+/// The segment of each row of a file (a column read as text), by source line.
+///
+/// # Errors
+/// Bad input for a missing column or an empty cell (located).
+pub fn segments_by_line(path: &Path, by: &str) -> anyhow::Result<std::collections::HashMap<u64, String>> {
+    let table = read_table(path, &aftercast_core::Projection::none().text(by))?;
+    let col = table.column(by).map_err(crate::failure::bad_input)?;
+    let mut out = std::collections::HashMap::new();
+    for r in 0..table.row_count() {
+        let v = table.text(r, col).trim().to_string();
+        if v.is_empty() {
+            return Err(crate::failure::bad_input(aftercast_core::DataError::MissingValue { at: table.at(r, col) }));
+        }
+        out.insert(table.line(r), v);
+    }
+    Ok(out)
+}

@@ -396,7 +396,7 @@ fn assemble(data: &Rollout, spec: &Spec, inf: &Inference, parts: Parts) -> DidRe
                     p_text(t.p_value)
                 )),
                 "placebo-date" => warnings.push(format!(
-                    "fake adoption dates before the real rollout show effects (joint test {}): the comparison units may drift apart from the adopters even without the change (one such check in twenty fires by chance alone), so the estimate may carry that drift",
+                    "fake adoption dates before the real rollout show effects (joint test {}): the comparison units may drift apart from the adopters even without the change (with few units such a check fires by chance in about one run in ten), so the estimate may carry that drift",
                     p_text(t.p_value)
                 )),
                 _ => {}
@@ -523,9 +523,7 @@ pub fn estimate_by(
             match replicate(&part, &sub, inf.draws, child_seed(inf.seed, &format!("segment-{name}"))) {
                 Ok(r) => {
                     let draws: Vec<f64> = r.draws.iter().filter_map(|d| d.as_ref().map(|f| f.overall)).collect();
-                    let m = draws.iter().sum::<f64>() / draws.len().max(1) as f64;
-                    let sd = (draws.iter().map(|v| (v - m).powi(2)).sum::<f64>() / draws.len().max(1) as f64).sqrt();
-                    if sd <= 1e-12 * r.point.overall.abs().max(1.0) {
+                    if aftercast_resample::segments::is_flat(&draws) {
                         Some("its interval cannot be estimated: a wave or its comparison holds a single unit, so resampling units leaves the estimate unchanged".to_string())
                     } else {
                         fitted.push((name.clone(), adopters, r));

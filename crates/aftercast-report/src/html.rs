@@ -555,7 +555,7 @@ pub fn fragility(r: &AnalysisResult) -> Vec<String> {
                 t.p_value
             )),
             "placebo-date" => f.push(format!(
-                "Fake adoption dates show effects (p = {:.3}): the comparison may drift even where nothing happened (one such check in twenty fires by chance alone; see the fake-date chart).",
+                "Fake adoption dates show effects (p = {:.3}): the comparison may drift even where nothing happened (with few units such a check fires by chance in about one run in ten; see the fake-date chart).",
                 t.p_value
             )),
             _ => {}

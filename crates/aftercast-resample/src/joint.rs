@@ -94,19 +94,13 @@ mod tests {
     use super::*;
     use crate::rng::Stream;
 
-    fn normal(s: &mut Stream) -> f64 {
-        // Box-Muller from two uniforms
-        let (u, v) = (s.uniform().max(1e-300), s.uniform());
-        (-2.0 * u.ln()).sqrt() * (2.0 * std::f64::consts::PI * v).cos()
-    }
-
     /// Analytic check: with independent unit-variance draws, the statistic of points (a, b) is
     /// a² + b² and the p-value is exp(-x/2) for 2 degrees of freedom (chi-square with 2 df).
     #[test]
     fn two_independent_rows_match_the_chi_square_with_two_df() {
         let mut s = Stream::new(7, 0);
-        let a: Vec<f64> = (0..200_000).map(|_| normal(&mut s)).collect();
-        let b: Vec<f64> = (0..200_000).map(|_| normal(&mut s)).collect();
+        let a: Vec<f64> = (0..200_000).map(|_| s.normal()).collect();
+        let b: Vec<f64> = (0..200_000).map(|_| s.normal()).collect();
         let t = wald(JointQuestion::AllZero, &["a".into(), "b".into()], &[1.5, -1.0], &[a, b], None).unwrap();
         assert!((t.statistic - 3.25).abs() < 0.05, "{}", t.statistic);
         assert!((t.p_value - (-t.statistic / 2.0).exp()).abs() < 1e-12);
@@ -117,8 +111,8 @@ mod tests {
     #[test]
     fn equality_uses_the_variance_of_the_difference() {
         let mut s = Stream::new(9, 0);
-        let a: Vec<f64> = (0..200_000).map(|_| 2.0 + normal(&mut s)).collect();
-        let b: Vec<f64> = (0..200_000).map(|_| normal(&mut s)).collect();
+        let a: Vec<f64> = (0..200_000).map(|_| 2.0 + s.normal()).collect();
+        let b: Vec<f64> = (0..200_000).map(|_| s.normal()).collect();
         let t = wald(JointQuestion::AllEqual, &["a".into(), "b".into()], &[2.0, 0.0], &[a, b], None).unwrap();
         assert_eq!(t.df, 1);
         assert!((t.statistic - 2.0).abs() < 0.05, "{}", t.statistic);
@@ -132,7 +126,7 @@ mod tests {
     #[test]
     fn clusters_use_the_f_reference() {
         let mut s = Stream::new(11, 0);
-        let a: Vec<f64> = (0..200_000).map(|_| normal(&mut s)).collect();
+        let a: Vec<f64> = (0..200_000).map(|_| s.normal()).collect();
         let t = wald(JointQuestion::AllZero, &["a".into()], &[2.0], &[a], Some(10)).unwrap();
         assert_eq!(t.df_denominator, Some(9));
         let want = statrs::distribution::StudentsT::new(0.0, 1.0, 9.0).map(|d| 2.0 * d.sf(t.statistic.sqrt())).unwrap();

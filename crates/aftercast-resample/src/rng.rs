@@ -78,6 +78,13 @@ impl Stream {
     pub fn exp1(&mut self) -> f64 {
         -(1.0 - self.uniform()).ln()
     }
+
+    /// A standard normal draw (Box-Muller from two uniforms; the cosine branch).
+    #[inline]
+    pub fn normal(&mut self) -> f64 {
+        let (u, v) = (1.0 - self.uniform(), self.uniform());
+        (-2.0 * u.ln()).sqrt() * (2.0 * std::f64::consts::PI * v).cos()
+    }
 }
 
 impl TryRng for Stream {

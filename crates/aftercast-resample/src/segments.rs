@@ -65,6 +65,15 @@ pub enum PoolError {
     },
 }
 
+/// Whether draws do not vary (their finite values' sd is zero up to rounding): an estimate
+/// whose resamples cannot move it has no interval to report.
+pub fn is_flat(draws: &[f64]) -> bool {
+    let v: Vec<f64> = draws.iter().copied().filter(|x| x.is_finite()).collect();
+    let m = v.iter().sum::<f64>() / v.len().max(1) as f64;
+    let sd = (v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / v.len().max(1) as f64).sqrt();
+    v.len() > 1 && sd <= 1e-12 * m.abs().max(1.0)
+}
+
 /// Pool segment estimates. The overall point and every draw are the weighted means of the
 /// segments' (the relative effect's baseline likewise); the balance rows are kept per segment
 /// (`segment · covariate`), sample counts summed, warnings prefixed with the segment, and a
@@ -85,12 +94,7 @@ pub fn pool<D: Serialize + Clone>(
         .into_iter()
         .filter(|p| {
             let flat = match &p.estimate.draws {
-                EffectDraws::Scalar { effect, .. } => {
-                    let v: Vec<f64> = effect.iter().copied().filter(|x| x.is_finite()).collect();
-                    let m = v.iter().sum::<f64>() / v.len().max(1) as f64;
-                    let sd = (v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / v.len().max(1) as f64).sqrt();
-                    v.len() > 1 && sd <= 1e-12 * m.abs().max(1.0)
-                }
+                EffectDraws::Scalar { effect, .. } => is_flat(effect),
                 EffectDraws::Path { .. } => false,
             };
             if flat {

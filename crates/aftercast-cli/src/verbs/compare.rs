@@ -342,21 +342,6 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
     crate::verbs::Outcome::new(c.estimate(), &inf, c.inputs.clone(), headline)
 }
 
-/// The segment of each row of a file, by source line.
-fn segment_by_line(path: &std::path::Path, by: &str) -> anyhow::Result<std::collections::HashMap<u64, String>> {
-    let table = read_table(path, &aftercast_core::Projection::none().text(by))?;
-    let col = table.column(by).map_err(bad_input)?;
-    let mut out = std::collections::HashMap::new();
-    for r in 0..table.row_count() {
-        let v = table.text(r, col).trim().to_string();
-        if v.is_empty() {
-            return Err(bad_input(aftercast_core::DataError::MissingValue { at: table.at(r, col) }));
-        }
-        out.insert(table.line(r), v);
-    }
-    Ok(out)
-}
-
 /// `compare --by`: the comparison within each segment (the experiment's units and every pool's
 /// units of that segment), with its own random stream. The headline is the experiment's answer
 /// pooled over the segments by treated units; each method's row is kept per segment and judged
@@ -372,14 +357,12 @@ fn compare_by(
     methods: &[&dyn UnitEstimator],
     inf: &aftercast_core::Inference,
 ) -> anyhow::Result<crate::verbs::Outcome> {
-    let exp_seg = segment_by_line(exp_path, by)?;
+    let exp_seg = crate::common::segments_by_line(exp_path, by)?;
     let pool_segs: Vec<std::collections::HashMap<u64, String>> =
-        a.pool.iter().map(|p| segment_by_line(p, by)).collect::<anyhow::Result<_>>()?;
+        a.pool.iter().map(|p| crate::common::segments_by_line(p, by)).collect::<anyhow::Result<_>>()?;
     let seg_of_exp: Vec<String> =
         experiment.lines.iter().map(|l| exp_seg.get(l).cloned().unwrap_or_default()).collect();
-    let mut names: Vec<String> = seg_of_exp.clone();
-    names.sort();
-    names.dedup();
+    let names = crate::common::ordered_segments(&seg_of_exp);
     let mut parts = Vec::new();
     let mut left_out = Vec::new();
     let mut rows = Vec::new();

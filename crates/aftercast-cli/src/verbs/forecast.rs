@@ -95,6 +95,18 @@ pub(crate) fn classify(e: aftercast_forecast::ForecastError) -> anyhow::Error {
     }
 }
 
+/// How the series file of a forecast's flags is read.
+fn series_spec(a: &Args) -> SeriesSpec {
+    SeriesSpec {
+        time: a.time.clone(),
+        outcome: a.outcome.clone(),
+        controls: a.controls.clone(),
+        date_format: a.data_options.date_format(),
+        missing: a.data_options.missing,
+        gaps: a.data_options.gaps,
+    }
+}
+
 /// An analysis set-up read from the flags: the series, its split, the checked parameters and
 /// the event calendar. `forecast` analyses it; `plan forecast` runs placebo dates of it.
 pub struct Setup {
@@ -118,14 +130,7 @@ pub struct Setup {
 /// Bad input (exit 2) for unreadable data, unknown columns, bad options, too short a
 /// pre-period.
 pub fn setup(a: &Args, before_data_end: bool) -> anyhow::Result<Setup> {
-    let spec = SeriesSpec {
-        time: a.time.clone(),
-        outcome: a.outcome.clone(),
-        controls: a.controls.clone(),
-        date_format: a.data_options.date_format(),
-        missing: a.data_options.missing,
-        gaps: a.data_options.gaps,
-    };
+    let spec = series_spec(a);
     let table = read_table(&a.data, &spec.projection())?;
     let series = Series::from_table(&table, &spec).map_err(bad_input)?;
     let split = match series.split(&a.start, a.end.as_deref(), a.washout, 8) {
@@ -249,15 +254,7 @@ fn sub_table(
 fn run_groups(a: &Args, group: &str) -> anyhow::Result<crate::verbs::Outcome> {
     use aftercast_core::estimate::{BreakdownInput, PartInput};
     use aftercast_core::result::EffectDraws;
-    let mut projection = SeriesSpec {
-        time: a.time.clone(),
-        outcome: a.outcome.clone(),
-        controls: a.controls.clone(),
-        date_format: a.data_options.date_format(),
-        missing: a.data_options.missing,
-        gaps: a.data_options.gaps,
-    }
-    .projection();
+    let mut projection = series_spec(a).projection();
     projection = projection.text(group);
     let table = read_table(&a.data, &projection)?;
     let gc = table.column(group).map_err(bad_input)?;
@@ -316,15 +313,7 @@ fn run_groups(a: &Args, group: &str) -> anyhow::Result<crate::verbs::Outcome> {
     let inf = a.common.inference();
     let fit = |label: &str, rows: &[Vec<String>]| -> anyhow::Result<aftercast_forecast::ForecastRun> {
         let sub = sub_table(&a.data, label, &header, rows)?;
-        let spec = SeriesSpec {
-            time: a.time.clone(),
-            outcome: a.outcome.clone(),
-            controls: a.controls.clone(),
-            date_format: a.data_options.date_format(),
-            missing: a.data_options.missing,
-            gaps: a.data_options.gaps,
-        };
-        let series = Series::from_table(&sub, &spec).map_err(bad_input)?;
+        let series = Series::from_table(&sub, &series_spec(a)).map_err(bad_input)?;
         let split = series.split(&a.start, a.end.as_deref(), a.washout, 8).map_err(bad_input)?;
         let (params, events, _) = params_and_events(a)?;
         analyse(&series, split, &params, events.as_ref()).map_err(classify)

@@ -93,16 +93,7 @@ pub struct Args {
 /// # Errors
 /// Bad input for a missing column or an empty cell (located).
 pub fn unit_segments(path: &std::path::Path, units: &UnitTable, by: &str) -> anyhow::Result<Vec<String>> {
-    let table = crate::common::read_table(path, &aftercast_core::Projection::none().text(by))?;
-    let col = table.column(by).map_err(bad_input)?;
-    let mut at_line = std::collections::HashMap::new();
-    for r in 0..table.row_count() {
-        let v = table.text(r, col).trim().to_string();
-        if v.is_empty() {
-            return Err(bad_input(aftercast_core::DataError::MissingValue { at: table.at(r, col) }));
-        }
-        at_line.insert(table.line(r), v);
-    }
+    let at_line = crate::common::segments_by_line(path, by)?;
     Ok(units.lines.iter().map(|l| at_line.get(l).cloned().unwrap_or_default()).collect())
 }
 
@@ -111,9 +102,7 @@ pub fn unit_segments(path: &std::path::Path, units: &UnitTable, by: &str) -> any
 /// and pool them weighted by the units the estimand averages over.
 fn run_by(a: &Args, units: &UnitTable, params: MatchParams, by: &str) -> anyhow::Result<crate::verbs::Outcome> {
     let seg = unit_segments(&a.data, units, by)?;
-    let mut names: Vec<String> = seg.clone();
-    names.sort();
-    names.dedup();
+    let names = crate::common::ordered_segments(&seg);
     let inf = params.inference;
     let mut parts = Vec::new();
     let mut left_out = Vec::new();

@@ -83,18 +83,6 @@ pub struct Args {
     pub common: Common,
 }
 
-/// Segments in order: numerically when every name is a number, else alphabetically.
-pub fn sort_segments<T>(groups: &mut [(String, T)]) {
-    if groups.iter().all(|(n, _)| n.trim().parse::<f64>().is_ok()) {
-        groups.sort_by(|a, b| {
-            let (x, y) = (a.0.trim().parse::<f64>().unwrap_or(0.0), b.0.trim().parse::<f64>().unwrap_or(0.0));
-            x.total_cmp(&y)
-        });
-    } else {
-        groups.sort_by(|a, b| a.0.cmp(&b.0));
-    }
-}
-
 /// Errors of the did crate: numerical ones are ours (exit 1), the rest the input's (exit 2).
 fn classify(e: DidError) -> anyhow::Error {
     match e {
@@ -224,7 +212,7 @@ pub fn run(a: &Args) -> anyhow::Result<crate::verbs::Outcome> {
                         groups.entry(g.clone()).or_default().push(u);
                     }
                     let mut groups: Vec<(String, Vec<usize>)> = groups.into_iter().collect();
-                    sort_segments(&mut groups);
+                    crate::common::sort_segments(&mut groups);
                     let by = a.by.as_deref().unwrap_or_default();
                     aftercast_did::estimate_by(&data, by, &groups, &spec, &inf).map_err(classify)?
                 }
@@ -329,13 +317,7 @@ fn sdid_by_wave(
         let m = reps.len().max(1) as f64;
         let seed = aftercast_resample::rng::child_seed(inf.seed, &format!("sdid-wave-{}", w.start));
         let draws: Vec<Vec<f64>> = aftercast_resample::rng::par_draws(seed, inf.draws, |_, s| {
-            let g: Vec<f64> = reps
-                .iter()
-                .map(|_| {
-                    let (u, v) = (s.uniform().max(1e-300), s.uniform());
-                    (-2.0 * u.ln()).sqrt() * (2.0 * std::f64::consts::PI * v).cos()
-                })
-                .collect();
+            let g: Vec<f64> = reps.iter().map(|_| s.normal()).collect();
             (0..point.len())
                 .map(|k| point[k] + reps.iter().zip(&g).map(|(r, z)| z * (r[k] - point[k])).sum::<f64>() / m.sqrt())
                 .collect()
