@@ -56,7 +56,9 @@ impl TwoWay {
         let n = mask.len();
         let nt = mask.first().map_or(0, Vec::len);
         let mut identified = vec![false; nt];
-        let mut patterns: std::collections::HashMap<&[bool], f64> = std::collections::HashMap::new();
+        // ordered by mask, so that the sums below run in one order in every process (a hash
+        // map's order changes from run to run and with it the last bits of the solution)
+        let mut patterns: std::collections::BTreeMap<&[bool], f64> = std::collections::BTreeMap::new();
         for i in 0..n {
             if weight[i] > 0.0 && mask[i].iter().any(|&m| m) {
                 *patterns.entry(mask[i].as_slice()).or_insert(0.0) += weight[i];
