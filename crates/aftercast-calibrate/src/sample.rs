@@ -94,9 +94,9 @@ pub fn read_pool(table: &RawTable, spec: &UnitCompareSpec, name: Option<&str>) -
         return Err(CalibrateError::EmptyGroup { what: "pool", path: table.path().to_path_buf() });
     }
     let outcome = vals.remove(0);
-    let name = name.map(str::to_string).unwrap_or_else(|| {
-        table.path().file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| "pool".into())
-    });
+    let name = name
+        .map(str::to_string)
+        .unwrap_or_else(|| Some(table.short_name()).filter(|s| !s.is_empty()).unwrap_or_else(|| "pool".into()));
     Ok(Pool {
         name,
         input: table.info(),

@@ -226,7 +226,13 @@ pub fn write_outputs(common: &Common, outcome: &crate::verbs::Outcome) -> anyhow
     if let Some(dir) = &common.out {
         let out = OutDir::prepare(dir, common.force)?;
         write_draws(&dir.join("draws.parquet"), &outcome.finished.draws)?;
-        let analysis = report_analysis(outcome, &outcome.headline, None, &result.verb, None);
+        // rerun into the same folder: the reproduce command overwrites it
+        let mut args: Vec<String> = std::env::args().collect();
+        if !args.iter().any(|a| a == "--force") {
+            args.push("--force".into());
+        }
+        let input = single_report(outcome, crate::study::shell_line(&args));
+        let analysis = &input.analyses[0];
         aftercast_report::charts::write_all(
             &analysis.result,
             &analysis.draws,
@@ -234,26 +240,26 @@ pub fn write_outputs(common: &Common, outcome: &crate::verbs::Outcome) -> anyhow
             &dir.join("charts"),
             &analysis.stem,
         )?;
-        // rerun into the same folder: the reproduce command overwrites it
-        let mut args: Vec<String> = std::env::args().collect();
-        if !args.iter().any(|a| a == "--force") {
-            args.push("--force".into());
-        }
-        let command = crate::study::shell_line(&args);
-        let input = aftercast_report::html::ReportInput {
-            title: format!("aftercast {}: {}", result.verb, outcome.headline),
-            question: outcome.headline.clone(),
-            analyses: vec![analysis],
-            tables: Vec::new(),
-            command,
-            study_file: None,
-        };
         aftercast_report::html::write(&input, &dir.join("report.html"))?;
         // result.json last: its presence says every other output is complete
         aftercast_report::write_json(&dir.join("result.json"), result)?;
         out.finish();
     }
     Ok(())
+}
+
+/// The report of one analysis verb's outcome; `command` is how to reproduce it (a command
+/// line, or the Python call).
+pub fn single_report(outcome: &crate::verbs::Outcome, command: String) -> aftercast_report::html::ReportInput {
+    let result = &outcome.finished.result;
+    aftercast_report::html::ReportInput {
+        title: format!("aftercast {}: {}", result.verb, outcome.headline),
+        question: outcome.headline.clone(),
+        analyses: vec![report_analysis(outcome, &outcome.headline, None, &result.verb, None)],
+        tables: Vec::new(),
+        command,
+        study_file: None,
+    }
 }
 
 /// Write the kept draws as Parquet (format in docs/results.md), atomically.

@@ -14,11 +14,24 @@ use std::sync::{Arc, OnceLock};
 
 static FLAG: OnceLock<Result<Arc<AtomicBool>, String>> = OnceLock::new();
 
-/// The process-wide stop flag raised by Ctrl-C.
+/// Whether this process handles Ctrl-C itself (the binary does; a program embedding the verbs,
+/// such as the Python package, keeps the signal and stops runs through `aftercast_core::stop`).
+static HANDLE_CTRL_C: AtomicBool = AtomicBool::new(false);
+
+/// Let [`stop_flag`] install the Ctrl-C handler (called by the binary).
+pub fn handle_ctrl_c() {
+    HANDLE_CTRL_C.store(true, Ordering::SeqCst);
+}
+
+/// The process-wide stop flag raised by Ctrl-C (never raised when the process does not handle
+/// Ctrl-C itself: [`handle_ctrl_c`]).
 ///
 /// # Errors
 /// The handler could not be installed (another handler owns the signal); the message says why.
 pub fn stop_flag() -> Result<Arc<AtomicBool>, String> {
+    if !HANDLE_CTRL_C.load(Ordering::SeqCst) {
+        return Ok(Arc::new(AtomicBool::new(false)));
+    }
     FLAG.get_or_init(|| {
         let flag = Arc::new(AtomicBool::new(false));
         let f2 = Arc::clone(&flag);

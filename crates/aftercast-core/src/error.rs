@@ -13,22 +13,38 @@ pub struct Location {
     pub column: Option<usize>,
     /// Column name as given in the header.
     pub column_name: Option<String>,
+    /// `line` counts the rows of a table held in memory from 0 (its positions), not the lines
+    /// of a file: messages say "row".
+    pub rows: bool,
 }
 
 impl Location {
     /// A location naming only the file.
     pub fn file(file: impl Into<PathBuf>) -> Self {
-        Self { file: file.into(), line: None, column: None, column_name: None }
+        Self { file: file.into(), line: None, column: None, column_name: None, rows: false }
     }
 
     /// A location naming file, line, column position and column name.
     pub fn cell(file: impl Into<PathBuf>, line: u64, column: usize, name: &str) -> Self {
-        Self { file: file.into(), line: Some(line), column: Some(column), column_name: Some(name.to_string()) }
+        Self {
+            file: file.into(),
+            line: Some(line),
+            column: Some(column),
+            column_name: Some(name.to_string()),
+            rows: false,
+        }
     }
 
     /// A location naming file and line.
     pub fn line(file: impl Into<PathBuf>, line: u64) -> Self {
-        Self { file: file.into(), line: Some(line), column: None, column_name: None }
+        Self { file: file.into(), line: Some(line), column: None, column_name: None, rows: false }
+    }
+}
+
+impl Location {
+    /// What `line` counts: "line" (of a file) or "row" (of a table in memory).
+    pub fn counted(&self) -> &'static str {
+        if self.rows { "row" } else { "line" }
     }
 }
 
@@ -36,7 +52,7 @@ impl std::fmt::Display for Location {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         write!(f, "{}", self.file.display())?;
         if let Some(l) = self.line {
-            write!(f, ", line {l}")?;
+            write!(f, ", {} {l}", self.counted())?;
         }
         match (&self.column, &self.column_name) {
             (Some(c), Some(n)) => write!(f, ", column {c} ('{}')", shown(n))?,
@@ -95,7 +111,7 @@ pub enum DataError {
         path: PathBuf,
     },
     /// The file has a header and no data rows.
-    #[error("{}: the file has a header but no data rows", path.display())]
+    #[error("{}: a header but no data rows", path.display())]
     NoRows {
         /// The file.
         path: PathBuf,
@@ -129,7 +145,7 @@ pub enum DataError {
         name: String,
     },
     /// A column the analysis needs is not in the file.
-    #[error("{}: no column named '{}' (the file has: {})", path.display(), crate::error::shown(name), crate::error::shown(&available.join(", ")))]
+    #[error("{}: no column named '{}' (the columns are: {})", path.display(), crate::error::shown(name), crate::error::shown(&available.join(", ")))]
     MissingColumn {
         /// The file.
         path: PathBuf,
@@ -173,7 +189,7 @@ pub enum DataError {
         at: Location,
     },
     /// The same time appears twice in a series, or the same unit and time twice in a panel.
-    #[error("{at}: duplicate {what} '{}' (first seen on line {first_line})", crate::error::shown(key))]
+    #[error("{at}: duplicate {what} '{}' (first seen on {} {first_line})", crate::error::shown(key), at.counted())]
     Duplicate {
         /// Where the second occurrence is.
         at: Location,

@@ -13,6 +13,8 @@
 //! # Ok::<(), aftercast_core::error::DataError>(())
 //! ```
 
+#[cfg(feature = "arrow")]
+mod arrow_read;
 pub mod budget;
 pub mod column;
 pub mod csv_read;
@@ -20,6 +22,8 @@ pub mod csv_read;
 pub mod draws_file;
 pub mod error;
 pub mod estimate;
+#[cfg(feature = "arrow")]
+pub mod frame;
 pub mod output;
 pub mod panel;
 #[cfg(feature = "parquet")]
@@ -28,6 +32,7 @@ pub mod policy;
 pub mod progress;
 pub mod result;
 pub mod series;
+pub mod stop;
 pub mod table;
 pub mod time;
 pub mod units;

@@ -235,7 +235,13 @@ fn regular_axis(table: &RawTable, points: &[TimePoint]) -> DataResult<TimeAxis> 
                 .find(|&r| table.header().iter().enumerate().any(|(c, _)| table.kept(c) && table.text(r, c) == wanted))
                 .map(|r| table.line(r));
             return Err(DataError::Irregular {
-                at: crate::error::Location { file: table.path().to_path_buf(), line, column: None, column_name: None },
+                at: crate::error::Location {
+                    file: table.path().to_path_buf(),
+                    line,
+                    column: None,
+                    column_name: None,
+                    rows: table.in_memory(),
+                },
                 text: w[1].to_string(),
                 previous: w[0].to_string(),
                 detail: format!("periods missing from the panel's {freq:?} grid").to_lowercase(),

@@ -45,8 +45,9 @@ pub struct Stage {
     active: bool,
 }
 
-/// Begin a stage.
+/// Begin a stage (a run asked to stop unwinds here: [`crate::stop`]).
 pub fn stage(what: impl AsRef<str>, total: Option<u64>) -> Stage {
+    crate::stop::check();
     match REPORTER.get() {
         Some(r) => Stage { active: r.begin(what.as_ref(), total) },
         None => Stage { active: false },
@@ -54,8 +55,9 @@ pub fn stage(what: impl AsRef<str>, total: Option<u64>) -> Stage {
 }
 
 impl Stage {
-    /// `n` more units of this stage are done.
+    /// `n` more units of this stage are done (a run asked to stop unwinds here).
     pub fn advance(&self, n: u64) {
+        crate::stop::check();
         if self.active
             && let Some(r) = REPORTER.get()
         {

@@ -20,6 +20,8 @@ pub enum Format {
     Csv,
     /// Apache Parquet (flat schema of numbers, strings, booleans and dates).
     Parquet,
+    /// A table handed over in memory by an embedding program ([`crate::frame`]).
+    Frame,
 }
 
 impl Format {
@@ -28,6 +30,7 @@ impl Format {
         match self {
             Format::Csv => "CSV",
             Format::Parquet => "Parquet",
+            Format::Frame => "data frame",
         }
     }
 
@@ -64,6 +67,10 @@ pub struct RawTable {
     columns: Vec<Option<Column>>,
     lines: Lines,
     rows: usize,
+    /// A table handed over in memory ([`crate::frame`]): rows counted from 0.
+    in_memory: bool,
+    /// The short name of a table handed over in memory (a file's is its stem).
+    short: Option<String>,
 }
 
 /// Which columns to keep and how: by name; columns not named are not kept.
@@ -112,7 +119,7 @@ impl Projection {
     /// # Errors
     /// [`DataError::MissingColumn`] for the first column asked for that the header lacks.
     pub fn checked_kinds(&self, path: &Path, header: &[String]) -> DataResult<Vec<Option<ColumnKind>>> {
-        header_index(path, header)?;
+        header_index(path, header, false)?;
         if let Some((name, _)) = self.wanted.iter().find(|(n, _)| !header.contains(n)) {
             return Err(DataError::MissingColumn {
                 path: path.to_path_buf(),
@@ -146,6 +153,10 @@ impl RawTable {
     /// As [`RawTable::read`].
     pub fn read_columns(path: impl AsRef<Path>, projection: &Projection) -> DataResult<Self> {
         let path = path.as_ref();
+        #[cfg(feature = "arrow")]
+        if let Some(frame) = crate::frame::lookup(path) {
+            return Self::from_frame(path, &frame, projection);
+        }
         let file = open_input(path)?;
         match Format::from_path(path) {
             Format::Csv => {
@@ -154,8 +165,60 @@ impl RawTable {
                 let parts = crate::csv_read::read_csv(path, file, &kinds, CsvChunking::default(), size)?;
                 Self::from_csv_parts(path, parts)
             }
-            Format::Parquet => Self::from_parquet_file(path, file, projection),
+            Format::Parquet | Format::Frame => Self::from_parquet_file(path, file, projection),
         }
+    }
+
+    /// Keep the columns of `projection` of a table held in memory, typed as a file's would be;
+    /// `name` is what messages call it. Rows are counted from 0 (the frame's positions). The
+    /// recorded SHA-256 is that of the kept columns' names and cells as text, columns in name
+    /// order.
+    ///
+    /// # Errors
+    /// As [`RawTable::read`].
+    #[cfg(feature = "arrow")]
+    pub fn from_frame(name: &Path, frame: &crate::frame::Frame, projection: &Projection) -> DataResult<Self> {
+        use sha2::{Digest, Sha256};
+        let header: Vec<String> = frame.schema.fields().iter().map(|f| f.name().clone()).collect();
+        header_index(name, &header, true)?;
+        if let Some((missing, _)) = projection.wanted.iter().find(|(n, _)| !header.contains(n)) {
+            return Err(DataError::MissingColumn {
+                path: name.to_path_buf(),
+                name: missing.clone(),
+                available: header,
+            });
+        }
+        let kinds = projection.kinds(&header);
+        let mut columns: Vec<Option<Column>> = kinds.iter().map(|k| k.map(Column::new)).collect();
+        for batch in &frame.batches {
+            for (c, col) in columns.iter_mut().enumerate() {
+                let Some(col) = col.as_mut() else { continue };
+                crate::arrow_read::append_array(name, &header[c], batch.column(c).as_ref(), col)?;
+            }
+        }
+        let rows = frame.rows();
+        for col in columns.iter_mut().flatten() {
+            col.seal();
+        }
+        // the kept columns by name: the fingerprint of the data the analysis used, whatever the
+        // order of the frame's columns
+        let mut kept: Vec<usize> = (0..header.len()).filter(|&c| columns[c].is_some()).collect();
+        kept.sort_by(|&a, &b| header[a].cmp(&header[b]));
+        let mut hasher = Sha256::new();
+        for c in kept {
+            let Some(col) = columns[c].as_ref() else { continue };
+            hasher.update(header[c].as_bytes());
+            for r in 0..rows {
+                hasher.update(b"\n");
+                hasher.update(col.text(r).as_bytes());
+            }
+            hasher.update(b"\0");
+        }
+        let sha256 = crate::csv_read::hex(&hasher.finalize());
+        let mut table =
+            Self::assemble(name, Format::Frame, sha256, header, columns, Lines::Regular { first: 0 }, rows)?;
+        table.short = Some(frame.short.clone());
+        Ok(table)
     }
 
     /// Parse CSV bytes, every column as text; `path` is used in messages only.
@@ -202,7 +265,8 @@ impl RawTable {
         lines: Lines,
         rows: usize,
     ) -> DataResult<Self> {
-        let index = header_index(path, &header)?;
+        let in_memory = matches!(format, Format::Frame);
+        let index = header_index(path, &header, in_memory)?;
         // columns address their rows with 32-bit numbers
         if rows > u32::MAX as usize {
             return Err(DataError::Invalid {
@@ -213,7 +277,18 @@ impl RawTable {
         if rows == 0 {
             return Err(DataError::NoRows { path: path.to_path_buf() });
         }
-        Ok(Self { path: path.to_path_buf(), format, sha256, header, index, columns, lines, rows })
+        Ok(Self {
+            path: path.to_path_buf(),
+            format,
+            sha256,
+            header,
+            index,
+            columns,
+            lines,
+            rows,
+            in_memory,
+            short: None,
+        })
     }
 
     #[cfg(feature = "parquet")]
@@ -319,7 +394,26 @@ impl RawTable {
 
     /// The location of one cell, for messages.
     pub fn at(&self, row: usize, col: usize) -> Location {
-        Location::cell(&self.path, self.line(row), col + 1, &self.header[col])
+        Location { rows: self.in_memory, ..Location::cell(&self.path, self.line(row), col + 1, &self.header[col]) }
+    }
+
+    /// The table's short name where a result names it: a file's stem, or the name a table in
+    /// memory was handed over with.
+    pub fn short_name(&self) -> String {
+        match &self.short {
+            Some(s) => s.clone(),
+            None => self.path.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default(),
+        }
+    }
+
+    /// Whether the table was handed over in memory (rows counted from 0, messages say "row").
+    pub fn in_memory(&self) -> bool {
+        self.in_memory
+    }
+
+    /// Where data row `r` is, for messages: "line 12" of a file, "row 10" of a table in memory.
+    pub fn place(&self, r: usize) -> String {
+        format!("{} {}", if self.in_memory { "row" } else { "line" }, self.line(r))
     }
 
     /// One cell as text (as written, trimmed).
@@ -371,18 +465,18 @@ impl RawTable {
 }
 
 /// Position of each column name, refusing an empty or repeated name.
-fn header_index(path: &Path, header: &[String]) -> DataResult<HashMap<String, usize>> {
+fn header_index(path: &Path, header: &[String], in_memory: bool) -> DataResult<HashMap<String, usize>> {
     let mut index = HashMap::new();
     for (i, name) in header.iter().enumerate() {
         if name.is_empty() {
             return Err(DataError::Invalid {
-                at: Location { file: path.to_path_buf(), line: Some(1), column: Some(i + 1), column_name: None },
+                at: Location { line: (!in_memory).then_some(1), column: Some(i + 1), ..Location::file(path) },
                 message: "header cell is empty; every column needs a name".into(),
             });
         }
         if index.insert(name.clone(), i).is_some() {
             return Err(DataError::DuplicateColumn {
-                at: Location { file: path.to_path_buf(), line: Some(1), column: Some(i + 1), column_name: None },
+                at: Location { line: (!in_memory).then_some(1), column: Some(i + 1), ..Location::file(path) },
                 name: name.clone(),
             });
         }

@@ -86,6 +86,8 @@ impl<F: Fn(&[f64]) -> f64 + Sync> Gradient for Problem<'_, F> {
 /// the number of threads.
 pub fn numerical_gradient(f: &(dyn Fn(&[f64]) -> f64 + Sync), x: &[f64], h: f64) -> Vec<f64> {
     use rayon::prelude::*;
+    // every optimiser step passes here: a run asked to stop unwinds (aftercast_core::stop)
+    aftercast_core::stop::check();
     let evals: Vec<f64> = (0..2 * x.len())
         .into_par_iter()
         .map(|k| {

@@ -1433,6 +1433,88 @@ pub fn render(input: &ReportInput) -> String {
     out
 }
 
+/// The report's styles with every rule confined to the elements under `root` (a class
+/// selector): a page that embeds a fragment (a notebook) keeps its own look. `:root`, `html`
+/// and `body` become `root` itself; print rules are left out.
+fn scoped_css(root: &str) -> String {
+    let mut out = String::new();
+    let mut skip = 0usize;
+    for line in CSS.lines() {
+        let t = line.trim();
+        if t.is_empty() {
+            continue;
+        }
+        if skip > 0 {
+            skip = skip + t.matches('{').count() - t.matches('}').count();
+            continue;
+        }
+        if t.starts_with("@media print") {
+            skip = 1;
+            continue;
+        }
+        if t.starts_with('@') || t == "}" {
+            out.push_str(t);
+            out.push('\n');
+            continue;
+        }
+        let Some((selectors, body)) = t.split_once('{') else { continue };
+        let scoped: Vec<String> = selectors
+            .split(',')
+            .map(|sel| {
+                let sel = sel.trim();
+                match sel {
+                    ":root" | "html" | "body" => root.to_string(),
+                    _ => format!("{root} {sel}"),
+                }
+            })
+            .collect();
+        out.push_str(&scoped.join(","));
+        out.push('{');
+        out.push_str(body);
+        out.push('\n');
+    }
+    out
+}
+
+/// One analysis as a notebook cell shows it: the answer card, the lead chart (inline SVG), the
+/// warnings, what the estimate rests on and the caution, in one `<div>` whose styles apply to it alone. No scripts, nothing fetched.
+pub fn fragment(a: &ReportAnalysis) -> String {
+    let mut out = String::with_capacity(64 * 1024);
+    let _ = writeln!(out, "<div class=\"aftercast-cell\"><style>{}</style>", scoped_css(".aftercast-cell"));
+    out.push_str("<div class=\"answers\">\n");
+    let mut card = String::new();
+    other_card(&mut card, a, 0);
+    // the card's link leads to the full report's details, which a notebook cell does not hold
+    if let Some(i) = card.find("<p class=\"more\">")
+        && let Some(j) = card[i..].find("</p>")
+    {
+        card.replace_range(i..i + j + 4, "");
+    }
+    out.push_str(&card);
+    out.push_str("</div>\n");
+    let charts = charts::charts_for(&a.result, &a.draws, &a.figures, &a.stem);
+    if let Some(c) = charts.first() {
+        figure(&mut out, c);
+    }
+    let warnings = all_warnings(&a.result);
+    if !warnings.is_empty() {
+        out.push_str("<ul class=\"warnings\">\n");
+        for w in &warnings {
+            let _ = writeln!(out, "<li>{}</li>", escape(w));
+        }
+        out.push_str("</ul>\n");
+    }
+    if !a.result.assumptions.is_empty() {
+        out.push_str("<p><b>What this rests on</b></p>\n<ul class=\"rests\">\n");
+        for s in &a.result.assumptions {
+            let _ = writeln!(out, "<li>{}</li>", escape(s));
+        }
+        out.push_str("</ul>\n");
+    }
+    let _ = writeln!(out, "<p class=\"caution\">{}</p>\n</div>", escape(CAUTION));
+    out
+}
+
 /// Render and write the report atomically.
 ///
 /// # Errors

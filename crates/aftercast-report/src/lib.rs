@@ -48,9 +48,17 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), ReportError> {
 /// # Errors
 /// [`ReportError`].
 pub fn write_json<T: serde::Serialize>(path: &Path, value: &T) -> Result<(), ReportError> {
+    write_atomic(path, &json_bytes(value)?)
+}
+
+/// A result document as written to a file: pretty JSON ending in a newline.
+///
+/// # Errors
+/// [`ReportError`] when the value cannot be serialised.
+pub fn json_bytes<T: serde::Serialize>(value: &T) -> Result<Vec<u8>, ReportError> {
     let mut bytes = serde_json::to_vec_pretty(value)?;
     bytes.push(b'\n');
-    write_atomic(path, &bytes)
+    Ok(bytes)
 }
 
 /// A small table a verb hands to the terminal summary and the report beside the effect rows

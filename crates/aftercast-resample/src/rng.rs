@@ -121,6 +121,7 @@ where
     (0..n)
         .into_par_iter()
         .map(|i| {
+            aftercast_core::stop::check();
             let mut s = Stream::new(seed, i as u64);
             let out = f(i, &mut s);
             stage.advance(1);
@@ -136,6 +137,7 @@ where
 {
     (0..n)
         .map(|i| {
+            aftercast_core::stop::check();
             let mut s = Stream::new(seed, i as u64);
             f(i, &mut s)
         })

@@ -439,6 +439,7 @@ fn run_placebos(prep: &Prepared, p: &SynthParams, engine: &Engine<'_>, units: &[
         .donors
         .par_iter()
         .map(|&d| {
+            aftercast_core::stop::check();
             let pool: Vec<usize> = prep.donors.iter().copied().filter(|&x| x != d).collect();
             let core = engine.fit(d, &pool)?;
             let gap: Vec<f64> = prep.y[d].iter().zip(&core.synthetic).map(|(y, s)| y - s).collect();

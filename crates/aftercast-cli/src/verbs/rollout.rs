@@ -95,7 +95,7 @@ fn classify(e: DidError) -> anyhow::Error {
 fn segments(table: &aftercast_core::RawTable, a: &Args, col: &str, panel: &Panel) -> anyhow::Result<Vec<String>> {
     let uc = table.column(&a.unit).map_err(bad_input)?;
     let sc = table.column(col).map_err(bad_input)?;
-    let mut seen: BTreeMap<String, (String, u64)> = BTreeMap::new();
+    let mut seen: BTreeMap<String, (String, String)> = BTreeMap::new();
     for r in 0..table.row_count() {
         let u = table.text(r, uc).to_string();
         let s = table.text(r, sc).trim().to_string();
@@ -105,13 +105,13 @@ fn segments(table: &aftercast_core::RawTable, a: &Args, col: &str, panel: &Panel
         match seen.get(&u) {
             Some((first, line)) if *first != s => {
                 return Err(bad_input_msg(format!(
-                    "{}: unit '{u}' is in segment '{first}' on line {line} and '{s}' here; --by {col} needs one value per unit",
+                    "{}: unit '{u}' is in segment '{first}' on {line} and '{s}' here; --by {col} needs one value per unit",
                     table.at(r, sc)
                 )));
             }
             Some(_) => {}
             None => {
-                seen.insert(u, (s, table.line(r)));
+                seen.insert(u, (s, table.place(r)));
             }
         }
     }
