@@ -83,6 +83,7 @@ fn cases() -> Vec<Case> {
             expect: &["line 8, column 3 ('ctrl')", "value is missing"],
         },
         Case { file: "not_utf8.csv", args: SERIES, expect: &["line 3", "not valid UTF-8"] },
+        Case { file: "missing_date.csv", args: SERIES, expect: &["line 4, column 1 ('date')", "the date is missing"] },
         Case { file: "day_first_dates.csv", args: SERIES, expect: &["line 2, column 1", "'01/01/2024' is not a date"] },
         Case {
             file: "bad_date.csv",
@@ -210,6 +211,12 @@ fn a_folder_given_as_data_is_bad_input() {
 fn usage_errors_exit_2() {
     let (code, _, _) = run(&["inspect".into(), "--no-such-flag".into()]);
     assert_eq!(code, Some(2));
+    // a plan's bootstrap draws per run take the analysis's own range (at least 50)
+    let members = format!("{}/../../demo-data/members.csv", env!("CARGO_MANIFEST_DIR"));
+    let plan = ["plan", "match", "--data", &members, "--treatment", "joined", "--outcome", "spend_90d"];
+    let (code, _, err) = run(&owned(&[&plan[..], &["--covariates", "spend_pre", "--run-draws", "40"]].concat()));
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("--run-draws") && err.contains("50"), "{err}");
     let (code, _, _) = run(&["no-such-verb".into()]);
     assert_eq!(code, Some(2));
 }

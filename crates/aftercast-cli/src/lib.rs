@@ -123,6 +123,12 @@ pub fn dispatch(verb: &Verb) -> anyhow::Result<()> {
     }
 }
 
+/// Whether a flag (its long name, `"pool"`) takes an input table: a file path on the command
+/// line, a table handed over in memory by an embedding program.
+pub fn takes_table(long: &str) -> bool {
+    study::PATH_FLAGS.contains(&long)
+}
+
 /// A usage error of the flags in one line, without the "error: " prefix: the offending value
 /// escaped and cut as every error shows user text, the list of missing arguments kept.
 pub fn usage_line(e: &clap::Error) -> String {

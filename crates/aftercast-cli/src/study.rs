@@ -78,7 +78,7 @@ pub struct AnalysisSpec {
 const RESERVED: &[&str] = &["json", "out", "force", "quiet", "threads"];
 
 /// Flags whose values are input files, resolved against the study file's folder.
-const PATH_FLAGS: &[&str] =
+pub(crate) const PATH_FLAGS: &[&str] =
     &["data", "events", "experiment", "pool", "exposures", "calendar", "plasmode", "arms-data", "summarize", "starts"];
 
 /// Flags whose values are files the analysis writes: they resolve inside the run's output

@@ -5,6 +5,7 @@
 
 use crate::column::Column;
 use crate::error::{DataError, DataResult, Location};
+use arrow_array::timezone::Tz;
 use arrow_array::{Array, cast::AsArray, types};
 use arrow_schema::{DataType, TimeUnit};
 use std::path::Path;
@@ -112,7 +113,7 @@ fn cell_text(path: &Path, name: &str, col: &dyn Array, r: usize) -> DataResult<S
             let ms = col.as_primitive::<types::Date64Type>().value(r);
             days_to_iso(ms.div_euclid(86_400_000))
         }
-        DataType::Timestamp(unit, _) => {
+        DataType::Timestamp(unit, zone) => {
             let v = match unit {
                 TimeUnit::Second => col.as_primitive::<types::TimestampSecondType>().value(r),
                 TimeUnit::Millisecond => col.as_primitive::<types::TimestampMillisecondType>().value(r),
@@ -126,10 +127,28 @@ fn cell_text(path: &Path, name: &str, col: &dyn Array, r: usize) -> DataResult<S
                 TimeUnit::Nanosecond => 1_000_000_000,
             };
             let secs = v.div_euclid(per_sec);
-            match chrono::DateTime::from_timestamp(secs, 0) {
-                Some(dt) if secs.rem_euclid(86_400) == 0 => dt.date_naive().to_string(),
-                Some(dt) => dt.format("%Y-%m-%dT%H:%M:%SZ").to_string(),
-                None => return Err(malformed(path, format!("column '{name}': timestamp out of range"))),
+            let Some(utc) = chrono::DateTime::from_timestamp(secs, 0) else {
+                return Err(malformed(path, format!("column '{name}': timestamp out of range")));
+            };
+            match zone {
+                // a time with no zone is the wall time written
+                None => {
+                    if secs.rem_euclid(86_400) == 0 {
+                        utc.date_naive().to_string()
+                    } else {
+                        utc.format("%Y-%m-%dT%H:%M:%SZ").to_string()
+                    }
+                }
+                // an instant with a zone is written in the wall time of its zone with its
+                // offset: the same instant, and midnight in Berlin reads as that day in Berlin
+                // (crate::time::parse_time), whatever the hour in UTC
+                Some(zone) => {
+                    let tz: Tz = zone.parse().map_err(|_| DataError::Invalid {
+                        at: Location { column_name: Some(name.to_string()), ..Location::file(path) },
+                        message: format!("time zone '{}' is not known", crate::error::shown(zone)),
+                    })?;
+                    utc.with_timezone(&tz).format("%Y-%m-%dT%H:%M:%S%:z").to_string()
+                }
             }
         }
         other => {
@@ -146,4 +165,51 @@ fn cell_text(path: &Path, name: &str, col: &dyn Array, r: usize) -> DataResult<S
 fn days_to_iso(days: i64) -> String {
     let epoch = chrono::NaiveDate::from_ymd_opt(1970, 1, 1).unwrap_or_default();
     epoch.checked_add_signed(chrono::Duration::days(days)).map(|d| d.to_string()).unwrap_or_else(|| format!("{days}"))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::append_array;
+    use crate::column::{Column, ColumnKind};
+    use arrow_array::TimestampSecondArray;
+    use std::path::Path;
+
+    fn texts(array: &TimestampSecondArray) -> Vec<String> {
+        let mut col = Column::new(ColumnKind::Text);
+        append_array(Path::new("t"), "date", array, &mut col).expect("read");
+        (0..col.len()).map(|r| col.text(r).into_owned()).collect()
+    }
+
+    #[test]
+    fn a_zoned_instant_is_its_zones_wall_time() {
+        // 2026-03-01T23:00:00Z is midnight of 2 March in Berlin (UTC+1 in winter) and
+        // 2026-06-30T22:00:00Z midnight of 1 July (UTC+2 in summer): the IANA rules
+        let secs = [1_772_406_000, 1_782_856_800, 1_772_409_600];
+        let berlin = TimestampSecondArray::from(secs.to_vec()).with_timezone("Europe/Berlin");
+        assert_eq!(
+            texts(&berlin),
+            ["2026-03-02T00:00:00+01:00", "2026-07-01T00:00:00+02:00", "2026-03-02T01:00:00+01:00"]
+        );
+        // 2026-03-02T05:00:00Z is midnight of 2 March at a fixed UTC-5
+        let offset = TimestampSecondArray::from(vec![1_772_406_000, 1_772_427_600]).with_timezone("-05:00");
+        assert_eq!(texts(&offset), ["2026-03-01T18:00:00-05:00", "2026-03-02T00:00:00-05:00"]);
+        let naive = TimestampSecondArray::from(vec![1_772_409_600, 1_772_406_000]);
+        assert_eq!(texts(&naive), ["2026-03-02", "2026-03-01T23:00:00Z"]);
+        // a zoned midnight is its zone's date to a time column
+        let day =
+            |s: &str| crate::time::parse_time(s, &crate::time::DateFormat::Iso, || crate::error::Location::file("t"));
+        for (text, date) in [("2026-03-02T00:00:00+01:00", "2026-03-02"), ("2026-07-01T00:00:00-05:00", "2026-07-01")] {
+            assert_eq!(day(text).expect("a date").to_string(), date);
+        }
+        assert!(day("2026-03-02T01:00:00+01:00").is_err());
+    }
+
+    #[test]
+    fn an_unknown_zone_names_the_column() {
+        let bad = TimestampSecondArray::from(vec![0]).with_timezone("Mars/Olympus");
+        let mut col = Column::new(ColumnKind::Text);
+        let e = append_array(Path::new("t"), "date", &bad, &mut col).expect_err("unknown zone");
+        let m = e.to_string();
+        assert!(m.contains("'date'") && m.contains("Mars/Olympus"), "{m}");
+    }
 }

@@ -180,6 +180,12 @@ pub enum DataError {
         /// The expected form, e.g. "ISO 8601 (YYYY-MM-DD)".
         expected: String,
     },
+    /// A cell that must hold a date is empty.
+    #[error("{at}: the date is missing (an empty or NA cell); every row needs one")]
+    MissingDate {
+        /// Where.
+        at: Location,
+    },
     /// A required value is empty and the missing-value policy is `Error`.
     #[error(
         "{at}: value is missing (an empty or NA cell); series and unit tables can leave such rows out with --missing drop-row"

@@ -86,23 +86,24 @@ impl DateFormat {
 }
 
 /// Parse a time cell. Integers (optionally signed) are periods unless a pattern is given;
-/// otherwise an ISO date (a trailing `T00:00:00` or `T00:00:00Z` is allowed).
+/// otherwise an ISO date. A midnight after it is allowed: `T00:00:00`, `T00:00:00Z`, a space
+/// instead of the `T`, or a UTC offset (`T00:00:00+01:00`: midnight where the time was written is
+/// that date, as a zoned timestamp of a Parquet file or data frame is read).
 ///
 /// # Errors
 /// [`DataError::BadDate`] at `at`.
 pub fn parse_time(text: &str, format: &DateFormat, at: impl FnOnce() -> Location) -> DataResult<TimePoint> {
     let t = text.trim();
+    if t.is_empty() {
+        return Err(DataError::MissingDate { at: at() });
+    }
     let bad = |at: Location| DataError::BadDate { at, text: text.to_string(), expected: format.describe() };
     match format {
         DateFormat::Iso => {
             if !t.is_empty() && t.trim_start_matches('-').chars().all(|c| c.is_ascii_digit()) && t.len() <= 9 {
                 return t.parse::<i64>().map(TimePoint::Period).map_err(|_| bad(at()));
             }
-            let date_part = t
-                .strip_suffix("T00:00:00Z")
-                .or_else(|| t.strip_suffix("T00:00:00"))
-                .or_else(|| t.strip_suffix(" 00:00:00"))
-                .unwrap_or(t);
+            let date_part = strip_midnight(t);
             if date_part.len() != 10 {
                 return Err(bad(at()));
             }
@@ -110,6 +111,23 @@ pub fn parse_time(text: &str, format: &DateFormat, at: impl FnOnce() -> Location
         }
         DateFormat::Pattern(p) => NaiveDate::parse_from_str(t, p).map(TimePoint::Date).map_err(|_| bad(at())),
     }
+}
+
+/// `t` without a trailing midnight (`T00:00:00`, with `Z` or a `+HH:MM` / `-HH:MM` offset, or
+/// ` 00:00:00`) after its first ten characters.
+fn strip_midnight(t: &str) -> &str {
+    let Some((date, rest)) = t.split_at_checked(10) else { return t };
+    let zone = rest.strip_prefix("T00:00:00").or_else(|| rest.strip_prefix(" 00:00:00"));
+    let Some(zone) = zone else { return t };
+    let b = zone.as_bytes();
+    let offset = b.len() == 6
+        && matches!(b[0], b'+' | b'-')
+        && b[1].is_ascii_digit()
+        && b[2].is_ascii_digit()
+        && b[3] == b':'
+        && b[4].is_ascii_digit()
+        && b[5].is_ascii_digit();
+    if zone.is_empty() || zone == "Z" || offset { date } else { t }
 }
 
 fn month_index(d: NaiveDate) -> i64 {

@@ -66,7 +66,7 @@ fn import_table(py: Python<'_>, name: &str, short: &str, obj: &Bound<'_, PyAny>)
 }
 
 /// The options of a verb (`["forecast"]`, `["plan", "match"]`), read from the command line's
-/// own definitions: name, flag, help, default, whether required, a switch, a list, the choices.
+/// own definitions: name, flag, help, default, whether required, a switch, a list, takes a table, the choices.
 #[pyfunction]
 fn options<'py>(py: Python<'py>, path: Vec<String>) -> PyResult<Vec<Bound<'py, PyDict>>> {
     let mut cmd = Cli::command();
@@ -86,9 +86,11 @@ fn options<'py>(py: Python<'py>, path: Vec<String>) -> PyResult<Vec<Bound<'py, P
         let d = PyDict::new(py);
         d.set_item("name", id)?;
         d.set_item("flag", a.get_long().map(|l| format!("--{l}")))?;
+        d.set_item("table", a.get_long().is_some_and(aftercast_cli::takes_table))?;
         d.set_item("help", a.get_help().map(|h| h.to_string()).unwrap_or_default())?;
         d.set_item("required", a.is_required_set())?;
         d.set_item("switch", matches!(a.get_action(), ArgAction::SetTrue))?;
+        d.set_item("delimited", a.get_value_delimiter().is_some())?;
         d.set_item("list", matches!(a.get_action(), ArgAction::Append) || a.get_value_delimiter().is_some())?;
         let defaults: Vec<String> = a.get_default_values().iter().map(|v| v.to_string_lossy().into_owned()).collect();
         d.set_item("defaults", defaults)?;
@@ -99,23 +101,18 @@ fn options<'py>(py: Python<'py>, path: Vec<String>) -> PyResult<Vec<Bound<'py, P
     Ok(out)
 }
 
-/// Run one analysis: `argv` is the command line after `aftercast` (the verb first), `tables`
-/// the in-memory tables named in it (name in argv and messages, short name, table), `threads`
-/// the worker threads (default: all cores).
+/// Run one analysis: `argv` is the command line after `aftercast` (the verb first, `--threads`
+/// among its flags as the binary takes it), `tables` the in-memory tables named in it (name in
+/// argv and messages, short name, table).
 #[pyfunction]
-#[pyo3(signature = (argv, tables, threads=None))]
-fn run(
-    py: Python<'_>,
-    argv: Vec<String>,
-    tables: Vec<(String, String, Bound<'_, PyAny>)>,
-    threads: Option<usize>,
-) -> PyResult<Analysis> {
+fn run(py: Python<'_>, argv: Vec<String>, tables: Vec<(String, String, Bound<'_, PyAny>)>) -> PyResult<Analysis> {
     let mut frames = Vec::with_capacity(tables.len());
     for (name, short, obj) in &tables {
         frames.push((name.clone(), import_table(py, name, short, obj)?));
     }
     let cli = Cli::try_parse_from(std::iter::once("aftercast".to_string()).chain(argv))
         .map_err(|e| error(py, "OptionError", aftercast_cli::usage_line(&e)))?;
+    let threads = aftercast_cli::threads_of(&cli.verb).and_then(|n| usize::try_from(n).ok());
     // wait for a run of another thread to end (the interpreter released meanwhile)
     let _one = loop {
         match RUN.try_lock() {

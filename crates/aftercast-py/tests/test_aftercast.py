@@ -10,6 +10,7 @@ import html.parser
 import json
 import os
 import pathlib
+import re
 import signal
 import subprocess
 import threading
@@ -225,6 +226,82 @@ def test_a_file_path_reads_as_the_command_line_reads_it(tmp_path):
     assert r.to_json() == ac.match(DEMO / "members.csv", **MEMBERS_ARGS).to_json()
 
 
+def test_any_list_like_is_a_list(tmp_path):
+    members = read("members.csv")
+    covariates = MEMBERS_ARGS["covariates"]
+    want = ac.match(members, **MEMBERS_ARGS).to_json()
+    given = [
+        tuple(covariates),
+        pd.Series(covariates),
+        pd.Index(covariates),
+        members.columns[[members.columns.get_loc(c) for c in covariates]],
+        np.array(covariates),
+        pa.array(covariates),
+        pa.chunked_array([covariates]),
+        pd.Series(covariates, dtype="string"),
+        (c for c in covariates),
+    ]
+    for cov in given:
+        assert ac.match(members, **dict(MEMBERS_ARGS, covariates=cov)).to_json() == want, type(cov)
+    # a set has no order: its items are taken sorted, as written out in that order
+    in_order = dict(MEMBERS_ARGS, covariates=sorted(covariates))
+    assert ac.match(members, **dict(MEMBERS_ARGS, covariates=set(covariates))).to_json() == ac.match(members, **in_order).to_json()
+    with pytest.raises(TypeError, match="one-dimensional"):
+        ac.match(members, **dict(MEMBERS_ARGS, covariates=np.array([covariates, covariates])))
+    with pytest.raises(TypeError, match="'covariates' takes a list, not a DataFrame"):
+        ac.match(members, **dict(MEMBERS_ARGS, covariates=members[covariates]))
+
+
+def test_a_value_beginning_with_a_dash_is_a_value():
+    members = read("members.csv").rename(columns={"spend_pre": "-spend_pre"})
+    covariates = ["-spend_pre", "visits_pre", "tenure_months"]
+    r = ac.match(members, **dict(MEMBERS_ARGS, covariates=covariates))
+    plain = ac.match(read("members.csv"), **MEMBERS_ARGS)
+    assert r.estimate == plain.estimate
+    # and a negative lift of a plan is a number, not a flag
+    plan = ac.plan("match", read("members.csv"), **MEMBERS_ARGS, lifts=[-5], placebos=10, sizes=[400], run_draws=50)
+    assert plan.planning["power"]["lift"].tolist() == [-0.05]
+    assert not [w for w in plan.warnings if "failed" in w], plan.warnings
+    # the warnings name arguments, not flags
+    assert all("--" not in w for w in plan.warnings) and any("('level')" in w for w in plan.warnings)
+
+
+def test_a_comma_in_a_list_item_is_refused_not_split():
+    with pytest.raises(ac.OptionError, match=r"'covariates': 'spend_pre,visits_pre' holds a comma"):
+        ac.match(read("members.csv"), **dict(MEMBERS_ARGS, covariates=["spend_pre,visits_pre"]))
+
+
+def test_zoned_dates_periods_and_numpy_dates_read_as_their_days(forecast_result):
+    calendar = read("calendar.csv")
+    want = forecast_result.to_json()
+    doc = json.loads(want)
+    for zone in ("Europe/Berlin", "America/New_York", "Asia/Kolkata"):
+        zoned = read("app_daily.csv")
+        zoned["date"] = pd.to_datetime(zoned["date"]).dt.tz_localize(zone)
+        start = pd.Timestamp("2026-03-02", tz=zone)
+        # the same answer; the fingerprint is of the cells as read, which carry the zone
+        equal_but_inputs(ac.forecast(zoned, events=calendar, **dict(DAILY_ARGS, start=start)), doc)
+        # the same instants as a pyarrow table keep their zone
+        equal_but_inputs(ac.forecast(pa.Table.from_pandas(zoned), events=calendar, **DAILY_ARGS), doc)
+    periods = read("app_daily.csv")
+    periods["date"] = pd.PeriodIndex(periods["date"], freq="D")
+    start = pd.Period("2026-03-02", freq="D")
+    assert ac.forecast(periods, events=calendar, **dict(DAILY_ARGS, start=start)).to_json() == want
+    indexed = periods.set_index("date")
+    assert ac.forecast(indexed, events=calendar, **DAILY_ARGS).to_json() == want
+    numpy_start = dict(DAILY_ARGS, start=np.datetime64("2026-03-02"))
+    assert ac.forecast(read("app_daily.csv"), events=calendar, **numpy_start).to_json() == want
+
+
+def test_a_missing_date_is_named_as_missing():
+    daily = read("app_daily.csv", parse_dates=["date"])
+    daily.loc[5, "date"] = pd.NaT
+    with pytest.raises(ac.DataError, match=r"row 5, column 1 \('date'\): the date is missing"):
+        ac.forecast(daily, **DAILY_ARGS)
+    with pytest.raises(ac.OptionError, match="'start' is missing"):
+        ac.forecast(read("app_daily.csv"), **dict(DAILY_ARGS, start=pd.NaT))
+
+
 # --- errors -----------------------------------------------------------------------------------
 
 
@@ -274,6 +351,49 @@ def test_the_options_are_the_command_lines():
     assert "trend" in ac.forecast.__doc__
 
 
+def test_tables_pyarrow_cannot_take_raise_data_error_naming_the_argument():
+    members = read("members.csv")
+    twice = members.rename(columns={"visits_pre": "spend_pre"})
+    with pytest.raises(ac.DataError, match=r"DataFrame 'data': .*column 'spend_pre' appears more than once"):
+        ac.match(twice, **MEMBERS_ARGS)
+    odd = members.assign(z=np.full(len(members), 1 + 2j))
+    with pytest.raises(ac.DataError, match=r"DataFrame 'data': cannot be read as a table \(.*column z"):
+        ac.match(odd, **MEMBERS_ARGS)
+
+
+def test_table_arguments_say_what_they_take():
+    members = read("members.csv")
+    with pytest.raises(TypeError, match=r"match\(\): 'data' takes one table, not a dict"):
+        ac.match({"a": members}, **MEMBERS_ARGS)
+    with pytest.raises(TypeError, match=r"'data' takes a DataFrame, a pyarrow Table or a file path, not a int"):
+        ac.match(5, **MEMBERS_ARGS)
+    with pytest.raises(TypeError, match=r"'pool': a file is named after itself"):
+        ac.compare(DEMO / "past_test" / "experiment.csv", pool={"p": "x.csv"}, outcome="y")
+    with pytest.raises(ac.OptionError, match=r"'threads'"):
+        ac.match(members, **MEMBERS_ARGS, threads=-1)
+    with pytest.raises(ac.OptionError, match=r"'threads'"):
+        ac.match(members, **MEMBERS_ARGS, threads="x")
+
+
+def test_messages_and_help_speak_python():
+    # a flag with its value in a message is the argument with its value
+    verb = ac._verbs._PLAN_VERBS["forecast"]
+    said = verb.python_words("under --model auto, --min-train or --waits; use --missing drop-row with --log")
+    assert said == "under model='auto', 'min_train' or 'waits'; use missing='drop-row' with log=True"
+    doc = ac.forecast.__doc__
+    assert not re.search(r"--[a-z]", doc) and "comma-separated" not in doc
+    assert "model='auto' needs at least 1" in doc
+    # the plan's help lists each kind's own arguments; plan_options gives the whole signature
+    assert "plan('match', ...)" in ac.plan.__doc__ and "run_draws" in ac.plan.__doc__
+    import inspect
+
+    assert {"sizes", "run_draws", "treatment"} <= set(inspect.signature(ac.plan_options("match")).parameters)
+    with pytest.raises(TypeError, match=r"plan\('match'\) got an unexpected keyword argument 'waits'"):
+        ac.plan("match", read("members.csv"), waits=[4], **MEMBERS_ARGS)
+    with pytest.raises(ac.OptionError, match="the kind is one of"):
+        ac.plan("bogus", read("members.csv"))
+
+
 # --- the result object ------------------------------------------------------------------------
 
 
@@ -305,6 +425,7 @@ def test_path_is_indexed_by_date_with_the_counterfactual(forecast_result):
     assert isinstance(path.index, pd.DatetimeIndex)
     post = path[path["post"]]
     assert post.index[0] == pd.Timestamp("2026-03-02")
+    assert path.index.name == "date"  # the time column's name
     assert {"observed", "counterfactual", "lower", "upper", "effect", "effect_hdi_lower"} <= set(path.columns)
 
 

@@ -1438,42 +1438,62 @@ pub fn render(input: &ReportInput) -> String {
 /// and `body` become `root` itself; print rules are left out.
 fn scoped_css(root: &str) -> String {
     let mut out = String::new();
-    let mut skip = 0usize;
-    for line in CSS.lines() {
-        let t = line.trim();
-        if t.is_empty() {
+    scope_rules(CSS, root, &mut out);
+    out
+}
+
+/// The rules of `css` with every selector put under `root` (`:root`, `html` and `body` become
+/// `root` itself), rule by rule however many share a line; `@media` blocks are scoped inside,
+/// print rules and other at-rules left out (a notebook cell is not printed on its own).
+fn scope_rules(css: &str, root: &str, out: &mut String) {
+    let mut rest = css;
+    while let Some(open) = rest.find('{') {
+        let head = rest[..open].trim();
+        let Some(len) = block_len(&rest[open..]) else { return };
+        let body = &rest[open + 1..open + len - 1];
+        rest = &rest[open + len..];
+        if let Some(query) = head.strip_prefix("@media") {
+            if !query.trim_start().starts_with("print") {
+                out.push_str(head);
+                out.push_str("{\n");
+                scope_rules(body, root, out);
+                out.push_str("}\n");
+            }
             continue;
         }
-        if skip > 0 {
-            skip = skip + t.matches('{').count() - t.matches('}').count();
+        if head.starts_with('@') || head.is_empty() {
             continue;
         }
-        if t.starts_with("@media print") {
-            skip = 1;
-            continue;
-        }
-        if t.starts_with('@') || t == "}" {
-            out.push_str(t);
-            out.push('\n');
-            continue;
-        }
-        let Some((selectors, body)) = t.split_once('{') else { continue };
-        let scoped: Vec<String> = selectors
+        let scoped: Vec<String> = head
             .split(',')
-            .map(|sel| {
-                let sel = sel.trim();
-                match sel {
-                    ":root" | "html" | "body" => root.to_string(),
-                    _ => format!("{root} {sel}"),
-                }
+            .map(|sel| match sel.trim() {
+                ":root" | "html" | "body" => root.to_string(),
+                sel => format!("{root} {sel}"),
             })
             .collect();
         out.push_str(&scoped.join(","));
         out.push('{');
-        out.push_str(body);
-        out.push('\n');
+        out.push_str(body.trim());
+        out.push_str("}\n");
     }
-    out
+}
+
+/// The length of the block `text` opens with (from its `{` to the matching `}`, both counted).
+fn block_len(text: &str) -> Option<usize> {
+    let mut depth = 0usize;
+    for (i, c) in text.char_indices() {
+        match c {
+            '{' => depth += 1,
+            '}' => {
+                depth = depth.checked_sub(1)?;
+                if depth == 0 {
+                    return Some(i + 1);
+                }
+            }
+            _ => {}
+        }
+    }
+    None
 }
 
 /// One analysis as a notebook cell shows it: the answer card, the lead chart (inline SVG), the
@@ -1521,4 +1541,43 @@ pub fn fragment(a: &ReportAnalysis) -> String {
 /// [`ReportError::Write`].
 pub fn write(input: &ReportInput, path: &Path) -> Result<(), ReportError> {
     write_atomic(path, render(input).as_bytes())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::{CSS, scope_rules, scoped_css};
+
+    #[test]
+    fn every_rule_of_a_line_is_scoped() {
+        let mut out = String::new();
+        scope_rules(".a{color:red}.b,.c{color:blue}\nbody{margin:0}", ".cell", &mut out);
+        assert_eq!(out, ".cell .a{color:red}\n.cell .b,.cell .c{color:blue}\n.cell{margin:0}\n");
+    }
+
+    #[test]
+    fn media_blocks_are_scoped_inside_and_print_is_left_out() {
+        let mut out = String::new();
+        scope_rules("@media (max-width:9px){\n h1{x:1}\n}\n@media print{\n @page{m:1}\n h1{x:2}\n}\n", ".c", &mut out);
+        assert_eq!(out, "@media (max-width:9px){\n.c h1{x:1}\n}\n");
+    }
+
+    #[test]
+    fn no_selector_of_the_report_escapes_the_cell() {
+        let css = scoped_css(".aftercast-cell");
+        let mut rules = 0;
+        for line in css.lines() {
+            if line.starts_with("@media") || line == "}" {
+                continue;
+            }
+            rules += 1;
+            let (head, _) = line.split_once('{').unwrap_or((line, ""));
+            for sel in head.split(',') {
+                assert!(sel.starts_with(".aftercast-cell"), "unscoped selector '{sel}' in '{line}'");
+            }
+        }
+        // every rule of the stylesheet outside print is kept: its blocks less its one @media
+        let screen = CSS.split("@media print").next().unwrap_or("");
+        assert_eq!(rules, screen.matches('{').count() - screen.matches("@media").count());
+        assert!(!css.contains("@page"));
+    }
 }

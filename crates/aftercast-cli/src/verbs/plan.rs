@@ -120,7 +120,7 @@ pub struct MatchPlanArgs {
     /// Bootstrap draws behind each simulated data set's interval (--draws is the analysis's
     /// own; 200 draws place an interval's end within about a tenth of a standard error, enough
     /// for a share of runs, and keep a plan of the refitting methods to minutes).
-    #[arg(long, default_value_t = 200, value_parser = clap::value_parser!(u64).range(20..=100_000))]
+    #[arg(long, default_value_t = 200, value_parser = clap::value_parser!(u64).range(50..=100_000))]
     pub run_draws: u64,
     /// The plan.
     #[command(flatten)]

@@ -22,7 +22,7 @@ Observational estimates rest on assumptions no data can prove; every result list
 from ._errors import DataError, Error, InternalError, OptionError
 from ._native import __version__
 from ._result import Result
-from ._verbs import compare, forecast, match, plan, rollout, synthetic
+from ._verbs import compare, forecast, match, plan, plan_options, rollout, synthetic
 
 __all__ = [
     "DataError",
@@ -35,6 +35,7 @@ __all__ = [
     "forecast",
     "match",
     "plan",
+    "plan_options",
     "rollout",
     "synthetic",
 ]

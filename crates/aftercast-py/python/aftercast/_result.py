@@ -21,9 +21,12 @@ class Result:
     equivalence in percent). ``summary()`` has every quantity; ``draws`` the draws behind them.
     """
 
-    def __init__(self, native: Any, call: str):
+    def __init__(self, native: Any, call: str, time: Optional[str] = None, words: Any = None):
         self._native = native
         self._call = call
+        self._time = time
+        # the command line's flags in a sentence as the function's arguments
+        self._words = words or (lambda text: text)
         self._doc = json.loads(native.json())
 
     # --- the answer -----------------------------------------------------------------------
@@ -86,7 +89,9 @@ class Result:
 
     @property
     def warnings(self) -> list:
-        return list(self._doc.get("warnings") or [])
+        """What the analysis warns of, naming this function's arguments (``to_json()`` keeps
+        the command line's wording)."""
+        return [self._words(w) for w in self._doc.get("warnings") or []]
 
     @property
     def assumptions(self) -> list:
@@ -114,8 +119,8 @@ class Result:
     def path(self):
         """Observed and counterfactual per period with the counterfactual's interval, and in
         the post-period the effect and the cumulative effect with their intervals (columns
-        ``effect``, ``effect_hdi_lower``, ..., ``cumulative``, ...); a series method's answer
-        only."""
+        ``effect``, ``effect_hdi_lower``, ..., ``cumulative``, ...), indexed by the time column
+        (as dates where it holds dates); a series method's answer only."""
         import pandas as pd
 
         rows = self._doc.get("path")
@@ -127,6 +132,8 @@ class Result:
             if times.map(lambda t: bool(_ISO_DATE.match(t))).all():
                 frame["time"] = pd.to_datetime(times)
             frame = frame.set_index("time")
+            # named as the table's time column was
+            frame.index.name = self._time or "time"
         return frame
 
     @property
@@ -223,7 +230,7 @@ class Result:
         return self._native.fragment_html()
 
     def __repr__(self) -> str:
-        return self._native.terminal().rstrip("\n")
+        return self._words(self._native.terminal().rstrip("\n"))
 
 
 def _flat(row: dict) -> dict:

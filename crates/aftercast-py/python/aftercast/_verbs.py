@@ -14,7 +14,7 @@ import re
 from typing import Any, Callable
 
 from . import _native
-from ._errors import Error, OptionError
+from ._errors import DataError, Error, OptionError
 from ._result import Result
 
 # Options of the command line that write files or print; a result object does that instead
@@ -23,30 +23,79 @@ _OUTPUT_ONLY = {"json", "out", "force", "quiet"}
 
 
 def _is_table(value: Any) -> bool:
-    """A table: anything with the Arrow stream interface (pyarrow, polars, pandas 2.2+), or a
-    pandas or polars DataFrame (or pandas Series) of a version without it."""
-    if hasattr(value, "__arrow_c_stream__"):
-        return True
+    """A table: a pandas or polars DataFrame, or anything else with the Arrow stream interface
+    (a pyarrow Table or RecordBatchReader) that is not a one-dimensional array."""
     module = (type(value).__module__ or "").split(".")[0]
-    return module in ("pandas", "polars") and type(value).__name__ in ("DataFrame", "Series")
+    if module in ("pandas", "polars"):
+        return type(value).__name__ == "DataFrame"
+    return hasattr(value, "__arrow_c_stream__") and _list_like(value) is None
 
 
-def _as_arrow(value: Any) -> Any:
-    """A table as an object with ``__arrow_c_stream__`` (no copy for pyarrow and polars)."""
+def _list_like(value: Any) -> list | None:
+    """A one-dimensional list-like (list, tuple, set, range, pandas Series or Index, NumPy
+    array, pyarrow or polars array) as a Python list; None for anything else."""
+    if isinstance(value, (str, bytes, os.PathLike, dict)):
+        return None
+    if isinstance(value, (list, tuple, range)):
+        return list(value)
+    if isinstance(value, (set, frozenset)):
+        # a set has no order of its own; the command line's is the order given
+        return sorted(value, key=str)
+    kind = type(value).__name__
+    module = (type(value).__module__ or "").split(".")[0]
+    if module == "numpy" and kind == "ndarray":
+        if value.ndim != 1:
+            raise TypeError(f"a list option takes a one-dimensional array, not one of shape {value.shape}")
+        return value.tolist()
+    if module == "pandas" and (kind == "Series" or kind.endswith("Index")):
+        return value.tolist()
+    if module == "polars" and kind == "Series":
+        return value.to_list()
+    if module == "pyarrow" and kind.endswith("Array"):
+        return value.to_pylist()
+    if type(value).__name__ in ("dict_keys", "dict_values") or inspect.isgenerator(value):
+        return list(value)
+    return None
+
+
+def _as_arrow(value: Any, label: str) -> Any:
+    """A table as an object with ``__arrow_c_stream__`` (no copy for pyarrow and polars); a
+    table pyarrow cannot take raises DataError naming the argument."""
+    try:
+        return _arrow_of(value)
+    except (TypeError, ValueError, ImportError) as e:
+        raise DataError(f"{label}: cannot be read as a table ({_one_line(e)})") from None
+    except Exception as e:  # pyarrow's own errors (ArrowInvalid, ArrowNotImplementedError)
+        if (type(e).__module__ or "").startswith("pyarrow"):
+            raise DataError(f"{label}: cannot be read as a table ({_one_line(e)})") from None
+        raise
+
+
+def _one_line(e: BaseException) -> str:
+    parts = e.args if len(e.args) > 1 and all(isinstance(a, str) for a in e.args) else (str(e),)
+    # pyarrow gives (cause, what failed): the column first
+    text = " ".join("; ".join(reversed(parts)).split())
+    return text if len(text) <= 200 else text[:197] + "..."
+
+
+def _arrow_of(value: Any) -> Any:
     module = type(value).__module__ or ""
     if module.startswith("pandas"):
         import pandas as pd
         import pyarrow as pa
 
-        if isinstance(value, pd.Series):
-            value = value.to_frame()
+        frame = value.to_frame() if isinstance(value, pd.Series) else value
+        duplicated = frame.columns[frame.columns.duplicated()].unique().tolist()
+        if duplicated:
+            raise ValueError(f"column '{duplicated[0]}' appears more than once")
+        frame = _plain_pandas(frame)
         # a named index (a date index, a unit id) becomes a column of its name
         try:
-            return pa.Table.from_pandas(value, preserve_index=None)
+            return pa.Table.from_pandas(frame, preserve_index=None)
         except (pa.ArrowInvalid, pa.ArrowTypeError):
             # a column mixing numbers and text (as a messy file would): every cell as its text,
             # so that the reader names the cell that is not a number
-            return pa.Table.from_pandas(_as_text_where_mixed(value), preserve_index=None)
+            return pa.Table.from_pandas(_as_text_where_mixed(frame, pd), preserve_index=None)
     if hasattr(value, "__arrow_c_stream__"):
         return value
     if hasattr(value, "to_arrow"):
@@ -54,11 +103,25 @@ def _as_arrow(value: Any) -> Any:
     raise TypeError(f"cannot read a {type(value).__name__} as a table")
 
 
-def _as_text_where_mixed(frame: Any) -> Any:
+def _plain_pandas(frame: Any) -> Any:
+    """A pandas frame whose periods are dates: a period (a month, a week) is the date it begins,
+    as the command line reads a time column; its text would not be a date and its Arrow
+    storage is a bare count."""
     import pandas as pd
 
+    periods = [c for c, kind in frame.dtypes.items() if isinstance(kind, pd.PeriodDtype)]
+    if periods:
+        frame = frame.copy()
+        for c in periods:
+            frame[c] = frame[c].dt.start_time
+    if isinstance(frame.index, pd.PeriodIndex):
+        frame = frame.set_axis(frame.index.start_time.rename(frame.index.name), axis=0)
+    return frame
+
+
+def _as_text_where_mixed(frame: Any, pd: Any) -> Any:
     def cell(v: Any) -> Any:
-        if v is None or (isinstance(v, float) and math.isnan(v)) or v is pd.NA:
+        if v is None or (not isinstance(v, (list, tuple, dict)) and pd.isna(v)):
             return None
         return str(v)
 
@@ -77,8 +140,17 @@ def _text(value: Any, name: str) -> str:
         return value
     if isinstance(value, os.PathLike):
         return os.fspath(value)
-    if isinstance(value, _dt.datetime) or type(value).__name__ == "Timestamp":
-        # a date with no time of day is the date the time column holds
+    kind = type(value).__name__
+    if kind in ("NaTType", "NAType") or (kind == "datetime64" and str(value) == "NaT"):
+        raise OptionError(f"'{name}' is missing (NaT): give a date")
+    if kind == "datetime64":
+        # NumPy's date: through a Python datetime (to the microsecond)
+        return _text(value.astype("datetime64[us]").item(), name)
+    if kind == "Period":
+        # a month or a week is the date it begins, as its column is read
+        return _text(value.start_time, name)
+    if isinstance(value, _dt.datetime) or kind == "Timestamp":
+        # a date with no time of day is the date the time column holds (in its own zone)
         if (value.hour, value.minute, value.second, value.microsecond) == (0, 0, 0, 0):
             return value.date().isoformat()
         return value.isoformat()
@@ -89,9 +161,9 @@ def _text(value: Any, name: str) -> str:
     if isinstance(value, numbers.Real):
         v = float(value)
         if not math.isfinite(v):
-            raise OptionError(f"{name}: {v} is not a finite number")
+            raise OptionError(f"'{name}': {v} is not a finite number")
         return repr(v)
-    raise TypeError(f"{name}: cannot pass a {type(value).__name__} (give text, a number or a date)")
+    raise TypeError(f"{name}: cannot pass a {kind} (give text, a number or a date)")
 
 
 def _default(option: dict) -> Any:
@@ -115,14 +187,34 @@ def _default(option: dict) -> Any:
     return one(values[0])
 
 
-_FLAG = re.compile(r"'?--([a-z][a-z0-9-]*)(?: <[A-Z_]+>(?:\.\.\.)?)?'?")
+_FLAG = re.compile(r"'?--([a-z][a-z0-9-]*)(?: <[A-Z_]+>(?:\.\.\.)?)?'?(?: ([a-z][a-z0-9-]*))?")
+
+
+# words that follow a flag in a sentence without being its value ("--min-train or --waits")
+_PROSE = frozenset(
+    "a an and are as at be by for from if in is it its needs not of on or plus the to was when with "
+    "works leaves among after left away".split()
+)
+
+
+def _is_value_of(option: dict, value: str) -> bool:
+    """Whether a word after the option's flag in a message is a value of it (`--model auto`):
+    one of its choices, its default, or a word its help names, and not a word of prose."""
+    if option["table"] or option["switch"] or value in _PROSE:
+        return False
+    if value in option["choices"] or value in option["defaults"]:
+        return True
+    return re.search(rf"(?<![\w-]){re.escape(value)}(?![\w-])", option["help"]) is not None
 
 
 class _Verb:
     """One analysis function: its command-line path, its first argument and its options."""
 
-    def __init__(self, name: str, path: list[str], first: str | None, doc: str):
+    def __init__(self, name: str, path: list[str], first: str | None, doc: str, lead: str | None = None):
         self.name = name
+        # how a call is written: plan('match', ...) for the plan of a kind
+        self.lead = [lead] if lead else []
+        self.shown_as = f"{name}({lead or ''})"
         self.path = path
         self.first = first
         self.doc = doc
@@ -131,11 +223,18 @@ class _Verb:
         self.by_flag = {o["flag"]: o["name"] for o in self.options if o["flag"]}
 
     def python_words(self, message: str) -> str:
-        """A message of the command line with its flags named as this function's arguments."""
+        """A message of the command line with its flags named as this function's arguments:
+        ``--missing drop-row`` becomes ``missing='drop-row'``, ``--controls`` ``'controls'``."""
 
         def word(m: re.Match) -> str:
-            name = self.by_flag.get("--" + m.group(1))
-            return f"'{name}'" if name else m.group(0)
+            flag, value = m.group(1), m.group(2)
+            name = self.by_flag.get("--" + flag, flag.replace("-", "_"))
+            o = self.by_name.get(name)
+            if value and o and _is_value_of(o, value):
+                return f"{name}='{value}'"
+            if o and o["switch"]:
+                return f"{name}=True" + (f" {value}" if value else "")
+            return f"'{name}'" + (f" {value}" if value else "")
 
         return _FLAG.sub(word, message)
 
@@ -154,38 +253,63 @@ class _Verb:
             params.append(inspect.Parameter(o["name"], kind, default=_default(o)))
         return inspect.Signature(params, return_annotation=Result)
 
-    def docstring(self) -> str:
-        lines = [self.doc, "", "Parameters", "----------"]
+    def parameters_doc(self) -> list[str]:
+        lines = []
         for p in self.signature().parameters.values():
             o = self.by_name[p.name]
             shown = "" if p.default is inspect.Parameter.empty else f" (default {p.default!r})"
             req = " (required)" if p.default is inspect.Parameter.empty else ""
-            help_text = " ".join(o["help"].split())
+            help_text = self.python_words(" ".join(o["help"].split()))
+            help_text = re.sub(r",? comma-separated", "", help_text)
+            if o["list"] and not o["table"]:
+                help_text += " (a list)"
+            if help_text and not help_text.endswith("."):
+                help_text += "."
+            if o["table"]:
+                help_text += " A DataFrame, a pyarrow Table or a file path" + (
+                    "; several as a list, or as a dict naming each." if o["list"] else "."
+                )
             if o["choices"]:
                 help_text += " One of: " + ", ".join(o["choices"]) + "."
             lines.append(f"{p.name}{req}{shown}")
             lines.append(f"    {help_text}")
+        return lines
+
+    def docstring(self) -> str:
+        lines = [self.doc, "", "Parameters", "----------", *self.parameters_doc()]
         lines += [
             "",
-            "A table argument takes a pandas or polars DataFrame, a pyarrow Table, or the path of a",
-            "CSV or Parquet file. Lists take Python lists. Returns a :class:`aftercast.Result`.",
+            "Tables are pandas or polars DataFrames, pyarrow Tables, or paths of CSV or Parquet",
+            "files. Lists take any list-like (a list, a tuple, a pandas Series or Index, a NumPy",
+            "array). Returns a :class:`aftercast.Result`.",
         ]
         return "\n".join(lines)
 
+    def _table(self, name: str, value: Any, label: str, short: str, tables: list) -> str:
+        """One value of a table option: a table handed over under `label`, or a path."""
+        if isinstance(value, (str, os.PathLike)):
+            return _text(value, name)
+        if _is_table(value) or isinstance(value, _pandas_series_type()):
+            tables.append((label, short, _as_arrow(value, label)))
+            return label
+        raise TypeError(
+            f"{self.shown_as}: '{name}' takes a DataFrame, a pyarrow Table or a file path, not a {type(value).__name__}"
+        )
+
     def __call__(self, args: tuple, kwargs: dict) -> Result:
         if len(args) > (1 if self.first else 0):
-            raise TypeError(f"{self.name}() takes the table as its one positional argument; give the rest by name")
+            raise TypeError(f"{self.shown_as} takes the table as its one positional argument; give the rest by name")
         if args:
             if self.first in kwargs:
-                raise TypeError(f"{self.name}() got two values for '{self.first}'")
+                raise TypeError(f"{self.shown_as} got two values for '{self.first}'")
             kwargs = {self.first: args[0], **kwargs}
         unknown = [k for k in kwargs if k not in self.by_name]
         if unknown:
             known = ", ".join(sorted(self.by_name))
-            raise TypeError(f"{self.name}() got an unexpected keyword argument '{unknown[0]}' (its options: {known})")
+            raise TypeError(f"{self.shown_as} got an unexpected keyword argument '{unknown[0]}' (its options: {known})")
         missing = [o["name"] for o in self.options if o["required"] and kwargs.get(o["name"]) is None]
         if missing:
-            raise TypeError(f"{self.name}() missing required argument(s): " + ", ".join(f"'{m}'" for m in missing))
+            raise TypeError(f"{self.shown_as} missing required argument(s): " + ", ".join(f"'{m}'" for m in missing))
         argv = list(self.path)
         tables: list[tuple[str, str, Any]] = []
         shown: list[str] = []
@@ -195,40 +319,74 @@ class _Verb:
             o = self.by_name[name]
             flag = o["flag"]
             if o["switch"]:
-                if not isinstance(value, (bool, int)):
-                    raise TypeError(f"{name} takes True or False")
+                if not isinstance(value, (bool, int)) or isinstance(value, int) and value not in (0, 1):
+                    raise TypeError(f"{self.shown_as}: '{name}' takes True or False")
                 if value:
                     argv.append(flag)
                     shown.append(f"{name}=True")
                 continue
-            named = isinstance(value, dict)
-            many = named or isinstance(value, (list, tuple))
-            if many and not o["list"]:
-                raise TypeError(f"{name} takes one value, not a list")
-            # tables of a list option may be named: pool={"members": df, "prospects": df2}
-            items = list(value.items()) if named else [(None, v) for v in (value if many else [value])]
-            for i, (key, item) in enumerate(items):
-                if _is_table(item):
-                    if key is not None:
-                        label, short = f"DataFrame '{key}'", str(key)
-                    elif len(items) == 1:
-                        label, short = f"DataFrame '{name}'", name
-                    else:
-                        label, short = f"DataFrame '{name}[{i}]'", f"{name} {i + 1}"
-                    tables.append((label, short, _as_arrow(item)))
-                    argv += [flag, label]
-                elif key is not None:
-                    raise TypeError(f"{name}: only tables can be given by name (a dict)")
+            texts: list[str] = []
+            if o["table"]:
+                if isinstance(value, dict):
+                    if not o["list"]:
+                        raise TypeError(f"{self.shown_as}: '{name}' takes one table, not a dict")
+                    for key, item in value.items():
+                        if isinstance(item, (str, os.PathLike)):
+                            raise TypeError(
+                                f"{self.shown_as}: '{name}': a file is named after itself; give "
+                                f"{name}=[..., {os.fspath(item)!r}] or name a DataFrame of it"
+                            )
+                        texts.append(self._table(name, item, f"DataFrame '{key}'", str(key), tables))
                 else:
-                    argv += [flag, _text(item, name)]
+                    items = _list_like(value) if not _is_table(value) else None
+                    if items is not None and not o["list"]:
+                        raise TypeError(f"{self.shown_as}: '{name}' takes one table, not a list")
+                    if items is None:
+                        texts.append(self._table(name, value, f"DataFrame '{name}'", name, tables))
+                    else:
+                        for i, item in enumerate(items):
+                            label, short = (
+                                (f"DataFrame '{name}'", name)
+                                if len(items) == 1
+                                else (f"DataFrame '{name}[{i}]'", f"{name} {i + 1}")
+                            )
+                            texts.append(self._table(name, item, label, short, tables))
+            else:
+                items = _list_like(value)
+                if items is not None and not o["list"]:
+                    raise TypeError(f"{self.shown_as}: '{name}' takes one value, not a list")
+                if items is None and (_is_table(value) or isinstance(value, dict)):
+                    raise TypeError(f"{self.shown_as}: '{name}' takes {'a list' if o['list'] else 'a value'}, not a {type(value).__name__}")
+                for item in items if items is not None else [value]:
+                    text = _text(item, name)
+                    if o["delimited"] and "," in text:
+                        raise OptionError(
+                            f"{self.shown_as}: '{name}': {text!r} holds a comma, which separates a list's "
+                            "items; rename the column (or unit) without one"
+                        )
+                    texts.append(text)
+            if flag is None:
+                # the one positional value; a path beginning with '-' must not read as a flag
+                argv += [f"./{t}" if t.startswith("-") else t for t in texts]
+            else:
+                # --flag=value: a value beginning with '-' is a value, not a flag
+                argv += [f"{flag}={t}" for t in texts]
             shown.append(name if name == self.first and _is_table(value) else f"{name}={_shown(value)}")
-        call = f"aftercast.{self.name}({', '.join(shown)})"
-        threads = kwargs.get("threads")
+        call = f"aftercast.{self.name}({', '.join(self.lead + shown)})"
         try:
-            native = _native.run(argv, tables, int(threads) if threads is not None else None)
+            native = _native.run(argv, tables)
         except Error as e:
             raise type(e)(self.python_words(str(e))) from None
-        return Result(native, call)
+        time = kwargs.get("time")
+        return Result(native, call, time if isinstance(time, str) else None, self.python_words)
+
+
+def _pandas_series_type() -> tuple:
+    """pandas' Series, when pandas is loaded (a Series is a one-column table where a table is asked)."""
+    import sys
+
+    pd = sys.modules.get("pandas")
+    return (pd.Series,) if pd is not None else ()
 
 
 def _shown(value: Any) -> str:
@@ -243,13 +401,11 @@ def _shown(value: Any) -> str:
     return repr(str(value))
 
 
-def _function(name: str, path: list[str], first: str | None, doc: str) -> Callable[..., Result]:
-    verb = _Verb(name, path, first, doc)
-
+def _function(verb: _Verb) -> Callable[..., Result]:
     def analysis(*args: Any, **kwargs: Any) -> Result:
         return verb(args, kwargs)
 
-    analysis.__name__ = analysis.__qualname__ = name
+    analysis.__name__ = analysis.__qualname__ = verb.name if not verb.lead else f"plan_{verb.path[-1]}"
     analysis.__module__ = "aftercast"
     analysis.__signature__ = verb.signature()  # type: ignore[attr-defined]
     analysis.__doc__ = verb.docstring()
@@ -257,61 +413,100 @@ def _function(name: str, path: list[str], first: str | None, doc: str) -> Callab
 
 
 forecast = _function(
-    "forecast",
-    ["forecast"],
-    "data",
-    "Counterfactual of one series from its own past and control series (seasonal forecast).",
+    _Verb(
+        "forecast",
+        ["forecast"],
+        "data",
+        "Counterfactual of one series from its own past and control series (seasonal forecast).",
+    )
 )
 synthetic = _function(
-    "synthetic",
-    ["synthetic"],
-    "data",
-    "Synthetic control: a weighted mix of untouched units as the counterfactual of treated units.",
+    _Verb(
+        "synthetic",
+        ["synthetic"],
+        "data",
+        "Synthetic control: a weighted mix of untouched units as the counterfactual of treated units.",
+    )
 )
 match = _function(
-    "match",
-    ["match"],
-    "data",
-    "Propensity-score matching and weighting on a unit table (changes units opted into).",
+    _Verb(
+        "match",
+        ["match"],
+        "data",
+        "Propensity-score matching and weighting on a unit table (changes units opted into).",
+    )
 )
 rollout = _function(
-    "rollout",
-    ["rollout"],
-    "data",
-    "A change adopted in waves: group-time effects, imputation, synthetic difference-in-differences per wave.",
+    _Verb(
+        "rollout",
+        ["rollout"],
+        "data",
+        "A change adopted in waves: group-time effects, imputation, synthetic difference-in-differences per wave.",
+    )
 )
 compare = _function(
-    "compare",
-    ["compare"],
-    "experiment",
-    "Observational estimates against a randomized experiment's answer (or a plasmode simulation).",
+    _Verb(
+        "compare",
+        ["compare"],
+        "experiment",
+        "Observational estimates against a randomized experiment's answer (or a plasmode simulation).",
+    )
 )
 
-_PLANS = {
-    kind: _function(
-        f"plan_{kind}",
+_PLAN_KINDS = ("forecast", "synthetic", "match")
+_PLAN_VERBS = {
+    kind: _Verb(
+        "plan",
         ["plan", kind],
         "data",
         f"How long to wait (or how many units to have) to see a change of a given size, from placebo "
-        f"runs of the {kind} analysis's own set-up.",
+        f"runs of the {kind} analysis's own set-up: {kind}()'s arguments and the plan's own.",
+        lead=repr(kind),
     )
-    for kind in ("forecast", "synthetic", "match")
+    for kind in _PLAN_KINDS
 }
+_PLANS = {kind: _function(verb) for kind, verb in _PLAN_VERBS.items()}
+
+
+def _unknown_kind(kind: Any) -> OptionError:
+    return OptionError(f"plan: the kind is one of {', '.join(map(repr, _PLAN_KINDS))}, not {kind!r}")
 
 
 def plan(kind: str, data: Any = None, /, **options: Any) -> Result:
-    """How long to wait (or how many units to have) to see a change of a given size: placebo
-    runs of the analysis's own set-up. ``kind`` is "forecast", "synthetic" or "match"; the other
-    arguments are that analysis's (``help(aftercast.plan_options(kind))`` lists them) plus the
-    plan's own (placebos, lifts, power, waits, min_train, sizes, run_draws)."""
     if kind not in _PLANS:
-        raise OptionError(f"plan: kind must be one of {', '.join(_PLANS)}, not {kind!r}")
+        raise _unknown_kind(kind)
     args = () if data is None else (data,)
     return _PLANS[kind](*args, **options)
 
 
+def _plan_doc() -> str:
+    """plan's help: what it does, then per kind the plan's own arguments (the analysis's are
+    that function's; ``help(aftercast.plan_options(kind))`` shows all of them)."""
+    analyses = {"forecast": forecast, "synthetic": synthetic, "match": match}
+    lines = [
+        "How long to wait (or how many units to have) to see a change of a given size: placebo",
+        "runs of an analysis's own set-up, with no effect and with each planned lift added.",
+        "",
+        "``plan(kind, data, **arguments)``: ``kind`` is 'forecast', 'synthetic' or 'match'; the",
+        "arguments are that analysis's (see its help) and the plan's own, listed here. The full",
+        "signature of one kind: ``help(aftercast.plan_options(kind))``.",
+    ]
+    for kind, verb in _PLAN_VERBS.items():
+        own = set(inspect.signature(analyses[kind]).parameters)
+        lines += ["", f"plan({kind!r}, ...): {kind}()'s arguments and", "-" * 40]
+        doc = verb.parameters_doc()
+        for head, body in zip(doc[::2], doc[1::2]):
+            if head.split(" ")[0] not in own:
+                lines += [head, body]
+    return "\n".join(lines)
+
+
+plan.__doc__ = _plan_doc()
+
+
 def plan_options(kind: str) -> Callable[..., Result]:
-    """The plan function of one kind, with its full signature and help."""
+    """The plan of one kind as a function with its full signature and help:
+    ``aftercast.plan_options('match')(units, treatment=..., ...)`` is ``aftercast.plan('match', units, ...)``."""
     if kind not in _PLANS:
-        raise OptionError(f"plan: kind must be one of {', '.join(_PLANS)}, not {kind!r}")
+        raise _unknown_kind(kind)
     return _PLANS[kind]
