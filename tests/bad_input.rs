@@ -61,7 +61,7 @@ fn cases() -> Vec<Case> {
         Case {
             file: "gap_in_days.csv",
             args: SERIES,
-            expect: &["line 7, column 1", "1 daily period(s) missing", "gap policy"],
+            expect: &["line 7, column 1", "1 daily period(s) missing", "--gaps fill"],
         },
         Case {
             file: "irregular_weeks.csv",
@@ -269,6 +269,10 @@ fn forecast_option_errors_exit_2() {
         (vec!["--shrink-controls", "3"], "'3'"),
         (vec!["--model", "auto", "--folds", "0"], "--folds 1 or more"),
         (vec!["--season", "50"], "longer than the pre-period (28 periods)"),
+        // the outcome as its own control would explain any effect away
+        (vec!["--controls", "volume"], "'volume' is the outcome"),
+        (vec!["--controls", "year"], "'year' is the time column"),
+        (vec!["--draws=-5"], "not a whole number"),
     ] {
         let mut args = owned(&base);
         args.extend(owned(&extra));

@@ -139,6 +139,10 @@ pub fn usage_line(e: &clap::Error) -> String {
     {
         text = text.replace(v.as_str(), &aftercast_core::error::shown(v));
     }
+    // the number parsers' own words, said for the person who typed the value
+    text = text
+        .replace("invalid digit found in string", "not a whole number (0, 1, 2, ...)")
+        .replace("invalid float literal", "not a number");
     // a first line ending in ':' announces a list (the missing arguments): keep it
     let first = study::one_line(&text);
     let first = if first.ends_with(':') {

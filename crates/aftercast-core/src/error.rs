@@ -145,7 +145,7 @@ pub enum DataError {
         name: String,
     },
     /// A column the analysis needs is not in the file.
-    #[error("{}: no column named '{}' (the columns are: {})", path.display(), crate::error::shown(name), crate::error::shown(&available.join(", ")))]
+    #[error("{}: no column named '{}' (the columns are: {})", path.display(), crate::error::shown(name), column_list(available))]
     MissingColumn {
         /// The file.
         path: PathBuf,
@@ -331,6 +331,23 @@ pub enum DataError {
 
 /// Result alias of the data layer.
 pub type DataResult<T> = Result<T, DataError>;
+
+/// The names of a table's columns for a message: each escaped as [`shown`], whole names only,
+/// the first ones up to about 200 characters and a count of the rest.
+fn column_list(names: &[String]) -> String {
+    let mut out = String::new();
+    for (i, n) in names.iter().enumerate() {
+        let one = shown(n);
+        if i > 0 && out.len() + one.len() > 200 {
+            return format!("{out}, and {} more", names.len() - i);
+        }
+        if i > 0 {
+            out.push_str(", ");
+        }
+        out.push_str(&one);
+    }
+    out
+}
 
 /// Text from a file as an error message shows it: control characters escaped (a cell cannot
 /// move the cursor or start a new line in the terminal) and cut to about 80 characters.

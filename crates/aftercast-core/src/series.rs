@@ -1,6 +1,6 @@
 //! A dated series: one outcome and any number of control series on a regular time axis.
 
-use crate::error::{DataError, DataResult};
+use crate::error::{DataError, DataResult, Location};
 use crate::policy::{GapPolicy, MissingPolicy};
 use crate::table::{InputInfo, Projection, RawTable};
 use crate::time::{DateFormat, Frequency, TimeAxis, TimePoint, detect_frequency, parse_time, steps_between};
@@ -65,6 +65,26 @@ impl Series {
     /// missing values (policy `Error`), missing control values (always).
     pub fn from_table(table: &RawTable, spec: &SeriesSpec) -> DataResult<Self> {
         let path = table.path().to_path_buf();
+        // a control is a series the change did not touch: the outcome itself (or the time)
+        // as its own control would explain the effect away
+        for (i, c) in spec.controls.iter().enumerate() {
+            let role = if *c == spec.outcome {
+                "the outcome"
+            } else if *c == spec.time {
+                "the time column"
+            } else if spec.controls[..i].contains(c) {
+                "named twice among the controls"
+            } else {
+                continue;
+            };
+            return Err(DataError::Invalid {
+                at: Location { column_name: Some(c.clone()), ..Location::file(&path) },
+                message: format!(
+                    "--controls: '{}' is {role}; a control must be another series the change did not touch",
+                    crate::error::shown(c)
+                ),
+            });
+        }
         let tcol = table.column(&spec.time)?;
         let ycol = table.column(&spec.outcome)?;
         let ccols: Vec<usize> = spec.controls.iter().map(|c| table.column(c)).collect::<DataResult<_>>()?;
@@ -178,11 +198,10 @@ impl Series {
                         text: t.to_string(),
                         previous: prev.to_string(),
                         detail: format!(
-                            "{} {:?} period(s) missing; use the gap policy 'fill' to insert them as missing",
+                            "{} {} period(s) missing; use --gaps fill to insert them as missing",
                             steps - 1,
-                            freq
-                        )
-                        .to_lowercase(),
+                            format!("{freq:?}").to_lowercase()
+                        ),
                     });
                 }
                 if !ccols.is_empty() {

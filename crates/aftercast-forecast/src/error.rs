@@ -27,6 +27,16 @@ pub enum ForecastError {
         /// Why it is not accepted.
         detail: String,
     },
+    /// Holt-Winters starts its states from the first season, which has a missing value.
+    #[error(
+        "the holt-winters model starts from the first {season} pre-period values, and one of them is missing (pre-period ends before {at}); the structural model (--model structural) takes missing values anywhere"
+    )]
+    FirstSeasonMissing {
+        /// The season's length in periods.
+        season: usize,
+        /// The post-period start, as text.
+        at: String,
+    },
     /// The pre-period is too short for the chosen model.
     #[error(
         "the {model} model needs at least {needed} observed pre-period values; the series has {found} (pre-period ends before {at})"

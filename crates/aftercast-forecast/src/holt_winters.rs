@@ -221,15 +221,19 @@ pub struct HwFit {
 /// Fit the smoothing parameters by least squares.
 ///
 /// # Errors
-/// [`ForecastError::TooShort`] with fewer than two seasons (or 4 values) observed;
+/// [`ForecastError::TooShort`] with fewer than two seasons (or 4 values) observed,
+/// [`ForecastError::FirstSeasonMissing`] with a missing value in the first season;
 /// [`ForecastError::NonPositiveForMultiplicative`] for multiplicative seasonality on data with
 /// a non-positive value; [`ForecastError::Optimiser`].
 pub fn fit(spec: &HwSpec, y: &[f64], at: &str) -> ForecastResult<HwFit> {
     let m = spec.m();
     let n_obs = y.iter().filter(|v| v.is_finite()).count();
     let needed = (2 * m).max(4) + spec.n_smoothing();
-    if n_obs < needed || y.iter().take(m.max(1)).any(|v| !v.is_finite()) {
+    if n_obs < needed {
         return Err(ForecastError::TooShort { model: "holt-winters", needed, found: n_obs, at: at.to_string() });
+    }
+    if y.iter().take(m.max(1)).any(|v| !v.is_finite()) {
+        return Err(ForecastError::FirstSeasonMissing { season: m.max(1), at: at.to_string() });
     }
     if spec.seasonality == Seasonality::Multiplicative
         && let Some(v) = y.iter().find(|v| v.is_finite() && **v <= 0.0)

@@ -64,3 +64,16 @@ fn holt_winters_matches_statsmodels_exponential_smoothing() {
         assert!((sse - want_sse).abs() / want_sse < tol::HW_REL, "{}: sse {sse} vs {want_sse}", c["name"]);
     }
 }
+
+/// A missing value in the first season is named as such (the states start from that season),
+/// not as a pre-period too short for a series that is long.
+#[test]
+fn a_missing_value_in_the_first_season_is_named() {
+    use aftercast_forecast::ForecastError;
+    let spec = HwSpec { trend: true, damped: false, seasonality: Seasonality::Additive, period: 7 };
+    let mut y: Vec<f64> = (0..140).map(|t| 10.0 + (t % 7) as f64).collect();
+    y[3] = f64::NAN;
+    let e = aftercast_forecast::holt_winters::fit(&spec, &y, "2026-03-02").expect_err("first season has a gap");
+    assert!(matches!(e, ForecastError::FirstSeasonMissing { season: 7, .. }), "{e}");
+    assert!(e.to_string().contains("first 7 pre-period values"), "{e}");
+}

@@ -293,10 +293,11 @@ impl Analysis {
         Ok(aftercast_report::html::render(&aftercast_cli::single_report(&outcome, command)))
     }
 
-    /// Write the report atomically (never over an input of the run).
-    fn write_report(&self, py: Python<'_>, path: std::path::PathBuf, command: String) -> PyResult<()> {
-        let outcome = self.outcome(py)?;
-        aftercast_report::html::write(&aftercast_cli::single_report(&outcome, command), &path)
+    /// Write a page (the report as `report_html` gave it, in the caller's wording) atomically:
+    /// a temporary file beside `path`, renamed over it when whole.
+    #[staticmethod]
+    fn write_page(py: Python<'_>, path: std::path::PathBuf, html: String) -> PyResult<()> {
+        py.detach(|| aftercast_report::write_atomic(&path, html.as_bytes()))
             .map_err(|e| error(py, "DataError", e.to_string()))
     }
 

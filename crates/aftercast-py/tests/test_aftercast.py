@@ -365,7 +365,7 @@ def test_table_arguments_say_what_they_take():
     members = read("members.csv")
     with pytest.raises(TypeError, match=r"match\(\): 'data' takes one table, not a dict"):
         ac.match({"a": members}, **MEMBERS_ARGS)
-    with pytest.raises(TypeError, match=r"'data' takes a DataFrame, a pyarrow Table or a file path, not a int"):
+    with pytest.raises(TypeError, match=r"'data' takes a DataFrame, a pyarrow Table or a file path, not an int"):
         ac.match(5, **MEMBERS_ARGS)
     with pytest.raises(TypeError, match=r"'pool': a file is named after itself"):
         ac.compare(DEMO / "past_test" / "experiment.csv", pool={"p": "x.csv"}, outcome="y")
@@ -392,6 +392,78 @@ def test_messages_and_help_speak_python():
         ac.plan("match", read("members.csv"), waits=[4], **MEMBERS_ARGS)
     with pytest.raises(ac.OptionError, match="the kind is one of"):
         ac.plan("bogus", read("members.csv"))
+
+
+def test_the_users_own_text_is_never_rewritten():
+    members = read("members.csv").rename(columns={"spend_pre": "--level"})
+    with pytest.raises(ac.DataError, match=r"no column named '--outcome'"):
+        ac.match(members, **dict(MEMBERS_ARGS, outcome="--outcome"))
+    regions = read("regions_weekly.csv")
+    with pytest.raises(ac.DataError, match=r"treated unit '--level' is not"):
+        ac.synthetic(regions, **dict(SALE_ARGS, treated=["--level"]))
+    cells = read("members.csv")
+    cells["spend_pre"] = cells["spend_pre"].astype(object)
+    cells.loc[3, "spend_pre"] = "--missing"
+    with pytest.raises(ac.DataError, match=r"'--missing' is not a number"):
+        ac.match(cells, **MEMBERS_ARGS)
+
+
+def test_more_list_likes_and_whole_floats():
+    regions = read("regions_weekly.csv")
+    treated = SALE_ARGS["treated"]
+    want = ac.synthetic(regions, **SALE_ARGS).to_json()
+    picked = regions.loc[regions["region"].isin(treated), "region"]
+    for given in (
+        picked.unique(),  # an extension array in recent pandas
+        picked.astype("category").unique(),
+        pd.array(treated),
+        map(str, treated),
+        iter(treated),
+    ):
+        assert ac.synthetic(regions, **dict(SALE_ARGS, treated=given)).to_json() == want, type(given)
+    # draws=3e2 is 300 draws
+    assert ac.synthetic(regions, **dict(SALE_ARGS, draws=3e2)).to_json() == want
+    with pytest.raises(ac.OptionError, match=r"'draws'.*not a whole number"):
+        ac.synthetic(regions, **dict(SALE_ARGS, draws=-5))
+
+
+def test_a_series_is_a_one_column_table_where_a_table_goes():
+    regions = read("regions_weekly.csv")
+    with pytest.raises(ac.DataError, match=r"DataFrame 'data': no column named 'region'"):
+        ac.synthetic(regions["revenue"], **SALE_ARGS)
+    with pytest.raises(TypeError, match=r"'data' takes a DataFrame, a pyarrow Table or a file path, not a NumPy array"):
+        ac.synthetic(regions.to_numpy(), **SALE_ARGS)
+
+
+def test_arguments_required_together_are_type_errors():
+    with pytest.raises(TypeError, match=r"compare\(\) missing required argument\(s\): .*'outcome'"):
+        ac.compare(read("past_test/experiment.csv"), pool=[read("past_test/pool.csv")])
+
+
+def test_plan_messages_name_the_plan_as_called():
+    regions = read("regions_weekly.csv")
+    with pytest.raises(ac.DataError, match=r"^plan\('synthetic'\): "):
+        ac.plan("synthetic", regions, **dict(SALE_ARGS, draws=100), placebos=4, waits=[500])
+
+
+def test_card_report_and_call_speak_python(tmp_path):
+    members = read("members.csv")
+    r = ac.match(
+        members.head(3000),
+        **dict(MEMBERS_ARGS, method="nearest", draws=100, categorical=["region"], level=np.float64(0.8)),
+    )
+    flagged = [w for w in r._doc["warnings"] if re.search(r"--[a-z]", w)]
+    assert flagged, "the check needs a warning that names a flag"
+    card = r._repr_html_()
+    page = r.report(tmp_path / "r.html").read_text()
+    for html_text in (card, page):
+        prose = re.sub(r"<style\b.*?</style>|<svg\b.*?</svg>", "", html_text, flags=re.S)
+        assert not re.search(r"--[a-z]", prose), re.search(r".{40}--[a-z].{40}", prose)
+    # the call to reproduce it holds the values as used, ready to paste
+    assert "level=0.8" in page and "categorical=[&#39;region&#39;]" in page
+    with pytest.raises(ac.DataError, match="is an input of this analysis"):
+        ac.match(DEMO / "members.csv", **dict(MEMBERS_ARGS, draws=50)).report(DEMO / "members.csv")
+    assert (DEMO / "members.csv").read_text().startswith("customer_id")
 
 
 # --- the result object ------------------------------------------------------------------------

@@ -49,9 +49,9 @@ pub(crate) fn prepare(panel: &Panel, treated: &[String], start: TimePoint, p: &S
         None => points.len(),
     };
     if t_end <= t0 {
-        return Err(SynthError::NoPostPeriod {
-            start: start.to_string(),
-            last: p.end.map(|e| e.to_string()).unwrap_or(last),
+        return Err(match p.end {
+            Some(end) => SynthError::EndBeforeStart { start: start.to_string(), end: end.to_string() },
+            None => SynthError::NoPostPeriod { start: start.to_string(), last },
         });
     }
     if t0 < p.min_pre_periods {

@@ -49,6 +49,14 @@ pub enum SynthError {
         /// Pre-periods needed.
         needed: usize,
     },
+    /// The end (--end) comes before the start: no post-period.
+    #[error("--end {end} comes before the start {start}: no period lies between them")]
+    EndBeforeStart {
+        /// The start as given.
+        start: String,
+        /// The end as given.
+        end: String,
+    },
     /// The start lies at or after the last period (nothing to estimate).
     #[error("no period at or after the start {start} (the panel ends at {last})")]
     NoPostPeriod {

@@ -15,6 +15,9 @@ fn located_errors_for_bad_input() {
     assert!(matches!(p.fit(&panel, &[], TimePoint::Period(1950)), Err(SynthError::NoTreated)));
     let e = p.fit(&panel, &["IBM".into()], TimePoint::Period(1960)).unwrap_err();
     assert!(matches!(&e, SynthError::NoPostPeriod { last, .. } if last == "1954"), "{e}");
+    let before = SynthParams { end: Some(TimePoint::Period(1948)), ..SynthParams::new() }.check().unwrap();
+    let e = before.fit(&panel, &["IBM".into()], TimePoint::Period(1950)).unwrap_err();
+    assert!(matches!(&e, SynthError::EndBeforeStart { end, .. } if end == "1948"), "{e}");
     let e = p.fit(&panel, &["IBM".into()], TimePoint::Period(1936)).unwrap_err();
     assert!(matches!(e, SynthError::TooFewPrePeriods { found: 1, needed: 3, .. }));
     let others: Vec<String> = panel.units.iter().filter(|u| *u != "IBM" && *u != "Chrysler").cloned().collect();

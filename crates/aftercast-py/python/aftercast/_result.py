@@ -216,21 +216,40 @@ class Result:
         return self._native.json()
 
     def report(self, path: "str | os.PathLike[str]") -> pathlib.Path:
-        """Write the HTML report (one self-contained page, the command line's) to ``path``
-        atomically; returns the path."""
+        """Write the HTML report (one self-contained page, the command line's, in this
+        function's words) to ``path`` atomically; returns the path. Never over an input file
+        of the analysis."""
+        from ._errors import DataError
+
         p = pathlib.Path(path)
-        self._native.write_report(str(p), self._call)
+        target = p.resolve()
+        for i in self._doc.get("inputs") or []:
+            given = pathlib.Path(str(i.get("path", "")))
+            if given.exists() and given.resolve() == target:
+                raise DataError(f"{p}: is an input of this analysis; write the report elsewhere")
+        self._native.write_page(str(p), self.report_html())
         return p
 
     def report_html(self) -> str:
         """The HTML report as text."""
-        return self._native.report_html(self._call)
+        return _html_words(self._native.report_html(self._call), self._words)
 
     def _repr_html_(self) -> str:
-        return self._native.fragment_html()
+        return _html_words(self._native.fragment_html(), self._words)
 
     def __repr__(self) -> str:
         return self._words(self._native.terminal().rstrip("\n"))
+
+
+# blocks of a page whose text is not prose: styles (custom properties are written --name),
+# charts and scripts
+_NOT_PROSE = re.compile(r"(<style\b.*?</style>|<svg\b.*?</svg>|<script\b.*?</script>)", re.S)
+
+
+def _html_words(page: str, words: Any) -> str:
+    """A page with the command line's flags in its prose named as the function's arguments."""
+    parts = _NOT_PROSE.split(page)
+    return "".join(p if i % 2 else words(p) for i, p in enumerate(parts))
 
 
 def _flat(row: dict) -> dict:

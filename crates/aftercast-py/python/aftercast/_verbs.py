@@ -5,6 +5,7 @@ of options, never a second one kept by hand."""
 
 from __future__ import annotations
 
+import collections.abc
 import datetime as _dt
 import inspect
 import math
@@ -31,7 +32,7 @@ def _is_table(value: Any) -> bool:
     return hasattr(value, "__arrow_c_stream__") and _list_like(value) is None
 
 
-def _list_like(value: Any) -> list | None:
+def _list_like(value: Any, name: str = "", quiet: bool = False) -> list | None:
     """A one-dimensional list-like (list, tuple, set, range, pandas Series or Index, NumPy
     array, pyarrow or polars array) as a Python list; None for anything else."""
     if isinstance(value, (str, bytes, os.PathLike, dict)):
@@ -45,15 +46,23 @@ def _list_like(value: Any) -> list | None:
     module = (type(value).__module__ or "").split(".")[0]
     if module == "numpy" and kind == "ndarray":
         if value.ndim != 1:
-            raise TypeError(f"a list option takes a one-dimensional array, not one of shape {value.shape}")
+            if quiet:
+                return None
+            raise TypeError(f"'{name}' takes a one-dimensional array, not one of shape {value.shape}")
         return value.tolist()
-    if module == "pandas" and (kind == "Series" or kind.endswith("Index")):
+    if module == "pandas" and kind != "DataFrame" and hasattr(value, "tolist"):
+        # a Series, an Index, an extension array (ArrowStringArray, Categorical, pd.array)
+        if getattr(value, "ndim", 1) != 1:
+            if quiet:
+                return None
+            raise TypeError(f"'{name}' takes a one-dimensional array, not a {kind}")
         return value.tolist()
     if module == "polars" and kind == "Series":
         return value.to_list()
     if module == "pyarrow" and kind.endswith("Array"):
         return value.to_pylist()
-    if type(value).__name__ in ("dict_keys", "dict_values") or inspect.isgenerator(value):
+    if isinstance(value, (collections.abc.KeysView, collections.abc.ValuesView, collections.abc.Iterator)):
+        # dict keys, a generator, map(), iter()
         return list(value)
     return None
 
@@ -162,6 +171,9 @@ def _text(value: Any, name: str) -> str:
         v = float(value)
         if not math.isfinite(v):
             raise OptionError(f"'{name}': {v} is not a finite number")
+        # a whole float (draws=1e3) is the whole number: a count reads it, a rate too
+        if v.is_integer() and abs(v) < 2**53:
+            return str(int(v))
         return repr(v)
     raise TypeError(f"{name}: cannot pass a {kind} (give text, a number or a date)")
 
@@ -187,7 +199,30 @@ def _default(option: dict) -> Any:
     return one(values[0])
 
 
-_FLAG = re.compile(r"'?--([a-z][a-z0-9-]*)(?: <[A-Z_]+>(?:\.\.\.)?)?'?(?: ([a-z][a-z0-9-]*))?")
+# A flag as the command line's messages write it: quoted with its value's placeholder
+# ('--threads <THREADS>', from the flag parser) or bare in a sentence (--level, `--start`),
+# then perhaps a value (--missing drop-row). A quoted name without a placeholder is the user's
+# own text ('--revenue', a column), and a flag inside a word or after a quote or an HTML entity
+# is text too: neither is touched.
+_FLAG = re.compile(
+    r"(?:'--(?P<quoted>[a-z][a-z0-9-]*) <[A-Z_]+>(?:\.\.\.)?'"
+    r"|(?<![\w'\\;&`-])(?P<tick>`?)--(?P<bare>[a-z][a-z0-9-]*)(?P=tick)(?![\w'-]))"
+    r"(?: (?P<value>[a-z][a-z0-9-]*))?"
+)
+_VERB_NAME = re.compile(r"`aftercast (forecast|synthetic|match|rollout|compare|plan)`")
+
+
+def _all_flags() -> frozenset:
+    """Every flag of the analyses the module has (a message may name another verb's)."""
+    global _FLAGS
+    if _FLAGS is None:
+        paths = [["forecast"], ["synthetic"], ["match"], ["rollout"], ["compare"]]
+        paths += [["plan", k] for k in ("forecast", "synthetic", "match")]
+        _FLAGS = frozenset(o["flag"] for p in paths for o in _native.options(p) if o["flag"])
+    return _FLAGS
+
+
+_FLAGS: frozenset | None = None
 
 
 # words that follow a flag in a sentence without being its value ("--min-train or --waits")
@@ -224,19 +259,32 @@ class _Verb:
 
     def python_words(self, message: str) -> str:
         """A message of the command line with its flags named as this function's arguments:
-        ``--missing drop-row`` becomes ``missing='drop-row'``, ``--controls`` ``'controls'``."""
+        ``--missing drop-row`` becomes ``missing='drop-row'``, ``--controls`` ``'controls'``;
+        ``plan match`` becomes ``plan('match')``. The user's own text (quoted names, cells) is
+        left as it is."""
+        known = _all_flags()
 
         def word(m: re.Match) -> str:
-            flag, value = m.group(1), m.group(2)
+            flag = m.group("quoted") or m.group("bare")
+            value = m.group("value")
+            if "--" + flag not in known:
+                return m.group(0)
             name = self.by_flag.get("--" + flag, flag.replace("-", "_"))
             o = self.by_name.get(name)
+            tick = m.group("tick") or ""
             if value and o and _is_value_of(o, value):
-                return f"{name}='{value}'"
+                return f"{tick}{name}='{value}'{tick}"
+            rest = f" {value}" if value else ""
             if o and o["switch"]:
-                return f"{name}=True" + (f" {value}" if value else "")
-            return f"'{name}'" + (f" {value}" if value else "")
+                return f"{tick}{name}=True{tick}{rest}"
+            return (f"`{name}`" if tick else f"'{name}'") + rest
 
-        return _FLAG.sub(word, message)
+        said = _FLAG.sub(word, message)
+        said = _VERB_NAME.sub(lambda m: f"`aftercast.{m.group(1)}()`", said)
+        if self.lead:
+            kind = self.path[-1]
+            said = re.sub(rf"(?<![\w'])plan {kind}(?![\w'-])", f"plan({kind!r})", said)
+        return said
 
     def signature(self) -> inspect.Signature:
         params = []
@@ -260,6 +308,7 @@ class _Verb:
             shown = "" if p.default is inspect.Parameter.empty else f" (default {p.default!r})"
             req = " (required)" if p.default is inspect.Parameter.empty else ""
             help_text = self.python_words(" ".join(o["help"].split()))
+            help_text = re.sub(r"\(comma-separated ", "(", help_text)
             help_text = re.sub(r",? comma-separated", "", help_text)
             if o["list"] and not o["table"]:
                 help_text += " (a list)"
@@ -293,7 +342,8 @@ class _Verb:
             tables.append((label, short, _as_arrow(value, label)))
             return label
         raise TypeError(
-            f"{self.shown_as}: '{name}' takes a DataFrame, a pyarrow Table or a file path, not a {type(value).__name__}"
+            f"{self.shown_as}: '{name}' takes a DataFrame, a pyarrow Table or a file path, "
+            f"not {_a(type(value).__name__)}"
         )
 
     def __call__(self, args: tuple, kwargs: dict) -> Result:
@@ -326,6 +376,8 @@ class _Verb:
                     shown.append(f"{name}=True")
                 continue
             texts: list[str] = []
+            # how the call is written back (a report's "reproduce" section): the values as used
+            literal: str
             if o["table"]:
                 if isinstance(value, dict):
                     if not o["list"]:
@@ -337,12 +389,16 @@ class _Verb:
                                 f"{name}=[..., {os.fspath(item)!r}] or name a DataFrame of it"
                             )
                         texts.append(self._table(name, item, f"DataFrame '{key}'", str(key), tables))
+                    literal = "{" + ", ".join(f"{k!r}: <{type(v).__name__}>" for k, v in value.items()) + "}"
                 else:
-                    items = _list_like(value) if not _is_table(value) else None
+                    # a Series where a table goes is a one-column table, not a list of values
+                    one = _is_table(value) or isinstance(value, _pandas_series_type())
+                    items = None if one else _list_like(value, name, quiet=True)
                     if items is not None and not o["list"]:
                         raise TypeError(f"{self.shown_as}: '{name}' takes one table, not a list")
                     if items is None:
                         texts.append(self._table(name, value, f"DataFrame '{name}'", name, tables))
+                        literal = _table_literal(value, texts[-1])
                     else:
                         for i, item in enumerate(items):
                             label, short = (
@@ -351,12 +407,17 @@ class _Verb:
                                 else (f"DataFrame '{name}[{i}]'", f"{name} {i + 1}")
                             )
                             texts.append(self._table(name, item, label, short, tables))
+                        literal = "[" + ", ".join(_table_literal(v, t) for v, t in zip(items, texts)) + "]"
             else:
-                items = _list_like(value)
+                items = _list_like(value, name)
                 if items is not None and not o["list"]:
                     raise TypeError(f"{self.shown_as}: '{name}' takes one value, not a list")
                 if items is None and (_is_table(value) or isinstance(value, dict)):
-                    raise TypeError(f"{self.shown_as}: '{name}' takes {'a list' if o['list'] else 'a value'}, not a {type(value).__name__}")
+                    raise TypeError(
+                        f"{self.shown_as}: '{name}' takes {'a list' if o['list'] else 'a value'}, "
+                        f"not a {type(value).__name__}"
+                    )
+                shown_items = []
                 for item in items if items is not None else [value]:
                     text = _text(item, name)
                     if o["delimited"] and "," in text:
@@ -365,20 +426,43 @@ class _Verb:
                             "items; rename the column (or unit) without one"
                         )
                     texts.append(text)
+                    is_number = isinstance(item, numbers.Real) and not isinstance(item, (bool, str))
+                    shown_items.append(text if is_number else repr(text))
+                literal = "[" + ", ".join(shown_items) + "]" if items is not None else shown_items[0]
             if flag is None:
                 # the one positional value; a path beginning with '-' must not read as a flag
                 argv += [f"./{t}" if t.startswith("-") else t for t in texts]
             else:
                 # --flag=value: a value beginning with '-' is a value, not a flag
                 argv += [f"{flag}={t}" for t in texts]
-            shown.append(name if name == self.first and _is_table(value) else f"{name}={_shown(value)}")
+            # a table as the first argument reads as the variable holding it
+            shown.append(name if name == self.first and literal.startswith("<") else f"{name}={literal}")
         call = f"aftercast.{self.name}({', '.join(self.lead + shown)})"
         try:
             native = _native.run(argv, tables)
         except Error as e:
-            raise type(e)(self.python_words(str(e))) from None
+            said = self.python_words(str(e))
+            # arguments required only in some combinations (compare) are missed by the flag parser
+            lead = "the following required arguments were not provided: "
+            if said.startswith(lead):
+                raise TypeError(f"{self.shown_as} missing required argument(s): {said[len(lead):]}") from None
+            raise type(e)(said) from None
         time = kwargs.get("time")
         return Result(native, call, time if isinstance(time, str) else None, self.python_words)
+
+
+def _a(kind: str) -> str:
+    """A type's name with its article: "an int", "a list"."""
+    if kind == "ndarray":
+        return "a NumPy array"
+    return ("an " if kind[:1].lower() in "aeiou" else "a ") + kind
+
+
+def _table_literal(value: Any, text: str) -> str:
+    """A table argument as a call shows it: a path as text, a table as <DataFrame>."""
+    if isinstance(value, (str, os.PathLike)):
+        return repr(text)
+    return f"<{type(value).__name__}>"
 
 
 def _pandas_series_type() -> tuple:
@@ -387,18 +471,6 @@ def _pandas_series_type() -> tuple:
 
     pd = sys.modules.get("pandas")
     return (pd.Series,) if pd is not None else ()
-
-
-def _shown(value: Any) -> str:
-    if _is_table(value):
-        return f"<{type(value).__name__}>"
-    if isinstance(value, dict):
-        return "{" + ", ".join(f"{k!r}: {_shown(v)}" for k, v in value.items()) + "}"
-    if isinstance(value, (list, tuple)):
-        return "[" + ", ".join(_shown(v) for v in value) + "]"
-    if isinstance(value, (str, bool, int, float)):
-        return repr(value)
-    return repr(str(value))
 
 
 def _function(verb: _Verb) -> Callable[..., Result]:
@@ -493,7 +565,7 @@ def _plan_doc() -> str:
     ]
     for kind, verb in _PLAN_VERBS.items():
         own = set(inspect.signature(analyses[kind]).parameters)
-        lines += ["", f"plan({kind!r}, ...): {kind}()'s arguments and", "-" * 40]
+        lines += ["", f"plan({kind!r}, ...): the arguments of {kind}() and these", "-" * 50]
         doc = verb.parameters_doc()
         for head, body in zip(doc[::2], doc[1::2]):
             if head.split(" ")[0] not in own:
