@@ -310,10 +310,16 @@ def test_a_bad_column_raises_data_error_naming_it():
         ac.match(read("members.csv"), **dict(MEMBERS_ARGS, outcome="spend_90"))
 
 
+def with_cell(frame: pd.DataFrame, row: int, column: str, text: str) -> pd.DataFrame:
+    """The frame with one cell of a numeric column replaced by text (as a messy file has)."""
+    out = frame.copy()
+    out[column] = out[column].astype(object)
+    out.loc[row, column] = text
+    return out
+
+
 def test_a_bad_cell_names_its_row_and_column():
-    members = read("members.csv")
-    members["spend_pre"] = members["spend_pre"].astype(object)
-    members.loc[17, "spend_pre"] = "n/a?"
+    members = with_cell(read("members.csv"), 17, "spend_pre", "n/a?")
     with pytest.raises(ac.DataError, match=r"DataFrame 'data', row 17, column 3 \('spend_pre'\): 'n/a\?' is not a number"):
         ac.match(members, **MEMBERS_ARGS)
 
@@ -401,9 +407,7 @@ def test_the_users_own_text_is_never_rewritten():
     regions = read("regions_weekly.csv")
     with pytest.raises(ac.DataError, match=r"treated unit '--level' is not"):
         ac.synthetic(regions, **dict(SALE_ARGS, treated=["--level"]))
-    cells = read("members.csv")
-    cells["spend_pre"] = cells["spend_pre"].astype(object)
-    cells.loc[3, "spend_pre"] = "--missing"
+    cells = with_cell(read("members.csv"), 3, "spend_pre", "--missing")
     with pytest.raises(ac.DataError, match=r"'--missing' is not a number"):
         ac.match(cells, **MEMBERS_ARGS)
 
